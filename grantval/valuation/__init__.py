@@ -1,0 +1,15 @@
+"""Valuation core: pure numpy/scipy pricing functions on arrays.
+
+No dates, files or pandas live here.  Terms and vesting are in years; rates
+and dividend yields are continuously compounded decimals per year; volatility
+is a decimal per square-root year.  Every public function checks and
+broadcasts its inputs, values a whole batch per call and returns a float for
+scalar inputs.
+"""
+
+from grantval.valuation.bsm import bsm_value
+from grantval.valuation.lattice import DEFAULT_STEPS, lattice_value
+from grantval.valuation.rsu import rsu_value
+from grantval.valuation.terms import simplified_term
+
+__all__ = ["bsm_value", "lattice_value", "simplified_term", "rsu_value", "DEFAULT_STEPS"]
