@@ -8,6 +8,7 @@ contains accounting or pricing logic of its own.
 
 from __future__ import annotations
 
+import pathlib
 import sys
 from typing import Optional
 
@@ -74,6 +75,61 @@ def price_option(
     except GrantvalError as err:
         fail(err)
     typer.echo(f"{value:.6f}")
+
+
+@app.command("check")
+def check_cmd(
+    ledger: pathlib.Path = typer.Argument(..., help="Ledger: a folder of CSV files or an .xlsx workbook."),
+) -> None:
+    """Check a ledger and list every problem; exit 0 when there are no errors, 1 otherwise."""
+    from grantval import api
+
+    try:
+        report = api.check(ledger)
+    except GrantvalError as err:
+        fail(err)
+    for p in report.problems:
+        typer.echo(str(p), err=p.severity == "error")
+    if not report.ok:
+        typer.echo(f"{ledger}: {len(report.errors)} error(s), {len(report.warnings)} warning(s)", err=True)
+        raise typer.Exit(1)
+    n = report.ledger.n_grants
+    typer.echo(f"{ledger}: {n} grants, {len(report.ledger.tranches)} tranches, "
+               f"{len(report.ledger.events)} events; no errors, {len(report.warnings)} warning(s)")
+
+
+@app.command("value")
+def value_cmd(
+    ledger: pathlib.Path = typer.Argument(..., help="Ledger: a folder of CSV files or an .xlsx workbook."),
+    output: Optional[pathlib.Path] = typer.Option(None, "-o", "--output", help="Workbook to write (.xlsx)."),
+    csv_dir: Optional[pathlib.Path] = typer.Option(None, "--csv-dir", help="Also write fair_values.csv here."),
+    valuation_unit: Optional[str] = typer.Option(None, help="award or tranche (overrides the ledger's policy)."),
+    lattice_steps: Optional[int] = typer.Option(None, help="Lattice time steps (overrides the ledger's policy)."),
+) -> None:
+    """Value every grant at its grant date and write the fair-value table."""
+    from grantval import api
+
+    if output is None and csv_dir is None:
+        usage("give -o WORKBOOK.xlsx, --csv-dir DIR, or both")
+    if output is not None and output.suffix.lower() != ".xlsx":
+        usage(f"-o {output}: the workbook name must end in .xlsx")
+    try:
+        run = api.value(ledger, valuation_unit=valuation_unit, lattice_steps=lattice_steps)
+        written = api.write_fair_values(run, output, csv_dir)
+    except GrantvalError as err:
+        fail(err)
+    fv = run.fair_values
+    total = float(fv.table["grant_date_fair_value"].sum())
+    typer.echo(f"valued {run.ledger.n_grants} grants ({fv.distinct_valuations} distinct valuations); "
+               f"total grant-date fair value {total:,.2f}")
+    for path in written:
+        typer.echo(f"wrote {path}")
+
+
+def usage(message: str) -> None:
+    """Report a usage problem and exit 2."""
+    typer.echo(f"error: {message}", err=True)
+    raise typer.Exit(2)
 
 
 def main(argv: Optional[list[str]] = None) -> None:

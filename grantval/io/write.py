@@ -1,0 +1,233 @@
+"""Writing CSV files and Excel workbooks, atomically and deterministically.
+
+- Every output is written to a temporary file beside its target and renamed
+  into place only when complete, so a failure never leaves a partial file.
+- An output path that is one of the inputs is refused.
+- Text that begins with ``=``, ``+``, ``-`` or ``@`` is never written as a
+  formula: in workbooks it is stored as a text cell; in CSV files it is
+  prefixed with an apostrophe (the usual guard against formula injection when
+  a CSV file is opened in a spreadsheet).
+- CSV numbers are written in Python's shortest round-trip form, dates as
+  ISO text, missing values as empty fields; the same inputs give the same bytes.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import csv
+import datetime as _dt
+import math
+import os
+import pathlib
+import tempfile
+from dataclasses import dataclass, field
+from typing import Iterator, Sequence
+
+import numpy as np
+import pandas as pd
+
+from grantval.errors import OutputError
+
+_FORMULA_START = ("=", "+", "-", "@")
+
+
+def refuse_overwriting_inputs(outputs: Sequence[pathlib.Path], inputs: Sequence[str]) -> None:
+    """Raise :class:`OutputError` when an output path is one of the input files or folders."""
+    ins = []
+    for i in inputs:
+        p = pathlib.Path(i).resolve()
+        ins.append(p)
+    for o in outputs:
+        op = pathlib.Path(o).resolve()
+        for ip in ins:
+            if op == ip:
+                raise OutputError(f"the output {o} is one of the inputs; choose another path")
+
+
+@contextlib.contextmanager
+def atomic_path(target: pathlib.Path) -> Iterator[pathlib.Path]:
+    """Yield a temporary path beside ``target``; rename it to ``target`` on success."""
+    target = pathlib.Path(target)
+    if target.exists() and target.is_dir():
+        raise OutputError(f"the output {target} is a folder; give a file name")
+    parent = target.parent if str(target.parent) else pathlib.Path(".")
+    if not parent.exists():
+        raise OutputError(f"the folder {parent} for the output {target.name} does not exist")
+    fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".part", dir=parent)
+    os.close(fd)
+    tmp_path = pathlib.Path(tmp)
+    try:
+        yield tmp_path
+        os.replace(tmp_path, target)
+    except BaseException:
+        with contextlib.suppress(OSError):
+            tmp_path.unlink()
+        raise
+
+
+def csv_text(value) -> str:
+    """The CSV field for one value."""
+    if value is None:
+        return ""
+    if isinstance(value, (float, np.floating)):
+        if math.isnan(value):
+            return ""
+        v = float(value)
+        return repr(int(v)) if v.is_integer() and abs(v) < 1e15 else repr(v)
+    if isinstance(value, (bool, np.bool_)):
+        return "true" if value else "false"
+    if isinstance(value, (int, np.integer)):
+        return str(int(value))
+    if isinstance(value, np.datetime64):
+        return "" if np.isnat(value) else str(value.astype("datetime64[D]"))
+    if isinstance(value, (_dt.date, _dt.datetime, pd.Timestamp)):
+        if value is pd.NaT:
+            return ""
+        return value.date().isoformat() if isinstance(value, (_dt.datetime, pd.Timestamp)) else value.isoformat()
+    text = str(value)
+    if text.startswith(_FORMULA_START):
+        return "'" + text
+    return text
+
+
+def _column_values(series: pd.Series) -> list:
+    arr = series.to_numpy()
+    if np.issubdtype(arr.dtype, np.datetime64):
+        return list(arr.astype("datetime64[D]"))
+    return list(arr)
+
+
+def write_csv(path: pathlib.Path, frame: pd.DataFrame) -> None:
+    """Write ``frame`` to ``path`` atomically with snake_case headers as given."""
+    cols = [_column_values(frame[c]) for c in frame.columns]
+    with atomic_path(path) as tmp, open(tmp, "w", newline="", encoding="utf-8") as fh:
+        w = csv.writer(fh, lineterminator="\n")
+        w.writerow(list(frame.columns))
+        for row in zip(*cols):
+            w.writerow([csv_text(v) for v in row])
+
+
+@dataclass
+class Sheet:
+    """One worksheet to write.
+
+    Attributes
+    ----------
+    name : str
+        Sheet title.
+    frame : DataFrame, optional
+        A table written with a header row (labels from ``labels`` or the
+        column names made readable), frozen and filtered.
+    rows : list of list, optional
+        Free-form rows (for notes and summaries), written as given; a string
+        starting with ``=`` in a row from ``formula_rows`` is a formula.
+    formats : dict
+        Column name -> Excel number format.
+    widths : dict
+        Column name (or 1-based column number for ``rows``) -> width.
+    text_columns : tuple of str
+        Columns whose values came from the ledger: always stored as text.
+    """
+
+    name: str
+    frame: pd.DataFrame | None = None
+    rows: list[list] | None = None
+    formats: dict[str, str] = field(default_factory=dict)
+    widths: dict = field(default_factory=dict)
+    labels: dict[str, str] = field(default_factory=dict)
+    text_columns: tuple[str, ...] = ()
+    formula_rows: frozenset = frozenset()
+
+
+def label(column: str) -> str:
+    """Readable header for a snake_case column name."""
+    text = column.replace("_", " ")
+    return text[:1].upper() + text[1:]
+
+
+def _cell_value(v):
+    if v is None:
+        return None
+    if isinstance(v, (float, np.floating)):
+        return None if math.isnan(v) else float(v)
+    if isinstance(v, (np.integer,)):
+        return int(v)
+    if isinstance(v, np.datetime64):
+        return None if np.isnat(v) else v.astype("datetime64[D]").astype(_dt.date)
+    if isinstance(v, pd.Timestamp):
+        return None if v is pd.NaT else v.date()
+    if isinstance(v, np.bool_):
+        return bool(v)
+    return v
+
+
+def write_workbook(path: pathlib.Path, sheets: Sequence[Sheet], fixed_time: _dt.datetime | None = None) -> None:
+    """Write ``sheets`` to an .xlsx workbook atomically (openpyxl write-only mode).
+
+    ``fixed_time`` sets the workbook's created/modified properties (for
+    reproducible files); default is the current time.
+    """
+    from openpyxl import Workbook
+    from openpyxl.cell import WriteOnlyCell
+    from openpyxl.styles import Alignment, Font
+    from openpyxl.utils import get_column_letter
+
+    wb = Workbook(write_only=True)
+    stamp = fixed_time or _dt.datetime.now().replace(microsecond=0)
+    wb.properties.created = stamp
+    wb.properties.modified = stamp
+    wb.properties.creator = "grantval"
+    bold = Font(bold=True)
+    for sh in sheets:
+        ws = wb.create_sheet(sh.name)
+        if sh.frame is not None:
+            cols = list(sh.frame.columns)
+            for j, c in enumerate(cols, start=1):
+                width = sh.widths.get(c, max(10, min(40, len(sh.labels.get(c, label(c))) + 2)))
+                ws.column_dimensions[get_column_letter(j)].width = width
+            ws.freeze_panes = "A2"
+            if len(sh.frame):
+                ws.auto_filter.ref = f"A1:{get_column_letter(len(cols))}{len(sh.frame) + 1}"
+            header = []
+            for c in cols:
+                cell = WriteOnlyCell(ws, value=sh.labels.get(c, label(c)))
+                cell.font = bold
+                cell.alignment = Alignment(wrap_text=True, vertical="top")
+                header.append(cell)
+            ws.append(header)
+            values = [_column_values(sh.frame[c]) for c in cols]
+            fmts = [sh.formats.get(c) for c in cols]
+            texts = [c in sh.text_columns for c in cols]
+            for row in zip(*values):
+                out = []
+                for v, fmt, is_text in zip(row, fmts, texts):
+                    v = _cell_value(v)
+                    if isinstance(v, str) or is_text:
+                        cell = WriteOnlyCell(ws, value=None if v is None else str(v))
+                        if v is not None:
+                            cell.data_type = "s"  # never a formula
+                        out.append(cell)
+                    elif fmt and v is not None:
+                        cell = WriteOnlyCell(ws, value=v)
+                        cell.number_format = fmt
+                        out.append(cell)
+                    else:
+                        out.append(v)
+                ws.append(out)
+        if sh.rows is not None:
+            for j, w in sh.widths.items():
+                if isinstance(j, int):
+                    ws.column_dimensions[get_column_letter(j)].width = w
+            for i, row in enumerate(sh.rows):
+                out = []
+                for v in row:
+                    v = _cell_value(v)
+                    if isinstance(v, str) and i not in sh.formula_rows:
+                        cell = WriteOnlyCell(ws, value=v)
+                        cell.data_type = "s"
+                        out.append(cell)
+                    else:
+                        out.append(v)
+                ws.append(out)
+    with atomic_path(path) as tmp:
+        wb.save(tmp)

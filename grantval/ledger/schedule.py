@@ -1,0 +1,76 @@
+"""Vesting tranches of each grant, generated from its schedule or taken from the ledger."""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+from grantval.dates import add_months
+
+
+def generate_tranches(grants: pd.DataFrame) -> pd.DataFrame:
+    """Tranches of every grant from ``vest_months``, ``vest_every_months`` and ``cliff_months``.
+
+    Tranche k (k = 1..n, n = vest_months / vest_every_months) vests
+    ``vest_every_months * k`` months after ``vest_start_date`` (same day of
+    month, clamped to the month's end) with quantity
+    ``floor(q k / n) - floor(q (k - 1) / n)``, so the tranches sum to q.
+    Tranches falling before the cliff (``cliff_months`` after the vesting
+    start) vest together at the cliff.  ``vest_months == 0`` is one tranche
+    at the vesting start.  Vectorised over grants.
+
+    Parameters
+    ----------
+    grants : DataFrame
+        Valid grants with integer ``quantity``, ``vest_months``,
+        ``vest_every_months``, ``cliff_months`` and date ``vest_start_date``.
+
+    Returns
+    -------
+    DataFrame
+        ``grant_idx`` (position in ``grants``), ``tranche`` (1-based),
+        ``vest_date`` (datetime64[D]), ``quantity`` (int64), sorted by grant
+        then vest date.
+    """
+    q = grants["quantity"].to_numpy(np.int64)
+    months = grants["vest_months"].to_numpy(np.int64)
+    every = grants["vest_every_months"].to_numpy(np.int64)
+    cliff = grants["cliff_months"].to_numpy(np.int64)
+    start = grants["vest_start_date"].to_numpy("datetime64[D]")
+    n = np.where(months == 0, 1, months // np.maximum(every, 1))
+    gidx = np.repeat(np.arange(len(grants)), n)
+    first = np.cumsum(n) - n
+    k = np.arange(gidx.size) - np.repeat(first, n) + 1
+    nn = n[gidx]
+    qq = q[gidx]
+    qty = (qq * k) // nn - (qq * (k - 1)) // nn
+    offset = np.where(months[gidx] == 0, 0, every[gidx] * k)
+    vest = add_months(start[gidx], offset)
+    cliff_date = add_months(start, cliff)[gidx]
+    vest = np.maximum(vest, cliff_date)
+    frame = pd.DataFrame({"grant_idx": gidx, "vest_date": vest, "quantity": qty})
+    merged = frame.groupby(["grant_idx", "vest_date"], sort=True, as_index=False)["quantity"].sum()
+    merged = merged[merged["quantity"] > 0].reset_index(drop=True)
+    return _number(merged)
+
+
+def _number(frame: pd.DataFrame) -> pd.DataFrame:
+    frame = frame.sort_values(["grant_idx", "vest_date"], kind="stable").reset_index(drop=True)
+    frame["tranche"] = frame.groupby("grant_idx").cumcount() + 1
+    frame["quantity"] = frame["quantity"].astype(np.int64)
+    frame["vest_date"] = frame["vest_date"].to_numpy("datetime64[D]")
+    return frame[["grant_idx", "tranche", "vest_date", "quantity"]]
+
+
+def combine_schedules(generated: pd.DataFrame, given: pd.DataFrame | None) -> pd.DataFrame:
+    """Replace the generated tranches of grants that the ledger's ``tranches`` table names.
+
+    ``given`` has ``grant_idx``, ``vest_date`` and ``quantity``; rows of the
+    same grant and date are added together.
+    """
+    if given is None or given.empty:
+        return generated
+    named = np.unique(given["grant_idx"].to_numpy())
+    kept = generated[~generated["grant_idx"].isin(named)]
+    g = given.groupby(["grant_idx", "vest_date"], as_index=False)["quantity"].sum()
+    return _number(pd.concat([kept, g[["grant_idx", "vest_date", "quantity"]]], ignore_index=True))

@@ -1,0 +1,276 @@
+"""Checks across the rows and tables of a ledger.
+
+Every function returns the problems it finds and never stops at the first;
+:func:`grantval.ledger.load.read_ledger` gathers them all.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+from grantval.dates import year_fraction
+from grantval.errors import Problem
+from grantval.ledger.schema import RATE_MAX, RATE_MIN, VOLATILITY_MAX
+
+
+def _at(frame: pd.DataFrame, mask) -> list[int]:
+    return frame["_row"].to_numpy()[np.asarray(mask, dtype=bool)].tolist()
+
+
+def check_grants(g: pd.DataFrame, src: str) -> list[Problem]:
+    """Row checks of the grants table (after typing)."""
+    p: list[Problem] = []
+    ids = g["grant_id"]
+    dup = ids.duplicated(keep="first") & ids.notna()
+    if dup.any():
+        first_row = dict(zip(ids[~dup], g["_row"][~dup]))
+        for r, gid in zip(g["_row"][dup], ids[dup]):
+            p.append(Problem(src, int(r), "grant_id", f"{gid!r} is used twice (first in row {first_row.get(gid)})"))
+    q = g["quantity"].to_numpy()
+    for r, x in zip(_at(g, q <= 0), q[q <= 0]):
+        p.append(Problem(src, r, "quantity", f"must be a positive whole number; got {x:g}"))
+    option = (g["award_type"] == "option").to_numpy()
+    price = g["exercise_price"].to_numpy()
+    exp = g["expiration_date"].to_numpy("datetime64[D]")
+    gd = g["grant_date"].to_numpy("datetime64[D]")
+    for r in _at(g, option & np.isnan(price)):
+        p.append(Problem(src, r, "exercise_price", "is required for an option grant"))
+    for r, x in zip(_at(g, option & (price <= 0)), price[option & (price <= 0)]):
+        p.append(Problem(src, r, "exercise_price", f"must be greater than zero; got {x:g}"))
+    for r in _at(g, option & np.isnat(exp)):
+        p.append(Problem(src, r, "expiration_date", "is required for an option grant"))
+    bad = ~np.isnat(exp) & ~np.isnat(gd) & (exp <= gd)
+    for r, e, d in zip(_at(g, bad), exp[bad], gd[bad]):
+        p.append(Problem(src, r, "expiration_date", f"{e} is not after the grant date {d}"))
+    months = g["vest_months"].to_numpy()
+    every = g["vest_every_months"].to_numpy()
+    cliff = g["cliff_months"].to_numpy()
+    for r, x in zip(_at(g, months < 0), months[months < 0]):
+        p.append(Problem(src, r, "vest_months", f"must be zero or more; got {x:g}"))
+    for r, x in zip(_at(g, every < 1), every[every < 1]):
+        p.append(Problem(src, r, "vest_every_months", f"must be at least 1; got {x:g}"))
+    with np.errstate(invalid="ignore", divide="ignore"):
+        notmult = (every >= 1) & (months >= 0) & (np.mod(months, np.where(every >= 1, every, 1)) != 0)
+    for r, m, e in zip(_at(g, notmult), months[notmult], every[notmult]):
+        p.append(Problem(src, r, "vest_months", f"{m:g} is not a multiple of vest_every_months ({e:g})"))
+    for r, x in zip(_at(g, cliff < 0), cliff[cliff < 0]):
+        p.append(Problem(src, r, "cliff_months", f"must be zero or more; got {x:g}"))
+    over = (cliff > months) & (months >= 0)
+    for r, c, m in zip(_at(g, over), cliff[over], months[over]):
+        p.append(Problem(src, r, "cliff_months", f"{c:g} is more than vest_months ({m:g})"))
+    return p
+
+
+def schedule_ok(g: pd.DataFrame) -> np.ndarray:
+    """Grants whose schedule columns are valid enough to generate tranches."""
+    months = g["vest_months"].to_numpy()
+    every = g["vest_every_months"].to_numpy()
+    cliff = g["cliff_months"].to_numpy()
+    ok = ~np.isnan(months) & ~np.isnan(every) & ~np.isnan(cliff) & ~np.isnan(g["quantity"].to_numpy())
+    ok &= (months >= 0) & (every >= 1) & (cliff >= 0) & (cliff <= months) & (g["quantity"].to_numpy() > 0)
+    with np.errstate(invalid="ignore"):
+        ok &= np.mod(np.nan_to_num(months), np.where(every >= 1, every, 1)) == 0
+    ok &= ~np.isnat(g["vest_start_date"].to_numpy("datetime64[D]"))
+    return ok
+
+
+def check_last_vest(g: pd.DataFrame, tranches: pd.DataFrame, src: str) -> list[Problem]:
+    """Options must not vest after they expire."""
+    p: list[Problem] = []
+    if tranches.empty:
+        return p
+    last = tranches.groupby("grant_idx")["vest_date"].max()
+    idx = last.index.to_numpy()
+    exp = g["expiration_date"].to_numpy("datetime64[D]")[idx]
+    lv = last.to_numpy("datetime64[D]")
+    bad = ~np.isnat(exp) & (lv > exp)
+    rows = g["_row"].to_numpy()[idx]
+    for r, v, e in zip(rows[bad], lv[bad], exp[bad]):
+        p.append(Problem(src, int(r), "expiration_date", f"the last tranche vests on {v}, after the expiration date {e}"))
+    return p
+
+
+def check_assumptions(a: pd.DataFrame, src: str) -> list[Problem]:
+    """Row checks of the assumptions table."""
+    p: list[Problem] = []
+    key_set = a["assumption_set"].notna().to_numpy()
+    key_date = ~np.isnat(a["grant_date"].to_numpy("datetime64[D]"))
+    for r in _at(a, ~key_set & ~key_date):
+        p.append(Problem(src, r, "assumption_set", "each row needs an assumption_set name or a grant_date"))
+    named = a[key_set]
+    dup = named["assumption_set"].duplicated()
+    for r, k in zip(named["_row"][dup], named["assumption_set"][dup]):
+        p.append(Problem(src, int(r), "assumption_set", f"{k!r} is defined twice"))
+    dated = a[~key_set & key_date]
+    dupd = dated["grant_date"].duplicated()
+    for r, k in zip(dated["_row"][dupd], dated["grant_date"][dupd]):
+        p.append(Problem(src, int(r), "grant_date", f"{np.datetime64(k, 'D')} has two rows of assumptions"))
+
+    def rule(col, bad_mask, words):
+        vals = a[col].to_numpy()
+        for r, x in zip(_at(a, bad_mask), vals[np.asarray(bad_mask)]):
+            p.append(Problem(src, r, col, f"{words}; got {x:g}"))
+
+    s = a["share_price"].to_numpy()
+    rule("share_price", s <= 0, "must be greater than zero")
+    v = a["volatility"].to_numpy()
+    rule("volatility", (v <= 0) | (v > VOLATILITY_MAX),
+         f"must be greater than 0 and at most {VOLATILITY_MAX:g} (a decimal: 0.35 is 35%)")
+    rf = a["risk_free_rate"].to_numpy()
+    rule("risk_free_rate", (rf < RATE_MIN) | (rf > RATE_MAX),
+         f"must be between {RATE_MIN:g} and {RATE_MAX:g} (a decimal: 0.04 is 4%)")
+    q = a["dividend_yield"].to_numpy()
+    rule("dividend_yield", q < 0, "must be zero or more")
+    te = a["expected_term_years"].to_numpy()
+    rule("expected_term_years", te <= 0, "must be greater than zero")
+    fv = a["fair_value"].to_numpy()
+    rule("fair_value", fv < 0, "must be zero or more")
+    bsm = (a["model"] == "bsm").to_numpy()
+    em = a["exercise_multiple"].to_numpy()
+    ex = a["post_vest_exit_rate"].to_numpy()
+    for col, vals in (("exercise_multiple", em), ("post_vest_exit_rate", ex)):
+        for r in _at(a, bsm & ~np.isnan(vals)):
+            p.append(Problem(src, r, col, "is a lattice parameter but the row's model is bsm; set model to lattice or clear it"))
+    rule("exercise_multiple", ~bsm & (em < 1), "must be at least 1")
+    rule("post_vest_exit_rate", ~bsm & (ex < 0), "must be zero or more")
+    lat = (a["model"] == "lattice").to_numpy()
+    for r in _at(a, lat & ~np.isnan(te)):
+        p.append(Problem(src, r, "expected_term_years",
+                         "is not used by the lattice, which runs to the contractual term; leave it blank"))
+    return p
+
+
+def match_assumptions(g: pd.DataFrame, a: pd.DataFrame, gsrc: str) -> tuple[np.ndarray, list[Problem]]:
+    """Row of ``assumptions`` for each grant (-1 when none), with problems."""
+    p: list[Problem] = []
+    pos = np.full(len(g), -1, dtype=np.int64)
+    key_set = a["assumption_set"].notna().to_numpy()
+    by_name = {k: i for i, k in zip(np.flatnonzero(key_set)[::-1], a["assumption_set"][key_set][::-1])}
+    dates = a["grant_date"].to_numpy("datetime64[D]")
+    by_date = {d: i for i, d in zip(np.flatnonzero(~key_set)[::-1], dates[~key_set][::-1]) if not np.isnat(d)}
+    sets = g["assumption_set"].to_numpy()
+    gd = g["grant_date"].to_numpy("datetime64[D]")
+    rows = g["_row"].to_numpy()
+    for i in range(len(g)):
+        name = sets[i]
+        if name is not None and not (isinstance(name, float)):
+            j = by_name.get(name, -1)
+            if j < 0:
+                p.append(Problem(gsrc, int(rows[i]), "assumption_set", f"{name!r} is not an assumption_set in the assumptions table"))
+        else:
+            if np.isnat(gd[i]):
+                continue
+            j = by_date.get(gd[i], -1)
+            if j < 0:
+                p.append(Problem(gsrc, int(rows[i]), "grant_date",
+                                 f"no assumptions row has grant_date {gd[i]} (and assumption_set is blank)"))
+        pos[i] = j
+    return pos, p
+
+
+def check_grant_assumptions(g: pd.DataFrame, a: pd.DataFrame, pos: np.ndarray, asrc: str) -> list[Problem]:
+    """Checks that need both a grant and its assumptions row."""
+    p: list[Problem] = []
+    ok = pos >= 0
+    if not ok.any():
+        return p
+    gi = np.flatnonzero(ok)
+    ai = pos[ok]
+    option = (g["award_type"].to_numpy()[gi] == "option")
+    supplied = ~np.isnan(a["fair_value"].to_numpy()[ai])
+    need = option & ~supplied
+    reported: set[tuple[int, str]] = set()
+    for col in ("volatility", "risk_free_rate"):
+        missing = need & np.isnan(a[col].to_numpy()[ai])
+        for j, gidx in zip(ai[missing], gi[missing]):
+            if (j, col) in reported:
+                continue
+            reported.add((j, col))
+            p.append(Problem(asrc, int(a["_row"].iat[j]), col,
+                             f"is required for option grants valued by the tool (used by grant {g['grant_id'].iat[gidx]})"))
+    te = a["expected_term_years"].to_numpy()[ai]
+    contract = year_fraction(g["grant_date"].to_numpy("datetime64[D]")[gi], g["expiration_date"].to_numpy("datetime64[D]")[gi])
+    longer = option & ~np.isnan(te) & ~np.isnan(contract) & (te > contract + 1e-9)
+    for j, gidx, t, c in zip(ai[longer], gi[longer], te[longer], contract[longer]):
+        key = (j, "expected_term_years")
+        if key in reported:
+            continue
+        reported.add(key)
+        p.append(Problem(asrc, int(a["_row"].iat[j]), "expected_term_years",
+                         f"{t:g} years is longer than the contractual term {c:.4f} years of grant {g['grant_id'].iat[gidx]}"))
+    return p
+
+
+def check_tranches_table(t: pd.DataFrame, g: pd.DataFrame, src: str) -> tuple[pd.DataFrame, list[Problem]]:
+    """Tranches given in the ledger: known grants, positive quantities, sums equal to the grant."""
+    p: list[Problem] = []
+    index = {k: i for i, k in enumerate(g["grant_id"])}
+    gpos = np.array([index.get(k, -1) for k in t["grant_id"]], dtype=np.int64)
+    for r, k in zip(_at(t, (gpos < 0) & t["grant_id"].notna().to_numpy()), t["grant_id"][(gpos < 0) & t["grant_id"].notna()]):
+        p.append(Problem(src, r, "grant_id", f"{k!r} is not a grant in the grants table"))
+    q = t["quantity"].to_numpy()
+    for r, x in zip(_at(t, q <= 0), q[q <= 0]):
+        p.append(Problem(src, r, "quantity", f"must be a positive whole number; got {x:g}"))
+    ok = (gpos >= 0) & ~np.isnan(q) & ~np.isnat(t["vest_date"].to_numpy("datetime64[D]"))
+    given = pd.DataFrame({"grant_idx": gpos[ok], "vest_date": t["vest_date"].to_numpy("datetime64[D]")[ok],
+                          "quantity": q[ok].astype(np.int64), "_row": t["_row"].to_numpy()[ok]})
+    sums = given.groupby("grant_idx").agg(total=("quantity", "sum"), row=("_row", "min"))
+    gq = g["quantity"].to_numpy()
+    for gidx, total, row in zip(sums.index, sums["total"], sums["row"]):
+        if not np.isnan(gq[gidx]) and total != gq[gidx]:
+            p.append(Problem(src, int(row), "quantity",
+                             f"the tranches of grant {g['grant_id'].iat[gidx]} sum to {total}, not its quantity {gq[gidx]:g}"))
+    return given, p
+
+
+def check_estimates(e: pd.DataFrame, g: pd.DataFrame, src: str) -> list[Problem]:
+    """Forfeiture estimates: exactly one estimate column, sensible values, a known target."""
+    p: list[Problem] = []
+    rate = e["annual_forfeiture_rate"].to_numpy()
+    frac = e["expected_vest_fraction"].to_numpy()
+    both = ~np.isnan(rate) & ~np.isnan(frac)
+    neither = np.isnan(rate) & np.isnan(frac)
+    for r in _at(e, both):
+        p.append(Problem(src, r, "annual_forfeiture_rate", "give either annual_forfeiture_rate or expected_vest_fraction, not both"))
+    for r in _at(e, neither):
+        p.append(Problem(src, r, "annual_forfeiture_rate", "give one of annual_forfeiture_rate or expected_vest_fraction"))
+    for r, x in zip(_at(e, (rate < 0) | (rate >= 1)), rate[(rate < 0) | (rate >= 1)]):
+        p.append(Problem(src, r, "annual_forfeiture_rate", f"must be at least 0 and below 1 (a decimal: 0.05 is 5%); got {x:g}"))
+    for r, x in zip(_at(e, (frac <= 0) | (frac > 1)), frac[(frac <= 0) | (frac > 1)]):
+        p.append(Problem(src, r, "expected_vest_fraction", f"must be above 0 and at most 1; got {x:g}"))
+    ids = set(g["grant_id"].dropna())
+    groups = set(g["group"].dropna())
+    for r, k in zip(e["_row"], e["applies_to"]):
+        if k is None or k == "*" or k in ids or k in groups:
+            continue
+        p.append(Problem(src, int(r), "applies_to", f"{k!r} is not a grant_id, a group or '*'"))
+    key = e[["applies_to", "effective_date"]].astype(str)
+    dup = key.duplicated()
+    for r, k, d in zip(e["_row"][dup], e["applies_to"][dup], e["effective_date"][dup]):
+        p.append(Problem(src, int(r), "effective_date", f"{k!r} already has an estimate effective {np.datetime64(d, 'D')}"))
+    return p
+
+
+def fill_grant_defaults(g: pd.DataFrame) -> pd.DataFrame:
+    """Apply the documented defaults (vest start = grant date)."""
+    g = g.copy()
+    vs = g["vest_start_date"].to_numpy("datetime64[D]").copy()
+    gd = g["grant_date"].to_numpy("datetime64[D]")
+    vs[np.isnat(vs)] = gd[np.isnat(vs)]
+    g["vest_start_date"] = vs
+    g["group"] = g["group"].where(g["group"].notna(), "")
+    return g
+
+
+__all__ = [
+    "check_grants",
+    "check_assumptions",
+    "match_assumptions",
+    "check_grant_assumptions",
+    "check_tranches_table",
+    "check_estimates",
+    "check_last_vest",
+    "schedule_ok",
+    "fill_grant_defaults",
+]

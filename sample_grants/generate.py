@@ -1,0 +1,155 @@
+"""Build the demo ledger of Corvane Instruments, Inc., a fictional company.
+
+Everything here is invented for the demonstration.  Run from the project
+root to rewrite the CSV files and ``sample_grants.xlsx``::
+
+    python sample_grants/generate.py
+
+The script is seeded, so it always writes the same ledger.
+"""
+
+from __future__ import annotations
+
+import csv
+import datetime as dt
+import pathlib
+
+import numpy as np
+
+HERE = pathlib.Path(__file__).parent
+RNG = np.random.default_rng(20240215)
+
+GRANT_DATES = ["2024-02-15", "2024-05-15", "2024-08-15", "2024-11-15", "2025-02-18", "2025-05-15",
+               "2025-08-15", "2025-11-17", "2026-02-17", "2026-05-15", "2026-08-17"]
+PRICES = [18.40, 19.85, 17.60, 21.10, 23.45, 22.80, 25.30, 27.15, 26.40, 29.90, 31.25]
+LATTICE_DATES = {"2025-08-15", "2026-05-15"}
+GROUPS = ["engineering", "sales", "operations", "finance"]
+SCHEDULES = {  # name: (vest_months, vest_every_months, cliff_months)
+    "annual": (48, 12, 0),
+    "monthly-after-cliff": (48, 1, 12),
+    "cliff": (36, 36, 0),
+    "quarterly-rsu": (48, 3, 12),
+}
+
+
+def add_months(d: dt.date, m: int) -> dt.date:
+    y, mo = divmod(d.month - 1 + m, 12)
+    y += d.year
+    mo += 1
+    import calendar
+
+    return dt.date(y, mo, min(d.day, calendar.monthrange(y, mo)[1]))
+
+
+def tranche_dates(start: dt.date, months: int, every: int, cliff: int, qty: int):
+    n = months // every
+    out: dict[dt.date, int] = {}
+    cliff_date = add_months(start, cliff)
+    for k in range(1, n + 1):
+        d = max(add_months(start, every * k), cliff_date)
+        out[d] = out.get(d, 0) + (qty * k) // n - (qty * (k - 1)) // n
+    return sorted(out.items())
+
+
+def main() -> None:
+    grants, events = [], []
+    gid = 0
+    as_of = dt.date(2026, 11, 30)
+    for di, gdate_s in enumerate(GRANT_DATES):
+        gdate = dt.date.fromisoformat(gdate_s)
+        for _ in range(5 if di % 2 == 0 else 6):
+            gid += 1
+            group = GROUPS[int(RNG.integers(0, 4))]
+            rsu = RNG.random() < 0.3
+            sched = "quarterly-rsu" if rsu else ["annual", "monthly-after-cliff", "cliff"][int(RNG.integers(0, 3))]
+            months, every, cliff = SCHEDULES[sched]
+            qty = int(RNG.integers(8, 61)) * (50 if not rsu else 25)
+            row = {
+                "grant_id": f"CV-{gid:04d}", "holder_id": f"E{1000 + int(RNG.integers(0, 400)):04d}",
+                "group": group, "award_type": "rsu" if rsu else "option", "grant_date": gdate_s,
+                "quantity": qty, "exercise_price": "" if rsu else f"{PRICES[di]:.2f}",
+                "expiration_date": "" if rsu else add_months(gdate, 120).isoformat(),
+                "vest_start_date": "", "vest_months": months, "vest_every_months": every,
+                "cliff_months": cliff, "assumption_set": "",
+            }
+            grants.append(row)
+            tr = tranche_dates(gdate, months, every, cliff, qty)
+            u = RNG.random()
+            if u < 0.18:  # the holder leaves: unvested options forfeit, vested ones lapse 90 days later
+                leave = gdate + dt.timedelta(days=int(RNG.integers(120, 900)))
+                if leave < as_of and any(d > leave for d, _ in tr):
+                    events.append([row["grant_id"], leave.isoformat(), "forfeit", "", ""])
+                    vested = sum(q for d, q in tr if d <= leave)
+                    lapse = leave + dt.timedelta(days=90)
+                    if not rsu and vested and lapse < as_of:
+                        events.append([row["grant_id"], lapse.isoformat(), "expire", "", ""])
+            elif u < 0.40 and not rsu:  # some exercise of what has vested
+                vested_by = [(d, q) for d, q in tr if d <= as_of - dt.timedelta(days=30)]
+                if vested_by:
+                    d0 = vested_by[0][0] + dt.timedelta(days=int(RNG.integers(10, 60)))
+                    avail = sum(q for d, q in tr if d <= d0)
+                    if d0 < as_of and avail:
+                        q = max(1, avail // 2)
+                        price = PRICES[di] * (1.15 + 0.5 * RNG.random())
+                        events.append([row["grant_id"], d0.isoformat(), "exercise", str(q), f"{price:.2f}"])
+    # one executive award valued by an outside firm, on its own assumption set
+    grants.append({
+        "grant_id": "CV-EXEC-01", "holder_id": "E0001", "group": "finance", "award_type": "option",
+        "grant_date": "2025-02-18", "quantity": 40000, "exercise_price": "23.45",
+        "expiration_date": "2035-02-18", "vest_start_date": "2025-01-01", "vest_months": 36,
+        "vest_every_months": 12, "cliff_months": 12, "assumption_set": "exec-2025",
+    })
+    # one award with a hand-written tranche schedule (front-loaded)
+    grants.append({
+        "grant_id": "CV-HIRE-02", "holder_id": "E0002", "group": "engineering", "award_type": "rsu",
+        "grant_date": "2025-05-15", "quantity": 6000, "exercise_price": "", "expiration_date": "",
+        "vest_start_date": "", "vest_months": 24, "vest_every_months": 12, "cliff_months": 0,
+        "assumption_set": "",
+    })
+    tranches = [["CV-HIRE-02", "2025-11-15", "3000"], ["CV-HIRE-02", "2026-05-15", "2000"],
+                ["CV-HIRE-02", "2027-05-15", "1000"]]
+
+    assumptions = []
+    for di, gdate_s in enumerate(GRANT_DATES):
+        year = int(gdate_s[:4])
+        lattice = gdate_s in LATTICE_DATES
+        assumptions.append({
+            "assumption_set": "", "grant_date": gdate_s, "share_price": f"{PRICES[di]:.2f}",
+            "volatility": f"{0.50 - 0.006 * di:.3f}", "risk_free_rate": f"{0.0410 + 0.0012 * ((di * 7) % 5) - 0.002:.4f}",
+            "dividend_yield": "0" if year < 2025 else "0.008",
+            "expected_term_years": "", "model": "lattice" if lattice else "bsm",
+            "exercise_multiple": "2.2" if lattice else "", "post_vest_exit_rate": "0.06" if lattice else "",
+            "fair_value": "",
+        })
+    assumptions.append({
+        "assumption_set": "exec-2025", "grant_date": "", "share_price": "23.45", "volatility": "",
+        "risk_free_rate": "", "dividend_yield": "", "expected_term_years": "", "model": "bsm",
+        "exercise_multiple": "", "post_vest_exit_rate": "", "fair_value": "11.8734",
+    })
+    estimates = [["*", "2024-01-01", "0.08", ""], ["sales", "2024-01-01", "0.14", ""],
+                 ["*", "2026-01-01", "0.07", ""], ["CV-EXEC-01", "2025-02-18", "", "1"]]
+    policy = [["standard", "asc718"], ["attribution", "straight-line"], ["forfeitures", "estimate"],
+              ["period", "quarter"], ["fiscal_year_end_month", "12"], ["valuation_unit", "award"]]
+
+    def write(name, header, rows):
+        with open(HERE / f"{name}.csv", "w", newline="", encoding="utf-8") as fh:
+            w = csv.writer(fh, lineterminator="\n")
+            w.writerow(header)
+            for r in rows:
+                w.writerow([r[h] for h in header] if isinstance(r, dict) else r)
+
+    write("grants", list(grants[0]), grants)
+    write("assumptions", list(assumptions[0]), assumptions)
+    write("tranches", ["grant_id", "vest_date", "quantity"], tranches)
+    write("events", ["grant_id", "event_date", "event_type", "quantity", "share_price"],
+          sorted(events, key=lambda e: (e[1], e[0])))
+    write("estimates", ["applies_to", "effective_date", "annual_forfeiture_rate", "expected_vest_fraction"], estimates)
+    write("policy", ["key", "value"], policy)
+    from grantval.ledger.schema import TABLE_NAMES, TEXT_COLUMNS
+    from grantval.io.convert import csv_folder_to_workbook
+
+    csv_folder_to_workbook(HERE, HERE / "sample_grants.xlsx", TABLE_NAMES, TEXT_COLUMNS)
+
+
+if __name__ == "__main__":
+    main()

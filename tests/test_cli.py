@@ -1,0 +1,97 @@
+"""The command layer: exit codes, outputs, output safety."""
+
+import csv
+import pathlib
+
+import openpyxl
+from typer.testing import CliRunner
+
+from grantval.io.convert import csv_folder_to_workbook
+from grantval.ledger.schema import TABLE_NAMES, TEXT_COLUMNS
+
+from grantval import __version__
+from grantval.cli import app
+from tests.factory import BASE, set_cell, tables, write_ledger
+
+SAMPLE = pathlib.Path(__file__).resolve().parents[1] / "sample_grants"
+runner = CliRunner()
+
+
+def run(*args):
+    return runner.invoke(app, [str(a) for a in args])
+
+
+def test_version():
+    r = run("--version")
+    assert r.exit_code == 0 and __version__ in r.stdout
+
+
+def test_check_sample_ledgers_clean():
+    for ledger in (SAMPLE, SAMPLE / "sample_grants.xlsx"):
+        r = run("check", ledger)
+        assert r.exit_code == 0, r.output
+        assert "no errors" in r.stdout
+
+
+def test_check_lists_every_problem_and_exits_1(tmp_path):
+    data = set_cell(BASE, "grants", 0, "quantity", "0")
+    data = set_cell(data, "grants", 1, "grant_date", "2027/01/01")
+    r = run("check", write_ledger(tmp_path / "l", data))
+    assert r.exit_code == 1
+    assert "grants.csv, row 2, quantity: must be a positive whole number" in r.output
+    assert "grants.csv, row 3, grant_date:" in r.output
+    assert "Traceback" not in r.output
+
+
+def test_value_writes_workbook_and_csv(tmp_path):
+    out = tmp_path / "fv.xlsx"
+    r = run("value", SAMPLE, "-o", out, "--csv-dir", tmp_path / "csv")
+    assert r.exit_code == 0, r.output
+    with open(tmp_path / "csv" / "fair_values.csv", newline="") as fh:
+        rows = list(csv.DictReader(fh))
+    assert {"grant_id", "fair_value_per_unit", "grant_date_fair_value"} <= set(rows[0])
+    wb = openpyxl.load_workbook(out, read_only=True)
+    assert wb.sheetnames == ["fair_values", "notes"]
+    notes = [c for row in wb["notes"].iter_rows(values_only=True) for c in row if c]
+    assert any("qualified accounting staff" in str(c) for c in notes)
+
+
+def test_value_refuses_bad_ledger_and_writes_nothing(tmp_path):
+    data = set_cell(BASE, "grants", 0, "quantity", "abc")
+    out = tmp_path / "fv.xlsx"
+    r = run("value", write_ledger(tmp_path / "l", data), "-o", out, "--csv-dir", tmp_path / "csv")
+    assert r.exit_code == 1
+    assert "grants.csv, row 2, quantity" in r.output
+    assert not out.exists() and not (tmp_path / "csv" / "fair_values.csv").exists()
+    assert not list(tmp_path.glob("*.part"))
+
+
+def test_output_that_is_an_input_is_refused(tmp_path):
+    ledger = write_ledger(tmp_path / "l", tables())
+    r = run("value", ledger, "--csv-dir", ledger, "-o", tmp_path / "x.xlsx")
+    assert r.exit_code == 0  # fair_values.csv is not an input file
+    r = run("value", tmp_path / "l", "--csv-dir", tmp_path / "l")
+    assert r.exit_code == 0
+    wb = tmp_path / "book.xlsx"
+    csv_folder_to_workbook(ledger, wb, TABLE_NAMES, TEXT_COLUMNS)
+    r = run("value", wb, "-o", wb)
+    assert r.exit_code == 1 and "is one of the inputs" in r.output
+
+
+def test_usage_errors_exit_2(tmp_path):
+    assert run("value", SAMPLE).exit_code == 2
+    assert run("value", SAMPLE, "-o", tmp_path / "x.csv").exit_code == 2
+
+
+def test_ledger_text_starting_with_equals_is_text_in_workbook(tmp_path):
+    data = set_cell(BASE, "grants", 0, "holder_id", "=HYPERLINK(\"x\")")
+    data = set_cell(data, "grants", 1, "group", "+ops")
+    out = tmp_path / "fv.xlsx"
+    r = run("value", write_ledger(tmp_path / "l", data), "-o", out, "--csv-dir", tmp_path)
+    assert r.exit_code == 0, r.output
+    wb = openpyxl.load_workbook(out)
+    ws = wb["fair_values"]
+    holder = [c for c in ws[2] if c.value == '=HYPERLINK("x")']
+    assert holder and holder[0].data_type == "s"
+    text = (tmp_path / "fair_values.csv").read_text()
+    assert "'=HYPERLINK" in text and ",'+ops," in text

@@ -1,0 +1,78 @@
+"""Fair values of ledgers against direct calls of the valuation functions."""
+
+import pathlib
+
+import numpy as np
+import pytest
+
+from grantval import api
+from grantval.dates import year_fraction
+from grantval.valuation import bsm_value, lattice_value, rsu_value, simplified_term
+from tests.factory import set_cell, tables, write_ledger
+
+SAMPLE = pathlib.Path(__file__).resolve().parents[1] / "sample_grants"
+
+
+def test_sample_ledger_against_direct_calls():
+    run = api.value(SAMPLE)
+    led, fv = run.ledger, run.fair_values
+    t = fv.table.set_index("grant_id")
+    g = led.grants.set_index("grant_id")
+    a = led.assumptions
+    checked = {"bsm": 0, "lattice": 0, "rsu": 0, "supplied": 0}
+    for i, gid in enumerate(led.grants["grant_id"]):
+        row = a.iloc[led.grant_assumption[i]]
+        tr = led.tranches[led.tranches["grant_idx"] == i]
+        tv = year_fraction(np.full(len(tr), g.at[gid, "grant_date"]), tr["vest_date"].to_numpy())
+        w = tr["quantity"].to_numpy(float)
+        got = t.at[gid, "fair_value_per_unit"]
+        model = t.at[gid, "model"]
+        q = row["dividend_yield"] if not np.isnan(row["dividend_yield"]) else 0.0
+        if model == "supplied":
+            expected = row["fair_value"]
+        elif model == "rsu":
+            expected = np.average(rsu_value(row["share_price"], tv, q), weights=w)
+        else:
+            contract = year_fraction(g.at[gid, "grant_date"], g.at[gid, "expiration_date"])
+            args = (row["share_price"], g.at[gid, "exercise_price"])
+            if model == "bsm":
+                term = simplified_term(tv, contract, weights=w)
+                expected = bsm_value(*args, term, row["risk_free_rate"], row["volatility"], q)
+            else:
+                vals = lattice_value(*args, contract, row["risk_free_rate"], row["volatility"], q, vesting=tv,
+                                     exercise_multiple=row["exercise_multiple"],
+                                     exit_rate=row["post_vest_exit_rate"])
+                expected = np.average(vals, weights=w)
+        assert got == pytest.approx(expected, rel=1e-12), gid
+        assert t.at[gid, "grant_date_fair_value"] == pytest.approx(expected * g.at[gid, "quantity"], rel=1e-12)
+        checked[model] += 1
+    assert all(v > 0 for v in checked.values()), checked
+
+
+def test_tranche_unit_values_each_tranche_with_its_own_term(tmp_path):
+    data = tables(policy=[["key", "value"], ["valuation_unit", "tranche"]])
+    run = api.value(write_ledger(tmp_path / "l", data))
+    t = run.fair_values.table
+    g1 = t[t["grant_id"] == "G1"]
+    assert len(g1) == 4
+    contract = year_fraction(np.datetime64("2027-01-01"), np.datetime64("2037-01-01"))
+    for _, r in g1.iterrows():
+        tv = year_fraction(np.datetime64("2027-01-01"), r["vest_date"])
+        assert r["expected_term_years"] == pytest.approx((tv + contract) / 2)
+        assert r["fair_value_per_unit"] == pytest.approx(bsm_value(10, 10, (tv + contract) / 2, 0.04, 0.4), rel=1e-13)
+
+
+def test_given_expected_term_is_used(tmp_path):
+    data = set_cell(tables(), "assumptions", 0, "expected_term_years", "5.5")
+    run = api.value(write_ledger(tmp_path / "l", data))
+    t = run.fair_values.table.set_index("grant_id")
+    assert t.at["G1", "expected_term_method"] == "given"
+    assert t.at["G1", "fair_value_per_unit"] == pytest.approx(bsm_value(10, 10, 5.5, 0.04, 0.4), rel=1e-14)
+
+
+def test_identical_inputs_are_valued_once(tmp_path):
+    data = tables()
+    data["grants"] = [dict(data["grants"][0], grant_id=f"X{i}", holder_id=f"H{i}") for i in range(300)]
+    run = api.value(write_ledger(tmp_path / "l", data))
+    assert run.fair_values.distinct_valuations == 1
+    assert run.fair_values.table["fair_value_per_unit"].nunique() == 1
