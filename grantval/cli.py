@@ -126,6 +126,44 @@ def value_cmd(
         typer.echo(f"wrote {path}")
 
 
+@app.command("expense")
+def expense_cmd(
+    ledger: pathlib.Path = typer.Argument(..., help="Ledger: a folder of CSV files or an .xlsx workbook."),
+    through: str = typer.Option(..., "--through", help="Last day of the run (ISO date)."),
+    start: Optional[str] = typer.Option(None, "--from", help="First day of the first period (default: start of the first period with a grant)."),
+    forecast_through: Optional[str] = typer.Option(None, "--forecast-through", help="Last day of the forecast."),
+    period: Optional[str] = typer.Option(None, "--period", help="month, quarter or year."),
+    standard: Optional[str] = typer.Option(None, "--standard", help="asc718 or ifrs2."),
+    attribution: Optional[str] = typer.Option(None, "--attribution", help="straight-line or graded."),
+    forfeitures: Optional[str] = typer.Option(None, "--forfeitures", help="estimate or as-occur."),
+    output: Optional[pathlib.Path] = typer.Option(None, "-o", "--output", help="Workbook to write (.xlsx)."),
+    csv_dir: Optional[pathlib.Path] = typer.Option(None, "--csv-dir", help="Also write the CSV tables here."),
+) -> None:
+    """Compute stock-compensation expense by period and write the workbook and CSV tables."""
+    from grantval import api
+
+    if output is None and csv_dir is None:
+        usage("give -o WORKBOOK.xlsx, --csv-dir DIR, or both")
+    if output is not None and output.suffix.lower() != ".xlsx":
+        usage(f"-o {output}: the workbook name must end in .xlsx")
+    try:
+        run = api.expense(ledger, through=through, start=start, forecast_through=forecast_through, period=period,
+                          standard=standard, attribution=attribution, forfeitures=forfeitures)
+        written = api.write_expense(run, output, csv_dir, command=_command_line())
+    except GrantvalError as err:
+        fail(err)
+    total = run.schedule.expense_cents.sum() / 100.0
+    typer.echo(f"{run.ledger.n_grants} grants, {len(run.schedule.period_ends)} periods from {run.start} "
+               f"through {run.through} ({run.policy.standard}, {run.policy.attribution}, {run.policy.forfeitures}); "
+               f"expense {total:,.2f}")
+    for path in written:
+        typer.echo(f"wrote {path}")
+
+
+def _command_line() -> str:
+    return " ".join(["grantval"] + sys.argv[1:])
+
+
 def usage(message: str) -> None:
     """Report a usage problem and exit 2."""
     typer.echo(f"error: {message}", err=True)

@@ -29,3 +29,32 @@ VALUATION_METHODS = [
      "Tranche k vests vest_every_months x k months after vest_start_date (day clamped to month end); "
      "tranche quantities by cumulative rounding, floor(q k / n) - floor(q (k-1) / n)."),
 ]
+
+EXPENSE_RULES = {
+    "straight-line": (
+        "Straight-line over the award's requisite service period (grant date to the last tranche's vest date), "
+        "never less than the grant-date fair value of the tranches vested (ASC 718-10-35-8)."),
+    "graded": (
+        "Graded: each tranche recognised over its own service period, from the grant date to its vest date "
+        "(ASC 718-10-35-8, accelerated method; IFRS 2.IG11)."),
+    "as-occur": (
+        "Forfeitures accounted for when they occur: the cost of forfeited unvested awards is reversed in the "
+        "period of the forfeiture (ASC 718-10-35-3 policy election)."),
+    "estimate": (
+        "Forfeitures estimated: unvested tranches count at the expected-to-vest quantity from the estimates "
+        "table in force at each date (annual rate over the time to vest, or a fraction of the grant), trued up "
+        "to the actual quantity at vesting; a change of estimate is a cumulative catch-up (ASC 718-10-35-3; "
+        "IFRS 2.20)."),
+    "service": (
+        "Service through a date counts that day in full: elapsed = (date + 1 day - grant date) / "
+        "(vest date - grant date), capped at 1; a tranche vesting on or before its grant date is expensed on "
+        "the grant date."),
+    "cancel": (
+        "Cancellation of unvested awards without a replacement: the unrecognised cost is recognised at the "
+        "cancel date (ASC 718-20-35-9; IFRS 2.28(a)). Exercises and expirations of vested awards change no cost."),
+    "rounding": (
+        "Each grant's cumulative cost is rounded to cents at every period end and period expense is the "
+        "difference, so each grant's periods sum exactly to its rounded total."),
+    "forecast": (
+        "The forecast assumes no events after the through date; forfeiture estimates as in force at each date."),
+}

@@ -95,3 +95,36 @@ def test_ledger_text_starting_with_equals_is_text_in_workbook(tmp_path):
     assert holder and holder[0].data_type == "s"
     text = (tmp_path / "fair_values.csv").read_text()
     assert "'=HYPERLINK" in text and ",'+ops," in text
+
+
+def test_expense_on_sample_ledger(tmp_path):
+    out = tmp_path / "e.xlsx"
+    r = run("expense", SAMPLE, "--through", "2026-12-31", "--forecast-through", "2027-12-31", "-o", out,
+            "--csv-dir", tmp_path / "csv")
+    assert r.exit_code == 0, r.output
+    for name in ("expense.csv", "expense_by_group.csv", "tranches.csv", "forecast.csv", "unrecognized.csv"):
+        assert (tmp_path / "csv" / name).exists()
+    wb = openpyxl.load_workbook(out, read_only=True)
+    assert wb.sheetnames == ["summary", "expense_by_grant", "expense_by_group", "tranches", "forecast",
+                             "unrecognized", "notes"]
+    with open(tmp_path / "csv" / "expense.csv", newline="") as fh:
+        rows = list(csv.DictReader(fh))
+    assert list(rows[0]) == ["grant_id", "group", "period_end", "expense", "cumulative_expense"]
+    by_group = {}
+    with open(tmp_path / "csv" / "expense_by_group.csv", newline="") as fh:
+        for row in csv.DictReader(fh):
+            by_group[row["period_end"]] = by_group.get(row["period_end"], 0) + round(float(row["expense"]) * 100)
+    by_grant = {}
+    for row in rows:
+        by_grant[row["period_end"]] = by_grant.get(row["period_end"], 0) + round(float(row["expense"]) * 100)
+    assert by_group == by_grant
+
+
+def test_expense_usage_errors(tmp_path):
+    r = run("expense", SAMPLE, "--through", "31/12/2026", "-o", tmp_path / "e.xlsx")
+    assert r.exit_code == 2 and "--through" in r.output and not (tmp_path / "e.xlsx").exists()
+    r = run("expense", SAMPLE, "--through", "2026-12-31", "--standard", "ifrs2", "--attribution", "straight-line",
+            "-o", tmp_path / "e.xlsx")
+    assert r.exit_code == 2 and "IFRS 2 requires graded" in r.output
+    r = run("expense", SAMPLE, "--through", "2026-12-31", "--period", "week", "-o", tmp_path / "e.xlsx")
+    assert r.exit_code == 2

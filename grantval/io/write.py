@@ -97,14 +97,21 @@ def _column_values(series: pd.Series) -> list:
     return list(arr)
 
 
-def write_csv(path: pathlib.Path, frame: pd.DataFrame) -> None:
-    """Write ``frame`` to ``path`` atomically with snake_case headers as given."""
-    cols = [_column_values(frame[c]) for c in frame.columns]
+def write_csv(path: pathlib.Path, frame: pd.DataFrame, money: Sequence[str] = ()) -> None:
+    """Write ``frame`` to ``path`` atomically with snake_case headers as given.
+
+    Columns named in ``money`` are written with exactly two decimals.
+    """
+    cols = []
+    for c in frame.columns:
+        if c in money:
+            cols.append(["" if math.isnan(v) else f"{v:.2f}" for v in frame[c].to_numpy(float)])
+        else:
+            cols.append([csv_text(v) for v in _column_values(frame[c])])
     with atomic_path(path) as tmp, open(tmp, "w", newline="", encoding="utf-8") as fh:
         w = csv.writer(fh, lineterminator="\n")
         w.writerow(list(frame.columns))
-        for row in zip(*cols):
-            w.writerow([csv_text(v) for v in row])
+        w.writerows(zip(*cols))
 
 
 @dataclass

@@ -1,0 +1,113 @@
+"""Expense by fiscal period: cumulative costs at period ends, rounded to cents."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from grantval.dates import DAY, period_ends
+from grantval.errors import UsageError
+from grantval.expense.engine import Measurement, measure
+from grantval.expense.inputs import ExpenseInputs
+from grantval.policy import Policy
+
+
+def to_cents(amount: np.ndarray) -> np.ndarray:
+    """Round non-negative currency amounts to whole cents (half up) as int64."""
+    return np.floor(np.asarray(amount) * 100.0 + 0.5).astype(np.int64)
+
+
+@dataclass
+class ExpenseSchedule:
+    """Expense of every grant by period.
+
+    Attributes
+    ----------
+    period_ends : ndarray of datetime64[D]
+        Label (last day) of each period; the last one is the through date.
+    window_start : datetime64[D]
+        First day of the first period.
+    cumulative_cents : ndarray, shape (grants, periods)
+        Cumulative cost through each period end, rounded to cents.
+    opening_cents : ndarray, shape (grants,)
+        Cumulative cost through the day before ``window_start``, rounded.
+    expense_cents : ndarray, shape (grants, periods)
+        Period expense: differences of the rounded cumulative amounts, so a
+        grant's periods sum exactly to its rounded total.
+    forecast_ends, forecast_cents : forecast periods after the through date
+        (no further events; estimates as in force at each date).
+    at_through : Measurement
+        Quantities and unrecognised cost at the through date.
+    """
+
+    period_ends: np.ndarray
+    window_start: np.datetime64
+    cumulative_cents: np.ndarray
+    opening_cents: np.ndarray
+    expense_cents: np.ndarray
+    forecast_ends: np.ndarray
+    forecast_cents: np.ndarray
+    at_through: Measurement
+
+
+def _ends(first: np.datetime64, last: np.datetime64, policy: Policy) -> np.ndarray:
+    ends = period_ends(first, last, policy.period, policy.fiscal_year_end_month)
+    ends = ends[(ends >= first) & (ends < last)]
+    return np.append(ends, last).astype("datetime64[D]")
+
+
+def default_start(inp: ExpenseInputs, policy: Policy) -> np.datetime64:
+    """First day of the fiscal period containing the earliest grant date."""
+    first = inp.grant_date.min()
+    end = period_ends(first, first, policy.period, policy.fiscal_year_end_month)[0]
+    months = {"month": 1, "quarter": 3, "year": 12}[policy.period]
+    start_month = (end.astype("datetime64[M]") - np.timedelta64(months - 1, "M"))
+    return start_month.astype("datetime64[D]")
+
+
+def compute_schedule(inp: ExpenseInputs, policy: Policy, through, start=None, forecast_through=None) -> ExpenseSchedule:
+    """Expense by period from ``start`` through ``through`` (and a forecast beyond it).
+
+    Parameters
+    ----------
+    inp : ExpenseInputs
+    policy : Policy
+        Uses attribution, forfeitures, period and fiscal_year_end_month.
+    through : date
+        Last day of the run; the last period ends on it.
+    start : date, optional
+        First day of the first period; default :func:`default_start`.
+    forecast_through : date, optional
+        Last day of the forecast.
+    """
+    through = np.datetime64(through, "D")
+    if inp.n_grants == 0:
+        raise UsageError("the ledger has no grants to expense")
+    start = default_start(inp, policy) if start is None else np.datetime64(start, "D")
+    if start > through:
+        raise UsageError(f"--from {start} is after --through {through}")
+    ends = _ends(start, through, policy)
+    kw = dict(attribution=policy.attribution, forfeitures=policy.forfeitures)
+    opening = to_cents(measure(inp, start - DAY, **kw).grant_cost)
+    cum = np.empty((inp.n_grants, len(ends)), dtype=np.int64)
+    at_through = None
+    for k, d in enumerate(ends):
+        m = measure(inp, d, **kw)
+        cum[:, k] = to_cents(m.grant_cost)
+        at_through = m
+    prev = np.column_stack([opening, cum[:, :-1]])
+    expense = cum - prev
+    if forecast_through is not None:
+        fthrough = np.datetime64(forecast_through, "D")
+        if fthrough <= through:
+            raise UsageError(f"--forecast-through {fthrough} must be after --through {through}")
+        fends = _ends(through + DAY, fthrough, policy)
+        fcum = np.empty((inp.n_grants, len(fends)), dtype=np.int64)
+        for k, d in enumerate(fends):
+            fcum[:, k] = to_cents(measure(inp, d, events_through=through, **kw).grant_cost)
+        fcents = fcum - np.column_stack([cum[:, -1], fcum[:, :-1]])
+    else:
+        fends = np.zeros(0, dtype="datetime64[D]")
+        fcents = np.zeros((inp.n_grants, 0), dtype=np.int64)
+    return ExpenseSchedule(ends, start, cum, opening, expense, fends, fcents, at_through)

@@ -1,0 +1,112 @@
+"""Output tables of an expense run, as DataFrames (no file I/O here)."""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+from grantval.expense.inputs import ExpenseInputs
+from grantval.expense.periods import ExpenseSchedule
+
+
+def money(cents: np.ndarray) -> np.ndarray:
+    """Currency amounts (float) from whole cents."""
+    return np.asarray(cents, dtype=np.int64) / 100.0
+
+
+def period_labels(ends: np.ndarray) -> list[str]:
+    """Column labels of periods: their last day in ISO form."""
+    return [str(d) for d in np.asarray(ends, dtype="datetime64[D]")]
+
+
+def wide_by_grant(inp: ExpenseInputs, award_type, fv_per_unit, quantity, ends, cents) -> pd.DataFrame:
+    """One row per grant, one column per period, and a total column."""
+    frame = pd.DataFrame({
+        "grant_id": inp.grant_id, "group": inp.group, "award_type": award_type,
+        "grant_date": inp.grant_date, "quantity": quantity, "fair_value_per_unit": fv_per_unit,
+    })
+    labels = period_labels(ends)
+    block = pd.DataFrame(money(cents), columns=labels)
+    frame = pd.concat([frame, block], axis=1)
+    frame["total"] = money(cents.sum(axis=1))
+    return frame
+
+
+def wide_by_group(inp: ExpenseInputs, ends, cents) -> pd.DataFrame:
+    """One row per group (blank group shown as '(none)'), one column per period, total."""
+    groups = np.where(inp.group == "", "(none)", inp.group).astype(str)
+    names, inverse = np.unique(groups, return_inverse=True)
+    sums = np.zeros((len(names), cents.shape[1]), dtype=np.int64)
+    np.add.at(sums, inverse, cents)
+    frame = pd.DataFrame({"group": names})
+    frame = pd.concat([frame, pd.DataFrame(money(sums), columns=period_labels(ends))], axis=1)
+    frame["total"] = money(sums.sum(axis=1))
+    return frame, sums
+
+
+def long_expense(inp: ExpenseInputs, sched: ExpenseSchedule) -> pd.DataFrame:
+    """``expense.csv``: grant_id, group, period_end, expense, cumulative_expense (life to date)."""
+    g, p = sched.expense_cents.shape
+    return pd.DataFrame({
+        "grant_id": np.repeat(inp.grant_id, p),
+        "group": np.repeat(inp.group, p),
+        "period_end": np.tile(np.asarray(sched.period_ends, dtype="datetime64[D]"), g),
+        "expense": money(sched.expense_cents.ravel()),
+        "cumulative_expense": money(sched.cumulative_cents.ravel()),
+    })
+
+
+def long_by_group(ends, names, sums) -> pd.DataFrame:
+    """``expense_by_group.csv``: group, period_end, expense."""
+    n, p = sums.shape
+    return pd.DataFrame({
+        "group": np.repeat(names, p),
+        "period_end": np.tile(np.asarray(ends, dtype="datetime64[D]"), n),
+        "expense": money(sums.ravel()),
+    })
+
+
+def long_forecast(inp: ExpenseInputs, sched: ExpenseSchedule) -> pd.DataFrame:
+    """``forecast.csv``: grant_id, group, period_end, expense."""
+    g, p = sched.forecast_cents.shape
+    return pd.DataFrame({
+        "grant_id": np.repeat(inp.grant_id, p),
+        "group": np.repeat(inp.group, p),
+        "period_end": np.tile(np.asarray(sched.forecast_ends, dtype="datetime64[D]"), g),
+        "expense": money(sched.forecast_cents.ravel()),
+    })
+
+
+def tranche_table(inp: ExpenseInputs, sched: ExpenseSchedule, tranche_no) -> pd.DataFrame:
+    """Tranches with their vest dates, quantities, fair values and state at the through date."""
+    m = sched.at_through
+    forfeited = inp.t_qty - m.outstanding - m.cancelled
+    return pd.DataFrame({
+        "grant_id": inp.grant_id[inp.t_grant],
+        "tranche": tranche_no,
+        "vest_date": inp.t_vest,
+        "quantity_granted": inp.t_qty,
+        "forfeited": forfeited.astype(np.int64),
+        "cancelled_unvested": m.cancelled.astype(np.int64),
+        "vested": m.vested,
+        "quantity_expensed": m.n_expensed,
+        "fair_value_per_unit": inp.t_fv,
+        "grant_date_fair_value": inp.t_qty * inp.t_fv,
+        "service_elapsed": m.elapsed,
+    })
+
+
+def unrecognised_table(inp: ExpenseInputs, sched: ExpenseSchedule) -> tuple[pd.DataFrame, float, float]:
+    """Unrecognised cost at the through date by grant, the total and its weighted-average period."""
+    m = sched.at_through
+    cum = money(sched.cumulative_cents[:, -1])
+    unrec_cents = np.maximum(np.floor(m.expected_total * 100 + 0.5).astype(np.int64) - sched.cumulative_cents[:, -1], 0)
+    unrec = money(unrec_cents)
+    frame = pd.DataFrame({
+        "grant_id": inp.grant_id, "group": inp.group,
+        "recognised_to_date": cum, "unrecognised_cost": unrec,
+        "remaining_years": np.where(unrec_cents > 0, m.remaining_years, 0.0),
+    })
+    total = float(unrec_cents.sum()) / 100.0
+    wa = float((unrec * frame["remaining_years"]).sum() / total) if total > 0 else 0.0
+    return frame, total, wa
