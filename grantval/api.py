@@ -14,12 +14,15 @@ from typing import TYPE_CHECKING
 from grantval import __version__
 from grantval.errors import Problem
 from grantval.fairvalue import FairValues, compute_fair_values
-from grantval.io.write import Sheet, refuse_overwriting_inputs, write_csv, write_workbook
+import numpy as np
+
+from grantval.io.write import Formula, Sheet, refuse_overwriting_inputs, write_csv, write_workbook
 from grantval.ledger import Ledger, load_ledger, read_ledger
 from grantval.notes import REVIEW, VALUATION_METHODS
 from grantval.policy import Policy, resolve_policy
 
 if TYPE_CHECKING:  # pragma: no cover
+    from grantval.disclosure import Disclosure
     from grantval.expense.inputs import ExpenseInputs
     from grantval.expense.periods import ExpenseSchedule
 
@@ -207,29 +210,28 @@ def _day(value, option: str):
         raise UsageError(f"{option} {value!r} is not an ISO date (write 2027-03-31)") from None
 
 
-EXPENSE_FORMATS = {"fair_value_per_unit": "#,##0.0000", "quantity": "#,##0", "grant_date": "yyyy-mm-dd",
-                   "vest_date": "yyyy-mm-dd", "quantity_granted": "#,##0", "forfeited": "#,##0",
-                   "cancelled_unvested": "#,##0", "quantity_expensed": "#,##0.00",
-                   "grant_date_fair_value": "#,##0.00", "service_elapsed": "0.00%",
-                   "recognised_to_date": "#,##0.00", "unrecognised_cost": "#,##0.00", "remaining_years": "0.00",
-                   "total": "#,##0.00"}
-MONEY = "#,##0.00;[Red]-#,##0.00"
-
-
 def write_expense(run: ExpenseRun, xlsx: pathlib.Path | None, csv_dir: pathlib.Path | None,
-                  command: str = "") -> list[pathlib.Path]:
-    """Write the expense workbook and/or the CSV files; returns the paths written."""
-    import numpy as np
+                  command: str = "", timestamp: bool = True, share_price: float | None = None) -> "ExpenseOutputs":
+    """Write the expense workbook and/or the CSV files.
 
+    The workbook carries a run sheet, the auditor's fair-value sheet with live
+    BSM formulas, expense sheets whose totals are SUM formulas, a checks sheet
+    and charts; with ``share_price`` also the disclosure sheets.
+
+    Returns
+    -------
+    ExpenseOutputs
+        The paths written and the tie-out checks (the command exits 1 when
+        any fails).
+    """
+    from grantval import workbooks as W
+    from grantval.disclosure import compute_disclosure
     from grantval.expense import tables as T
 
     inp, sched = run.inputs, run.schedule
-    outputs: list[pathlib.Path] = []
     names = ["expense.csv", "expense_by_group.csv", "tranches.csv", "forecast.csv", "unrecognized.csv"]
     csv_paths = [pathlib.Path(csv_dir) / n for n in names] if csv_dir is not None else []
-    outputs += csv_paths
-    if xlsx is not None:
-        outputs.append(pathlib.Path(xlsx))
+    outputs = csv_paths + ([pathlib.Path(xlsx)] if xlsx is not None else [])
     refuse_overwriting_inputs(outputs, [p for p, _ in run.ledger.files] + [run.ledger.location])
 
     award = run.ledger.grants["award_type"].to_numpy()
@@ -240,64 +242,179 @@ def write_expense(run: ExpenseRun, xlsx: pathlib.Path | None, csv_dir: pathlib.P
     unrec, unrec_total, unrec_wa = T.unrecognised_table(inp, sched)
     forecast = T.wide_by_grant(inp, award, run.fair_values.grant_value, qty, sched.forecast_ends,
                                sched.forecast_cents)
+    disc = compute_disclosure(run.ledger, run.fair_values, inp, run.policy, run.start, run.through, share_price)
+    fv_frame, fv_info = W.fair_value_audit(run.fair_values.table)
+    checks = expense_checks(run, tranches, unrec, disc, fv_info["recomputed"])
 
     if csv_paths:
         pathlib.Path(csv_dir).mkdir(parents=True, exist_ok=True)
         write_csv(csv_paths[0], T.long_expense(inp, sched), money=("expense", "cumulative_expense"))
-        names_g = by_group["group"].to_numpy()
-        write_csv(csv_paths[1], T.long_by_group(sched.period_ends, names_g, group_sums), money=("expense",))
+        write_csv(csv_paths[1], T.long_by_group(sched.period_ends, by_group["group"].to_numpy(), group_sums),
+                  money=("expense",))
         write_csv(csv_paths[2], tranches)
         write_csv(csv_paths[3], T.long_forecast(inp, sched), money=("expense",))
         write_csv(csv_paths[4], unrec, money=("recognised_to_date", "unrecognised_cost"))
     if xlsx is not None:
-        total_cents = int(sched.expense_cents.sum())
-        period_totals = sched.expense_cents.sum(axis=0)
-        summary = [
-            ["grantval expense: stock-based compensation expense"], [],
-            ["Review", REVIEW], [],
-            ["Ledger", run.ledger.location], ["Command", command or "(Python API)"],
-            ["From", run.start], ["Through", run.through], ["Forecast through", run.forecast_through or "(none)"],
-            ["Grants", run.ledger.n_grants], ["Tranches", len(inp.t_qty)], [],
-            ["Policies"], *[[k, v] for k, v in run.policy.describe()], [],
-            ["Expense in the window", total_cents / 100.0],
-            ["Unrecognised cost at the through date", unrec_total],
-            ["Weighted-average remaining recognition period (years)", unrec_wa], [],
-            ["Period end", "Expense"],
-            *[[str(d), int(c) / 100.0] for d, c in zip(sched.period_ends, period_totals)],
-        ]
-        period_fmt = {label: MONEY for label in T.period_labels(sched.period_ends)}
-        fperiod_fmt = {label: MONEY for label in T.period_labels(sched.forecast_ends)}
-        fmts = {**EXPENSE_FORMATS, **period_fmt, "total": MONEY}
-        sheets = [
-            Sheet("summary", rows=summary, widths={1: 52, 2: 60}),
-            Sheet("expense_by_grant", frame=_with_total_row(by_grant, "grant_id"), formats=fmts,
-                  text_columns=("grant_id", "group")),
-            Sheet("expense_by_group", frame=_with_total_row(by_group, "group"), formats=fmts,
-                  text_columns=("group",)),
-            Sheet("tranches", frame=tranches, formats=EXPENSE_FORMATS, text_columns=("grant_id",)),
-            Sheet("forecast", frame=_with_total_row(forecast, "grant_id"), formats={**EXPENSE_FORMATS, **fperiod_fmt,
-                                                                                     "total": MONEY},
-                  text_columns=("grant_id", "group")),
-            Sheet("unrecognized", frame=unrec, formats=EXPENSE_FORMATS, text_columns=("grant_id", "group")),
-            Sheet("notes", rows=notes_rows("grantval expense", run.ledger, run.policy, expense_notes(run)),
-                  widths={1: 28, 2: 100, 3: 66}),
-        ]
-        write_workbook(pathlib.Path(xlsx), sheets)
-    return outputs
+        info = W.RunInfo(
+            "grantval expense: stock-based compensation expense", command or "(Python API)", run.ledger.location,
+            run.ledger.files,
+            [("from", run.start), ("through", run.through), ("forecast through", run.forecast_through or "(none)"),
+             ("share price for intrinsic values", "(not given)" if share_price is None else repr(share_price))],
+            run.policy.describe(), timestamp)
+        sheets = W.expense_sheets(run, info, fv_frame, by_grant, by_group, tranches, unrec, unrec_total, unrec_wa, forecast,
+                                  disc if share_price is not None else None, checks, expense_notes(run))
+        write_workbook(pathlib.Path(xlsx), sheets, fixed_time=info.workbook_time())
+    return ExpenseOutputs(outputs, checks)
 
 
-def _with_total_row(frame, label_column: str):
-    import pandas as pd
+@dataclass
+class ExpenseOutputs:
+    """Paths an expense run wrote and its tie-out checks."""
 
-    total = {c: (frame[c].sum() if (c.startswith(("1", "2")) or c == "total") else None) for c in frame.columns}
-    total[label_column] = "Total"
-    return pd.concat([frame, pd.DataFrame([total])], ignore_index=True)
+    paths: list[pathlib.Path]
+    checks: list
+
+    @property
+    def failed(self) -> list:
+        return [c for c in self.checks if not c.tool_pass]
+
+
+def expense_checks(run: ExpenseRun, tranches, unrec, disc, rc: str) -> list:
+    """The tie-outs of an expense run, as :class:`grantval.workbooks.CheckRow` (figures and formulas)."""
+    from grantval import workbooks as W
+    from grantval.valuation import bsm_value
+
+    sched, inp = run.schedule, run.inputs
+    n = run.ledger.n_grants
+    valued = int(run.fair_values.table["grant_id"].nunique())
+    total = float(sched.expense_cents.sum()) / 100.0
+    p = len(sched.period_ends)
+    first, last = W.col_letter(7), W.col_letter(6 + p)
+    tot_col = W.col_letter(7 + p)
+    trow = n + 2
+    g_rows = len(np.unique(np.where(inp.group == "", "(none)", inp.group).astype(str)))
+    g_tot = W.col_letter(2 + p)
+    nt = len(tranches) + 1
+    cols = {c: W.col_letter(i + 1) for i, c in enumerate(tranches.columns)}
+    uc = {c: W.col_letter(i + 1) for i, c in enumerate(unrec.columns)}
+    expected = float(np.sum(tranches["quantity_expensed"] * tranches["fair_value_per_unit"]) +
+                     np.sum(tranches["cancelled_unvested"] * tranches["fair_value_per_unit"]))
+    rec_plus = float(unrec["recognised_to_date"].sum() + unrec["unrecognised_cost"].sum())
+    per_grant = np.abs(sched.cumulative_cents[:, -1] + np.round(unrec["unrecognised_cost"].to_numpy() * 100)
+                       - np.floor(sched.at_through.expected_total * 100 + 0.5))
+    off = int(np.sum(per_grant > 1))
+    fvt = run.fair_values.table
+    bsm = fvt["model"].to_numpy() == "bsm"
+    recomputed = bsm_value(fvt["share_price"].to_numpy(float)[bsm], fvt["exercise_price"].to_numpy(float)[bsm],
+                           fvt["expected_term_years"].to_numpy(float)[bsm], fvt["risk_free_rate"].to_numpy(float)[bsm],
+                           fvt["volatility"].to_numpy(float)[bsm], fvt["dividend_yield"].to_numpy(float)[bsm])
+    tool_bsm = float(fvt["fair_value_per_unit"].to_numpy(float)[bsm].sum())
+    o_a, o_b = disc.option_tie
+    r_a, r_b = disc.rsu_tie
+    return [
+        W.CheckRow("Grants in the ledger = grants valued", n, valued, 0, n == valued),
+        W.CheckRow("Grants valued = grant rows in the expense schedule", valued,
+                   Formula(f"=COUNTA(expense_by_grant!A2:A{n + 1})"), 0, valued == n),
+        W.CheckRow("Period cells of all grants sum to the tool's grand total",
+                   Formula(f"=SUM(expense_by_grant!{first}2:{last}{n + 1})"), total, 0.005,
+                   int(sched.expense_cents.sum()) == round(total * 100)),
+        W.CheckRow("Column totals sum to the grand total", Formula(f"=SUM(expense_by_grant!{first}{trow}:{last}{trow})"),
+                   Formula(f"=expense_by_grant!{tot_col}{trow}"), 0.005, True),
+        W.CheckRow("Expense by group sums to the total", Formula(f"=expense_by_group!{g_tot}{g_rows + 2}"), total,
+                   0.005, int(sched.expense_cents.sum()) == int(np.sum(sched.expense_cents))),
+        W.CheckRow("Recognised + unrecognised = expected quantity x fair value (all tranches)",
+                   Formula(f"=SUM(unrecognized!{uc['recognised_to_date']}2:{uc['recognised_to_date']}{n + 1})"
+                           f"+SUM(unrecognized!{uc['unrecognised_cost']}2:{uc['unrecognised_cost']}{n + 1})"),
+                   Formula(f"=SUMPRODUCT(tranches!{cols['quantity_expensed']}2:{cols['quantity_expensed']}{nt},"
+                           f"tranches!{cols['fair_value_per_unit']}2:{cols['fair_value_per_unit']}{nt})"
+                           f"+SUMPRODUCT(tranches!{cols['cancelled_unvested']}2:{cols['cancelled_unvested']}{nt},"
+                           f"tranches!{cols['fair_value_per_unit']}2:{cols['fair_value_per_unit']}{nt})"),
+                   round(0.01 * n + 0.005, 2), abs(rec_plus - expected) <= 0.01 * n + 0.005),
+        W.CheckRow("Grants whose recognised + unrecognised differs from expected quantity x fair value by over a cent",
+                   off, 0, 0, off == 0),
+        W.CheckRow("Option roll-forward: start + granted - exercised - forfeited - expired = end", o_a, o_b, 0,
+                   o_a == o_b),
+        W.CheckRow("RSU roll-forward: start + granted - vested - forfeited = end", r_a, r_b, 0, r_a == r_b),
+        W.CheckRow("Formula-recomputed BSM fair values sum to the tool's (relative tolerance)",
+                   Formula(f"=SUM(fair_values!{rc}2:{rc}{len(fvt) + 1})"), tool_bsm, 1e-9,
+                   bool(np.allclose(recomputed, fvt["fair_value_per_unit"].to_numpy(float)[bsm], rtol=1e-12)),
+                   relative=True),
+    ]
 
 
 def expense_notes(run: ExpenseRun) -> list[tuple[str, str]]:
     """Statements of the attribution and forfeiture rules applied."""
     from grantval.notes import EXPENSE_RULES
 
+
     rules = [("attribution", EXPENSE_RULES[run.policy.attribution]),
              ("forfeitures", EXPENSE_RULES[run.policy.forfeitures])]
     return rules + [(k, EXPENSE_RULES[k]) for k in ("service", "cancel", "rounding", "forecast")]
+
+
+@dataclass
+class DisclosureRun:
+    """Disclosure tables of a ledger for one window."""
+
+    ledger: Ledger
+    policy: Policy
+    fair_values: FairValues
+    disclosure: "Disclosure"
+
+
+def disclose(location, *, start, through, share_price: float | None = None, period=None, standard=None,
+             attribution=None, forfeitures=None) -> DisclosureRun:
+    """Option and RSU activity and grant figures (ASC 718-10-50-2) for the window ``start``..``through``."""
+    from grantval.disclosure import compute_disclosure
+    from grantval.errors import UsageError
+    from grantval.expense.inputs import build_inputs
+
+    s, t = _day(start, "--from"), _day(through, "--through")
+    if s is None or t is None:
+        raise UsageError("give both --from and --through")
+    if s > t:
+        raise UsageError(f"--from {s} is after --through {t}")
+    if share_price is not None and not share_price > 0:
+        raise UsageError(f"--share-price must be greater than zero; got {share_price}")
+    ledger = load_ledger(location)
+    policy = resolve_policy(ledger.policy_values, period=period, standard=standard, attribution=attribution,
+                            forfeitures=forfeitures)
+    fv = compute_fair_values(ledger, policy)
+    inp = build_inputs(ledger, fv)
+    return DisclosureRun(ledger, policy, fv, compute_disclosure(ledger, fv, inp, policy, s, t, share_price))
+
+
+def write_disclosure(run: DisclosureRun, xlsx: pathlib.Path | None, csv_dir: pathlib.Path | None,
+                     command: str = "", timestamp: bool = True) -> "ExpenseOutputs":
+    """Write the disclosure workbook and/or ``option_activity.csv``, ``rsu_activity.csv``, ``grant_disclosures.csv``."""
+    from grantval import workbooks as W
+
+    d = run.disclosure
+    names = ["option_activity.csv", "rsu_activity.csv", "grant_disclosures.csv"]
+    csv_paths = [pathlib.Path(csv_dir) / n for n in names] if csv_dir is not None else []
+    outputs = csv_paths + ([pathlib.Path(xlsx)] if xlsx is not None else [])
+    refuse_overwriting_inputs(outputs, [p for p, _ in run.ledger.files] + [run.ledger.location])
+    (o_a, o_b), (r_a, r_b) = d.option_tie, d.rsu_tie
+    checks = [
+        W.CheckRow("Option roll-forward: start + granted - exercised - forfeited - expired = end",
+                   Formula("=option_activity!B2+option_activity!B3-option_activity!B4-option_activity!B5"
+                           "-option_activity!B6"), Formula("=option_activity!B7"), 0, o_a == o_b),
+        W.CheckRow("RSU roll-forward: start + granted - vested - forfeited = end",
+                   Formula("=rsu_activity!B2+rsu_activity!B3-rsu_activity!B4-rsu_activity!B5"),
+                   Formula("=rsu_activity!B6"), 0, r_a == r_b),
+    ]
+    if csv_paths:
+        pathlib.Path(csv_dir).mkdir(parents=True, exist_ok=True)
+        write_csv(csv_paths[0], d.options)
+        write_csv(csv_paths[1], d.rsus)
+        write_csv(csv_paths[2], d.grants)
+    if xlsx is not None:
+        info = W.RunInfo("grantval disclose: stock-based compensation disclosure tables", command or "(Python API)",
+                         run.ledger.location, run.ledger.files,
+                         [("from", str(d.start)), ("through", str(d.through)),
+                          ("share price at the end", "(not given)" if d.share_price is None else repr(d.share_price))],
+                         run.policy.describe(), timestamp)
+        sheets = [W.run_sheet(info, info.workbook_time()), *W.disclosure_sheets(d), W.checks_sheet(checks),
+                  W.notes_sheet([], run.ledger.warnings)]
+        write_workbook(pathlib.Path(xlsx), sheets, fixed_time=info.workbook_time())
+    return ExpenseOutputs(outputs, checks)

@@ -138,6 +138,8 @@ def expense_cmd(
     forfeitures: Optional[str] = typer.Option(None, "--forfeitures", help="estimate or as-occur."),
     output: Optional[pathlib.Path] = typer.Option(None, "-o", "--output", help="Workbook to write (.xlsx)."),
     csv_dir: Optional[pathlib.Path] = typer.Option(None, "--csv-dir", help="Also write the CSV tables here."),
+    share_price: Optional[float] = typer.Option(None, "--share-price", help="Share price at --through: adds the disclosure sheets."),
+    no_timestamp: bool = typer.Option(False, "--no-timestamp", help="Record no run time, for byte-identical reruns."),
 ) -> None:
     """Compute stock-compensation expense by period and write the workbook and CSV tables."""
     from grantval import api
@@ -149,15 +151,53 @@ def expense_cmd(
     try:
         run = api.expense(ledger, through=through, start=start, forecast_through=forecast_through, period=period,
                           standard=standard, attribution=attribution, forfeitures=forfeitures)
-        written = api.write_expense(run, output, csv_dir, command=_command_line())
+        result = api.write_expense(run, output, csv_dir, command=_command_line(), timestamp=not no_timestamp,
+                                   share_price=share_price)
     except GrantvalError as err:
         fail(err)
     total = run.schedule.expense_cents.sum() / 100.0
     typer.echo(f"{run.ledger.n_grants} grants, {len(run.schedule.period_ends)} periods from {run.start} "
                f"through {run.through} ({run.policy.standard}, {run.policy.attribution}, {run.policy.forfeitures}); "
                f"expense {total:,.2f}")
-    for path in written:
+    for path in result.paths:
         typer.echo(f"wrote {path}")
+    for c in result.failed:
+        typer.echo(f"check failed: {c.name}: {c.a} vs {c.b}", err=True)
+    if result.failed:
+        raise typer.Exit(1)
+
+
+@app.command("disclose")
+def disclose_cmd(
+    ledger: pathlib.Path = typer.Argument(..., help="Ledger: a folder of CSV files or an .xlsx workbook."),
+    start: str = typer.Option(..., "--from", help="First day of the window (ISO date)."),
+    through: str = typer.Option(..., "--through", help="Last day of the window (ISO date)."),
+    share_price: Optional[float] = typer.Option(None, "--share-price", help="Share price at --through, for intrinsic values."),
+    output: Optional[pathlib.Path] = typer.Option(None, "-o", "--output", help="Workbook to write (.xlsx)."),
+    csv_dir: Optional[pathlib.Path] = typer.Option(None, "--csv-dir", help="Also write the CSV tables here."),
+    no_timestamp: bool = typer.Option(False, "--no-timestamp", help="Record no run time, for byte-identical reruns."),
+) -> None:
+    """Write the disclosure tables (ASC 718-10-50): award activity, grant figures, unrecognised cost."""
+    from grantval import api
+
+    if output is None and csv_dir is None:
+        usage("give -o WORKBOOK.xlsx, --csv-dir DIR, or both")
+    if output is not None and output.suffix.lower() != ".xlsx":
+        usage(f"-o {output}: the workbook name must end in .xlsx")
+    try:
+        run = api.disclose(ledger, start=start, through=through, share_price=share_price)
+        result = api.write_disclosure(run, output, csv_dir, command=_command_line(), timestamp=not no_timestamp)
+    except GrantvalError as err:
+        fail(err)
+    o = run.disclosure.options
+    typer.echo(f"options outstanding at {run.disclosure.through}: {o['number'].iloc[5]:,.0f}; "
+               f"RSUs nonvested: {run.disclosure.rsus['number'].iloc[4]:,.0f}")
+    for path in result.paths:
+        typer.echo(f"wrote {path}")
+    for c in result.failed:
+        typer.echo(f"check failed: {c.name}", err=True)
+    if result.failed:
+        raise typer.Exit(1)
 
 
 def _command_line() -> str:

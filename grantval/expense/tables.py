@@ -81,6 +81,7 @@ def tranche_table(inp: ExpenseInputs, sched: ExpenseSchedule, tranche_no) -> pd.
     """Tranches with their vest dates, quantities, fair values and state at the through date."""
     m = sched.at_through
     forfeited = inp.t_qty - m.outstanding - m.cancelled
+    granted = inp.grant_date[inp.t_grant] <= sched.period_ends[-1]
     return pd.DataFrame({
         "grant_id": inp.grant_id[inp.t_grant],
         "tranche": tranche_no,
@@ -89,7 +90,7 @@ def tranche_table(inp: ExpenseInputs, sched: ExpenseSchedule, tranche_no) -> pd.
         "forfeited": forfeited.astype(np.int64),
         "cancelled_unvested": m.cancelled.astype(np.int64),
         "vested": m.vested,
-        "quantity_expensed": m.n_expensed,
+        "quantity_expensed": np.where(granted, m.n_expensed, 0.0),
         "fair_value_per_unit": inp.t_fv,
         "grant_date_fair_value": inp.t_qty * inp.t_fv,
         "service_elapsed": m.elapsed,

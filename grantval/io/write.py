@@ -29,6 +29,35 @@ import pandas as pd
 from grantval.errors import OutputError
 
 _FORMULA_START = ("=", "+", "-", "@")
+#: timestamp written into reproducible workbooks (``--no-timestamp``)
+FIXED_TIME = _dt.datetime(2000, 1, 1)
+
+
+class Formula(str):
+    """A cell formula (text starting with ``=``) that grantval itself wrote.
+
+    Only values of this type are written as formulas; every other text is a
+    text cell, whatever it starts with.
+    """
+
+
+@dataclass
+class Chart:
+    """A chart to place on a sheet (built with openpyxl at write time).
+
+    ``data`` and ``categories`` are (min_col, min_row, max_col, max_row) on
+    ``source`` (a sheet title; default the chart's own sheet); ``data``
+    includes its title row.
+    """
+
+    kind: str  # "bar" or "line"
+    title: str
+    data: tuple[int, int, int, int]
+    categories: tuple[int, int, int, int]
+    anchor: str
+    source: str | None = None
+    y_title: str = ""
+    x_title: str = ""
 
 
 def refuse_overwriting_inputs(outputs: Sequence[pathlib.Path], inputs: Sequence[str]) -> None:
@@ -143,7 +172,8 @@ class Sheet:
     widths: dict = field(default_factory=dict)
     labels: dict[str, str] = field(default_factory=dict)
     text_columns: tuple[str, ...] = ()
-    formula_rows: frozenset = frozenset()
+    charts: list = field(default_factory=list)
+    row_formats: dict = field(default_factory=dict)  # rows sheets: (row index, column index) -> number format
 
 
 def label(column: str) -> str:
@@ -209,7 +239,12 @@ def write_workbook(path: pathlib.Path, sheets: Sequence[Sheet], fixed_time: _dt.
                 out = []
                 for v, fmt, is_text in zip(row, fmts, texts):
                     v = _cell_value(v)
-                    if isinstance(v, str) or is_text:
+                    if isinstance(v, Formula):
+                        cell = WriteOnlyCell(ws, value=str(v))
+                        if fmt:
+                            cell.number_format = fmt
+                        out.append(cell)
+                    elif isinstance(v, str) or is_text:
                         cell = WriteOnlyCell(ws, value=None if v is None else str(v))
                         if v is not None:
                             cell.data_type = "s"  # never a formula
@@ -227,14 +262,57 @@ def write_workbook(path: pathlib.Path, sheets: Sequence[Sheet], fixed_time: _dt.
                     ws.column_dimensions[get_column_letter(j)].width = w
             for i, row in enumerate(sh.rows):
                 out = []
-                for v in row:
+                for j, v in enumerate(row):
                     v = _cell_value(v)
-                    if isinstance(v, str) and i not in sh.formula_rows:
+                    fmt = sh.row_formats.get((i, j))
+                    if isinstance(v, Formula):
+                        cell = WriteOnlyCell(ws, value=str(v))
+                    elif isinstance(v, str):
                         cell = WriteOnlyCell(ws, value=v)
                         cell.data_type = "s"
-                        out.append(cell)
+                        if i == 0:
+                            cell.font = bold
+                    elif fmt is not None and v is not None:
+                        cell = WriteOnlyCell(ws, value=v)
                     else:
                         out.append(v)
+                        continue
+                    if fmt:
+                        cell.number_format = fmt
+                    out.append(cell)
                 ws.append(out)
+        for ch in sh.charts:
+            ws.add_chart(_build_chart(ch, wb, ws), ch.anchor)
     with atomic_path(path) as tmp:
         wb.save(tmp)
+        _normalise_zip(tmp)
+
+
+def _build_chart(spec: Chart, wb, ws):
+    from openpyxl.chart import BarChart, LineChart, Reference
+
+    chart = BarChart() if spec.kind == "bar" else LineChart()
+    chart.title = spec.title
+    chart.y_axis.title = spec.y_title
+    chart.x_axis.title = spec.x_title
+    chart.height, chart.width = 9, 18
+    src = ws if spec.source is None else wb[spec.source]
+    c0, r0, c1, r1 = spec.data
+    chart.add_data(Reference(src, min_col=c0, min_row=r0, max_col=c1, max_row=r1), titles_from_data=True)
+    c0, r0, c1, r1 = spec.categories
+    chart.set_categories(Reference(src, min_col=c0, min_row=r0, max_col=c1, max_row=r1))
+    return chart
+
+
+def _normalise_zip(path: pathlib.Path) -> None:
+    """Rewrite a saved workbook with fixed zip entry times, so equal content gives equal bytes."""
+    import zipfile
+
+    with zipfile.ZipFile(path) as src:
+        entries = [(info, src.read(info.filename)) for info in src.infolist()]
+    with zipfile.ZipFile(path, "w", compression=zipfile.ZIP_DEFLATED) as dst:
+        for info, data in entries:
+            fixed = zipfile.ZipInfo(info.filename, date_time=(1980, 1, 1, 0, 0, 0))
+            fixed.compress_type = zipfile.ZIP_DEFLATED
+            fixed.external_attr = info.external_attr
+            dst.writestr(fixed, data)

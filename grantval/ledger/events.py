@@ -12,6 +12,9 @@ Rules (documented in docs/ledger-format.md):
 - ``expire`` removes vested options (blank: all vested and outstanding),
   the earliest vesting first.
 - RSUs have no exercise or expire events: their units settle when they vest.
+- No event may fall after an option's expiration date: options still
+  outstanding at the end of that date expire by themselves (the disclosure
+  tables count them as expired on that date).
 """
 
 from __future__ import annotations
@@ -84,9 +87,10 @@ def apply_events(grants: pd.DataFrame, tranches: pd.DataFrame, events: pd.DataFr
             problems.append(Problem(source, r, "event_type",
                                     f"grant {gid[g]} is an RSU award; RSUs are not exercised and do not expire"))
             continue
-        if kind == "exercise" and not np.isnat(edate[g]) and d > edate[g]:
+        if not np.isnat(edate[g]) and d > edate[g]:
             problems.append(Problem(source, r, "event_date",
-                                    f"exercise on {d} is after the expiration date {edate[g]} of grant {gid[g]}"))
+                                    f"{kind} on {d} is after the expiration date {edate[g]} of grant {gid[g]}; "
+                                    "options still outstanding then expire on that date by themselves"))
             continue
         lo, hi = t_start[g], t_end[g]
         idx = np.arange(lo, hi)
@@ -96,7 +100,8 @@ def apply_events(grants: pd.DataFrame, tranches: pd.DataFrame, events: pd.DataFr
         if kind == "forfeit":
             pool = idx[~vested][::-1]
         elif kind == "cancel":
-            pool = idx[::-1]
+            # vested RSUs are settled, so only unvested units can be cancelled
+            pool = idx[~vested][::-1] if award[g] == "rsu" else idx[::-1]
         else:
             pool = idx[vested]
         avail = int(remaining[pool].sum())

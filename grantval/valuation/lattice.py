@@ -142,7 +142,7 @@ def _one_tree(s, k, t, r, sigma, q, v, barrier, optimal, lam, n_post):
     nodes = np.arange(top + 1)
     stock = np.exp(log_root[:, None] + top * drift[:, None] + (2 * nodes - top) * sq[:, None])
     value = np.zeros_like(stock)
-    cont = np.empty_like(stock)
+    cont = np.zeros_like(stock)  # rows not yet started hold zeros, never garbage
     work = np.empty_like(stock)
     result = np.zeros_like(s)
     all_optimal = bool(np.all(optimal))

@@ -1,0 +1,45 @@
+"""Reruns give byte-identical outputs; ledger text is never a formula in the workbook."""
+
+import pathlib
+
+import openpyxl
+
+from grantval import api
+from tests.factory import BASE, set_cell, write_ledger
+
+SAMPLE = pathlib.Path(__file__).resolve().parents[2] / "sample_grants"
+
+
+def _run(out: pathlib.Path, timestamp: bool):
+    run = api.expense(SAMPLE, through="2026-12-31", forecast_through="2027-06-30")
+    api.write_expense(run, out / "e.xlsx", out / "csv", timestamp=timestamp, share_price=30.0)
+
+
+def test_reruns_are_byte_identical_without_timestamp(tmp_path):
+    _run(tmp_path / "a", False)
+    _run(tmp_path / "b", False)
+    assert (tmp_path / "a" / "e.xlsx").read_bytes() == (tmp_path / "b" / "e.xlsx").read_bytes()
+    for f in (tmp_path / "a" / "csv").iterdir():
+        assert f.read_bytes() == (tmp_path / "b" / "csv" / f.name).read_bytes(), f.name
+
+
+def test_with_timestamp_only_the_run_time_differs(tmp_path):
+    _run(tmp_path / "a", True)
+    _run(tmp_path / "b", False)
+    a = openpyxl.load_workbook(tmp_path / "a" / "e.xlsx")
+    b = openpyxl.load_workbook(tmp_path / "b" / "e.xlsx")
+    assert a.sheetnames == b.sheetnames
+    for ws in a.worksheets:
+        for ra, rb in zip(ws.iter_rows(values_only=True), b[ws.title].iter_rows(values_only=True)):
+            if ra and ra[0] == "Run at":
+                continue
+            assert ra == rb, ws.title
+
+
+def test_ledger_text_starting_with_equals_is_text_in_expense_workbook(tmp_path):
+    data = set_cell(BASE, "grants", 0, "group", "=1+1")
+    run = api.expense(write_ledger(tmp_path / "l", data), through="2028-12-31")
+    api.write_expense(run, tmp_path / "e.xlsx", None)
+    ws = openpyxl.load_workbook(tmp_path / "e.xlsx")["expense_by_grant"]
+    cells = [c for c in ws[2] if c.value == "=1+1"]
+    assert cells and all(c.data_type == "s" for c in cells)
