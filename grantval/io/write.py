@@ -285,7 +285,7 @@ def write_workbook(path: pathlib.Path, sheets: Sequence[Sheet], fixed_time: _dt.
             ws.add_chart(_build_chart(ch, wb, ws), ch.anchor)
     with atomic_path(path) as tmp:
         wb.save(tmp)
-        _normalise_zip(tmp)
+        _normalise_zip(tmp, stamp)
 
 
 def _build_chart(spec: Chart, wb, ws):
@@ -304,12 +304,20 @@ def _build_chart(spec: Chart, wb, ws):
     return chart
 
 
-def _normalise_zip(path: pathlib.Path) -> None:
-    """Rewrite a saved workbook with fixed zip entry times, so equal content gives equal bytes."""
+def _normalise_zip(path: pathlib.Path, stamp: _dt.datetime) -> None:
+    """Rewrite a saved workbook with fixed zip entry times and ``stamp`` as its modified time.
+
+    openpyxl stamps the save time into docProps/core.xml and the zip entries;
+    with this, equal content gives equal bytes.
+    """
+    import re
     import zipfile
 
     with zipfile.ZipFile(path) as src:
         entries = [(info, src.read(info.filename)) for info in src.infolist()]
+    when = stamp.strftime("%Y-%m-%dT%H:%M:%SZ").encode()
+    entries = [(info, re.sub(rb"(<dcterms:modified[^>]*>)[^<]*(</dcterms:modified>)", rb"\g<1>" + when + rb"\g<2>", data)
+                if info.filename == "docProps/core.xml" else data) for info, data in entries]
     with zipfile.ZipFile(path, "w", compression=zipfile.ZIP_DEFLATED) as dst:
         for info, data in entries:
             fixed = zipfile.ZipInfo(info.filename, date_time=(1980, 1, 1, 0, 0, 0))
