@@ -15,7 +15,9 @@ from grantval import __version__
 from grantval.errors import Problem
 from grantval.fairvalue import FairValues, compute_fair_values
 import numpy as np
+import pandas as pd
 
+from grantval.errors import UsageError
 from grantval.io.write import Formula, Sheet, refuse_overwriting_inputs, write_csv, write_workbook
 from grantval.ledger import Ledger, load_ledger, read_ledger
 from grantval.notes import REVIEW, VALUATION_METHODS
@@ -418,3 +420,73 @@ def write_disclosure(run: DisclosureRun, xlsx: pathlib.Path | None, csv_dir: pat
                   W.notes_sheet([], run.ledger.warnings)]
         write_workbook(pathlib.Path(xlsx), sheets, fixed_time=info.workbook_time())
     return ExpenseOutputs(outputs, checks)
+
+
+def whatif(location, *, vary: list[str], grants_from=None, grants_through=None, through=None,
+           forecast_through=None, planned=None, period=None, standard=None, attribution=None,
+           forfeitures=None):
+    """Value and expense a ledger under the base and every scenario of ``vary``.
+
+    Parameters
+    ----------
+    vary : list of str
+        ``NAME=SPEC[,SPEC...]`` texts (see :func:`grantval.whatif.parse_vary`);
+        several give the full grid.
+    grants_from, grants_through : date, optional
+        Only grants dated in this window are re-valued.
+    through : date, optional
+        Last day of the expense; default the last vesting date of the ledger.
+    planned : path, optional
+        Hypothetical grants (grants format) valued and expensed as if granted.
+    """
+    from grantval.whatif import parse_vary, run_scenarios
+
+    if not vary:
+        raise UsageError("give at least one --vary NAME=SPEC")
+    varies = [parse_vary(v) for v in vary]
+    ledger = load_ledger(location, planned)
+    policy = resolve_policy(ledger.policy_values, period=period, standard=standard, attribution=attribution,
+                            forfeitures=forfeitures)
+    return run_scenarios(ledger, policy, varies, grants_from=_day(grants_from, "--grants-from"),
+                         grants_through=_day(grants_through, "--grants-through"), through=_day(through, "--through"),
+                         forecast_through=_day(forecast_through, "--forecast-through"))
+
+
+def write_whatif(run, xlsx: pathlib.Path | None, csv_dir: pathlib.Path | None, command: str = "",
+                 timestamp: bool = True) -> list[pathlib.Path]:
+    """Write the what-if workbook and/or its CSV tables; returns the paths written."""
+    from grantval import whatif as WI
+    from grantval import workbooks as W
+
+    names = ["scenarios.csv", "sensitivity.csv", "tornado.csv", "fair_values_by_scenario.csv",
+             "expense_by_scenario.csv", "sensitivities_bsm.csv"]
+    csv_paths = [pathlib.Path(csv_dir) / n for n in names] if csv_dir is not None else []
+    outputs = csv_paths + ([pathlib.Path(xlsx)] if xlsx is not None else [])
+    refuse_overwriting_inputs(outputs, [p for p, _ in run.ledger.files] + [run.ledger.location])
+    scen = pd.DataFrame({"scenario": [r.scenario.id for r in run.results],
+                         "description": [r.scenario.description for r in run.results]})
+    sens = WI.sensitivity_table(run)
+    torn = WI.tornado_table(run)
+    fvs = WI.fair_values_by_scenario(run)
+    exp = WI.expense_by_period(run)
+    greeks = WI.greeks_table(run)
+    curve = WI.volatility_curve(run)
+    if csv_paths:
+        pathlib.Path(csv_dir).mkdir(parents=True, exist_ok=True)
+        write_csv(csv_paths[0], scen)
+        write_csv(csv_paths[1], sens)
+        write_csv(csv_paths[2], torn)
+        write_csv(csv_paths[3], fvs.melt(id_vars="grant_id", var_name="scenario", value_name="fair_value_per_unit"))
+        write_csv(csv_paths[4], exp.melt(id_vars="period_end", var_name="scenario", value_name="expense"),
+                  money=("expense",))
+        write_csv(csv_paths[5], greeks)
+    if xlsx is not None:
+        info = W.RunInfo("grantval whatif: assumption sensitivity", command or "(Python API)", run.ledger.location,
+                         run.ledger.files,
+                         [("expense from", str(run.start)), ("expense through", str(run.through)),
+                          ("grants re-valued", f"{int(run.window_mask.sum())} of {run.ledger.n_grants}"),
+                          ("planned grants", str(int(run.ledger.grants["planned"].sum())))],
+                         run.policy.describe(), timestamp)
+        sheets = W.whatif_sheets(info, scen, sens, torn, fvs, exp, greeks, curve, run.ledger.warnings)
+        write_workbook(pathlib.Path(xlsx), sheets, fixed_time=info.workbook_time())
+    return outputs

@@ -200,6 +200,41 @@ def disclose_cmd(
         raise typer.Exit(1)
 
 
+@app.command("whatif")
+def whatif_cmd(
+    ledger: pathlib.Path = typer.Argument(..., help="Ledger: a folder of CSV files or an .xlsx workbook."),
+    vary: list[str] = typer.Option(..., "--vary", help="NAME=SPEC[,SPEC]: volatility, expected_term_years, "
+                                   "risk_free_rate, dividend_yield, share_price or forfeiture_rate; SPEC is a level "
+                                   "(0.45), a shift (+0.05) or a relative shift (+10%). Repeat for a grid."),
+    grants_from: Optional[str] = typer.Option(None, "--grants-from", help="Re-value only grants dated on or after this."),
+    grants_through: Optional[str] = typer.Option(None, "--grants-through", help="Re-value only grants dated on or before this."),
+    through: Optional[str] = typer.Option(None, "--through", help="Last day of the expense (default: the last vesting date)."),
+    forecast_through: Optional[str] = typer.Option(None, "--forecast-through", help="Last day of a forecast."),
+    planned: Optional[pathlib.Path] = typer.Option(None, "--planned", help="Hypothetical grants (grants format) to add."),
+    forfeitures: Optional[str] = typer.Option(None, "--forfeitures", help="estimate or as-occur."),
+    output: Optional[pathlib.Path] = typer.Option(None, "-o", "--output", help="Workbook to write (.xlsx)."),
+    csv_dir: Optional[pathlib.Path] = typer.Option(None, "--csv-dir", help="Also write the CSV tables here."),
+    no_timestamp: bool = typer.Option(False, "--no-timestamp", help="Record no run time, for byte-identical reruns."),
+) -> None:
+    """Re-value and re-expense under shifted assumptions; write sensitivity tables and charts."""
+    from grantval import api
+
+    if output is None and csv_dir is None:
+        usage("give -o WORKBOOK.xlsx, --csv-dir DIR, or both")
+    if output is not None and output.suffix.lower() != ".xlsx":
+        usage(f"-o {output}: the workbook name must end in .xlsx")
+    try:
+        run = api.whatif(ledger, vary=vary, grants_from=grants_from, grants_through=grants_through, through=through,
+                         forecast_through=forecast_through, planned=planned, forfeitures=forfeitures)
+        written = api.write_whatif(run, output, csv_dir, command=_command_line(), timestamp=not no_timestamp)
+    except GrantvalError as err:
+        fail(err)
+    typer.echo(f"{len(run.results) - 1} scenarios plus base on {int(run.window_mask.sum())} re-valued grants "
+               f"({run.priced} input sets priced)")
+    for path in written:
+        typer.echo(f"wrote {path}")
+
+
 def _command_line() -> str:
     return " ".join(["grantval"] + sys.argv[1:])
 

@@ -21,11 +21,13 @@ Identical valuation inputs are valued once.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import Callable
 
 import numpy as np
 import pandas as pd
 
 from grantval.dates import year_fraction
+from grantval.errors import UsageError
 from grantval.ledger.model import Ledger
 from grantval.policy import Policy
 from grantval.valuation import DEFAULT_STEPS, bsm_value, lattice_value, rsu_value
@@ -55,21 +57,57 @@ class FairValues:
     distinct_valuations: int
 
 
-def _unique_call(fn, columns: dict[str, np.ndarray], **fixed) -> tuple[np.ndarray, int]:
-    """Call ``fn`` once per distinct row of ``columns`` and scatter the results back."""
+@dataclass
+class Shifts:
+    """Assumption changes of a what-if scenario, applied to the grants in ``mask``.
+
+    Each field is None or a function mapping the base values (array) to the
+    scenario's values.  ``expected_term_years`` acts on the term actually used
+    by BSM (given or simplified); lattice grants run to the contractual term
+    and RSUs to their vesting dates, so it does not change them.  Supplied
+    fair values are never changed.
+    """
+
+    label: str
+    mask: np.ndarray
+    share_price: Callable | None = None
+    volatility: Callable | None = None
+    risk_free_rate: Callable | None = None
+    dividend_yield: Callable | None = None
+    expected_term_years: Callable | None = None
+
+
+def _unique_call(fn, columns: dict[str, np.ndarray], cache: dict | None = None, **fixed) -> tuple[np.ndarray, int]:
+    """Call ``fn`` once per distinct row of ``columns`` and scatter the results back.
+
+    With ``cache`` (a dict kept by the caller), rows valued before are not valued again.
+    """
     n = len(next(iter(columns.values())))
     if n == 0:
         return np.zeros(0), 0
     stacked = np.column_stack([np.asarray(c, dtype=float) for c in columns.values()])
     uniq, inverse = np.unique(stacked, axis=0, return_inverse=True)
-    args = {k: uniq[:, i] for i, k in enumerate(columns)}
-    if "exercise_multiple" in args and np.all(np.isnan(args["exercise_multiple"])):
-        args["exercise_multiple"] = None
-    values = np.atleast_1d(fn(**args, **fixed))
-    return values[np.ravel(inverse)], len(uniq)
+    values = np.empty(len(uniq))
+    todo = np.arange(len(uniq))
+    if cache is not None:
+        keys = [(fn.__name__, tuple(fixed.items()), row.tobytes()) for row in uniq]
+        known = np.array([k in cache for k in keys], dtype=bool)
+        for i in np.flatnonzero(known):
+            values[i] = cache[keys[i]]
+        todo = np.flatnonzero(~known)
+    if todo.size:
+        args = {k: uniq[todo, i] for i, k in enumerate(columns)}
+        if "exercise_multiple" in args and np.all(np.isnan(args["exercise_multiple"])):
+            args["exercise_multiple"] = None
+        values[todo] = np.atleast_1d(fn(**args, **fixed))
+        if cache is not None:
+            for i in todo:
+                cache[keys[i]] = values[i]
+    return values[np.ravel(inverse)], int(todo.size)
 
 
-def compute_fair_values(ledger: Ledger, policy: Policy) -> FairValues:
+def compute_fair_values(ledger: Ledger, policy: Policy, shifts: Shifts | None = None,
+                        cache: dict | None = None) -> FairValues:
     """Value every grant of a checked ledger under ``policy``.
 
     Parameters
@@ -78,6 +116,15 @@ def compute_fair_values(ledger: Ledger, policy: Policy) -> FairValues:
         A ledger returned by :func:`grantval.ledger.load_ledger`.
     policy : Policy
         Uses ``valuation_unit`` and ``lattice_steps``.
+    shifts : Shifts, optional
+        A what-if scenario's assumption changes.
+    cache : dict, optional
+        Values of input sets already priced (kept across scenarios).
+
+    Raises
+    ------
+    UsageError
+        When a scenario's shifts give an invalid assumption.
     """
     g, a, tr = ledger.grants, ledger.assumptions, ledger.tranches
     ai = ledger.grant_assumption
@@ -98,6 +145,15 @@ def compute_fair_values(ledger: Ledger, policy: Policy) -> FairValues:
     is_supplied = ~np.isnan(supplied)
     k = g["exercise_price"].to_numpy(float)
     contract = np.where(is_option, year_fraction(gdate, g["expiration_date"].to_numpy("datetime64[D]")), np.nan)
+    moved = None
+    if shifts is not None:
+        moved = shifts.mask & ~is_supplied
+        s = _shift(shifts, "share_price", s, moved, g, lambda x: x > 0, "greater than zero")
+        vol = _shift(shifts, "volatility", vol, moved & is_option, g, lambda x: (x > 0) & (x <= 5),
+                     "greater than 0 and at most 5")
+        rf = _shift(shifts, "risk_free_rate", rf, moved & is_option, g, lambda x: (x >= -0.05) & (x <= 0.5),
+                    "between -0.05 and 0.5")
+        q = _shift(shifts, "dividend_yield", q, moved, g, lambda x: x >= 0, "zero or more")
 
     t_vest = np.maximum(year_fraction(gdate[gi], tr["vest_date"].to_numpy("datetime64[D]")), 0.0)
     t_qty = tr["quantity"].to_numpy(float)
@@ -115,16 +171,21 @@ def compute_fair_values(ledger: Ledger, policy: Policy) -> FairValues:
     simplified_tranche = (t_vest + contract[gi]) / 2.0
     if per_tranche:
         term_t = np.where(np.isnan(given_term[gi]), simplified_tranche, given_term[gi])
+        if moved is not None:
+            term_t = _shift_term(shifts, term_t, (moved & is_bsm)[gi], contract[gi], g["grant_id"].to_numpy()[gi])
         m = is_bsm[gi] & ~is_supplied[gi]
         vals, d = _unique_call(bsm_value, dict(share_price=s[gi][m], strike=k[gi][m], term=term_t[m],
-                                               rate=rf[gi][m], volatility=vol[gi][m], dividend_yield=q[gi][m]))
+                                               rate=rf[gi][m], volatility=vol[gi][m], dividend_yield=q[gi][m]),
+                               cache)
         tv[m], distinct = vals, distinct + d
         t_term[m] = term_t[m]
     else:
         term_g = np.where(np.isnan(given_term), simplified_award, given_term)
+        if moved is not None:
+            term_g = _shift_term(shifts, term_g, moved & is_bsm, contract, g["grant_id"].to_numpy())
         m = is_bsm & ~is_supplied
         vals, d = _unique_call(bsm_value, dict(share_price=s[m], strike=k[m], term=term_g[m],
-                                               rate=rf[m], volatility=vol[m], dividend_yield=q[m]))
+                                               rate=rf[m], volatility=vol[m], dividend_yield=q[m]), cache)
         award_bsm = np.full(len(g), np.nan)
         award_bsm[m] = vals
         distinct += d
@@ -139,13 +200,13 @@ def compute_fair_values(ledger: Ledger, policy: Policy) -> FairValues:
         dict(share_price=s[gi][m], strike=k[gi][m], term=contract[gi][m], rate=rf[gi][m],
              volatility=vol[gi][m], dividend_yield=q[gi][m], vesting=np.minimum(t_vest[m], contract[gi][m]),
              exercise_multiple=mult[gi][m], exit_rate=exit_rate[gi][m]),
-        steps=steps,
+        cache, steps=steps,
     )
     tv[m], distinct = vals, distinct + d
 
     # RSUs: each tranche to its own vesting date
     m = (award[gi] == "rsu") & ~is_supplied[gi]
-    vals, d = _unique_call(rsu_value, dict(share_price=s[gi][m], term=t_vest[m], dividend_yield=q[gi][m]))
+    vals, d = _unique_call(rsu_value, dict(share_price=s[gi][m], term=t_vest[m], dividend_yield=q[gi][m]), cache)
     tv[m], distinct = vals, distinct + d
 
     # supplied values
@@ -202,7 +263,7 @@ def compute_fair_values(ledger: Ledger, policy: Policy) -> FairValues:
     else:
         rows = dict(base)
         rows["quantity"] = g["quantity"].to_numpy(np.int64)
-        award_term = np.where(np.isnan(given_term), simplified_award, given_term)
+        award_term = term_g
         rows["expected_term_years"] = np.where(method == "bsm", award_term,
                                                np.where(method == "rsu", avg_vest, np.nan))
         rows["fair_value_per_unit"] = grant_value
@@ -218,3 +279,33 @@ def compute_fair_values(ledger: Ledger, policy: Policy) -> FairValues:
     table = pd.DataFrame(rows)[columns]
     return FairValues(table=table, tranche_value=tranche_value, grant_value=grant_value,
                       distinct_valuations=distinct)
+
+
+def _shift(shifts: Shifts, name: str, base: np.ndarray, mask: np.ndarray, grants, ok, words: str) -> np.ndarray:
+    """Apply one scenario shift to the grants in ``mask``; refuse results outside the valid range."""
+    fn = getattr(shifts, name)
+    if fn is None or not mask.any():
+        return base
+    out = base.copy()
+    out[mask] = fn(base[mask])
+    bad = mask & ~ok(out)
+    if bad.any():
+        i = int(np.flatnonzero(bad)[0])
+        raise UsageError(f"scenario {shifts.label}: {name} becomes {out[i]:g} for grant "
+                         f"{grants['grant_id'].iat[i]}; it must be {words}")
+    return out
+
+
+def _shift_term(shifts: Shifts, term: np.ndarray, mask: np.ndarray, contract: np.ndarray, ids) -> np.ndarray:
+    """Apply the expected-term shift; the term must stay above zero and within the contractual term."""
+    fn = shifts.expected_term_years
+    if fn is None or not mask.any():
+        return term
+    out = term.copy()
+    out[mask] = fn(term[mask])
+    bad = mask & ((out <= 0) | (out > contract + 1e-9))
+    if bad.any():
+        i = int(np.flatnonzero(bad)[0])
+        raise UsageError(f"scenario {shifts.label}: expected_term_years becomes {out[i]:g} for grant {ids[i]}; "
+                         f"it must be above 0 and at most the contractual term {contract[i]:.4f}")
+    return out

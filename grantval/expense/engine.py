@@ -46,13 +46,19 @@ class Measurement:
     remaining_years: np.ndarray  # per grant: weighted-average remaining recognition period, years
 
 
-def elapsed_fraction(d, start, end) -> np.ndarray:
-    """Service fraction through ``d`` (inclusive) of periods from ``start`` to ``end``."""
-    served = (d + DAY - start).astype(np.int64)
-    length = (end - start).astype(np.int64)
+def _elapsed(served_through: int, start: np.ndarray, length: np.ndarray) -> np.ndarray:
+    """Fraction served through day number ``served_through`` of periods [start, start + length)."""
+    served = served_through + 1 - start
     with np.errstate(divide="ignore", invalid="ignore"):
         frac = np.where(length > 0, served / np.where(length > 0, length, 1), np.where(served > 0, 1.0, 0.0))
     return np.clip(frac, 0.0, 1.0)
+
+
+def elapsed_fraction(d, start, end) -> np.ndarray:
+    """Service fraction through ``d`` (inclusive) of periods from ``start`` to ``end`` (dates)."""
+    s = np.asarray(start, dtype="datetime64[D]").astype(np.int64)
+    e = np.asarray(end, dtype="datetime64[D]").astype(np.int64)
+    return _elapsed(int(np.datetime64(d, "D").astype(np.int64)), s, e - s)
 
 
 def estimates_at(inp: ExpenseInputs, d) -> tuple[np.ndarray, np.ndarray]:
@@ -61,29 +67,90 @@ def estimates_at(inp: ExpenseInputs, d) -> tuple[np.ndarray, np.ndarray]:
     The most specific estimate (grant, then group, then ``*``) with the latest
     effective date on or before ``d`` applies; NaN where none does.
     """
+    pre = inp.prepared()
+    dn = int(np.datetime64(d, "D").astype(np.int64))
     n = inp.n_grants
     rate = np.full(n, np.nan)
     frac = np.full(n, np.nan)
-    if len(inp.est_applies_to) == 0:
+    if len(pre.est_keys):
+        # the row in force for each key: latest effective date on or before d (later rows win ties)
+        active = np.full(len(pre.est_keys), -1, dtype=np.int64)
+        best = np.full(len(pre.est_keys), np.iinfo(np.int64).min)
+        for j in np.flatnonzero(pre.est_eff <= dn):
+            k = pre.est_key[j]
+            if k >= 0 and pre.est_eff[j] >= best[k]:
+                best[k], active[k] = pre.est_eff[j], j
+        pick = lambda codes: np.where(codes >= 0, active[np.maximum(codes, 0)], -1)  # noqa: E731
+        found = pick(pre.code_grant)
+        found = np.where(found < 0, pick(pre.code_group), found)
+        if pre.code_star >= 0:
+            found = np.where(found < 0, active[pre.code_star], found)
+        has = found >= 0
+        rate[has] = inp.est_rate[found[has]]
+        frac[has] = inp.est_fraction[found[has]]
+    return _shifted(inp, rate, frac)
+
+
+def _shifted(inp: ExpenseInputs, rate: np.ndarray, frac: np.ndarray):
+    if inp.rate_shift is None:
         return rate, frac
-    live = inp.est_effective <= d
-    latest: dict[str, int] = {}
-    for j in np.flatnonzero(live):
-        key = inp.est_applies_to[j]
-        if key not in latest or inp.est_effective[j] >= inp.est_effective[latest[key]]:
-            latest[key] = j
-    if not latest:
-        return rate, frac
-    found = np.full(n, -1, dtype=np.int64)
-    for keys in (inp.grant_id, inp.group):
-        pick = np.array([latest.get(k, -1) for k in keys], dtype=np.int64) if n else np.zeros(0, np.int64)
-        found = np.where(found < 0, pick, found)
-    if "*" in latest:
-        found = np.where(found < 0, latest["*"], found)
-    has = found >= 0
-    rate[has] = inp.est_rate[found[has]]
-    frac[has] = inp.est_fraction[found[has]]
+    m = inp.rate_shift_mask & np.isnan(frac)
+    rate = rate.copy()
+    rate[m] = inp.rate_shift(np.nan_to_num(rate[m], nan=0.0))
     return rate, frac
+
+
+@dataclass
+class _Quantities:
+    outstanding: np.ndarray
+    cancelled: np.ndarray
+    n_exp: np.ndarray
+    vested: np.ndarray
+    granted_by: np.ndarray
+    elapsed: np.ndarray
+    el_last: np.ndarray
+    granted_g: np.ndarray
+    years_left_t: np.ndarray
+    years_left_g: np.ndarray
+
+
+def _quantities(inp: ExpenseInputs, dn: int, forfeitures: str, cut: int) -> _Quantities:
+    """Everything at day number ``dn`` that does not depend on fair values."""
+    key = (dn, forfeitures, cut, inp.rate_shift_label)
+    if inp.memo is not None and key in inp.memo:
+        return inp.memo[key]
+    pre = inp.prepared()
+    n_t = len(inp.t_qty)
+    granted_by = pre.t_gdate <= dn
+    in_time = pre.c_date <= cut
+    forf = pre.c_forfeit & in_time
+    canc = pre.c_cancel & in_time
+    forfeited = np.bincount(inp.c_tranche[forf], weights=inp.c_qty[forf], minlength=n_t)
+    cancelled = np.bincount(inp.c_tranche[canc], weights=inp.c_qty[canc], minlength=n_t)
+    outstanding = inp.t_qty - forfeited - cancelled
+    vested = (pre.t_vest <= dn) & granted_by
+    if forfeitures == "estimate":
+        rate, frac = estimates_at(inp, np.datetime64(dn, "D"))
+        r_t, f_t = rate[inp.t_grant], frac[inp.t_grant]
+        remaining = (pre.t_vest - (dn + 1)) / RATE_YEAR_DAYS
+        by_rate = outstanding * np.power(1.0 - np.nan_to_num(r_t), np.maximum(remaining, 0.0))
+        by_frac = np.minimum(f_t * inp.t_qty, outstanding)
+        expected = np.where(~np.isnan(f_t), by_frac, by_rate)
+        n_exp = np.where(vested, outstanding, expected)
+    else:
+        n_exp = outstanding.astype(float)
+    granted_g = pre.grant <= dn
+    q = _Quantities(
+        outstanding=outstanding, cancelled=cancelled, n_exp=n_exp, vested=vested, granted_by=granted_by,
+        elapsed=np.where(granted_by, _elapsed(dn, pre.t_gdate, pre.t_len), 0.0),
+        el_last=np.where(granted_g, _elapsed(dn, pre.grant, pre.g_len), 0.0),
+        granted_g=granted_g,
+        years_left_t=np.maximum(pre.t_vest - dn, 0) / DAYS_PER_YEAR,
+        years_left_g=np.maximum(pre.last - dn, 0) / DAYS_PER_YEAR,
+    )
+    if inp.memo is not None:
+        inp.memo[key] = q
+    return q
 
 
 def measure(inp: ExpenseInputs, d, *, attribution: str, forfeitures: str, events_through=None) -> Measurement:
@@ -99,55 +166,30 @@ def measure(inp: ExpenseInputs, d, *, attribution: str, forfeitures: str, events
     events_through : datetime64[D], optional
         Ignore events after this date (forecasts assume no further events).
     """
-    d = np.datetime64(d, "D")
-    cut = d if events_through is None else min(d, np.datetime64(events_through, "D"))
-    n_t = len(inp.t_qty)
+    dn = int(np.datetime64(d, "D").astype(np.int64))
+    cut = dn if events_through is None else min(dn, int(np.datetime64(events_through, "D").astype(np.int64)))
+    Q = _quantities(inp, dn, forfeitures, cut)
     gi = inp.t_grant
-    gdate_t = inp.grant_date[gi]
-    granted_by = gdate_t <= d
-
-    in_time = inp.c_date <= cut
-    forf = (inp.c_kind == "forfeit") & in_time
-    canc = (inp.c_kind == "cancel") & in_time & (inp.t_vest[inp.c_tranche] > inp.c_date)
-    forfeited = np.bincount(inp.c_tranche[forf], weights=inp.c_qty[forf], minlength=n_t)
-    cancelled = np.bincount(inp.c_tranche[canc], weights=inp.c_qty[canc], minlength=n_t)
-    outstanding = inp.t_qty - forfeited - cancelled
-
-    vested = (inp.t_vest <= d) & granted_by
-    if forfeitures == "estimate":
-        rate, frac = estimates_at(inp, d)
-        r_t, f_t = rate[gi], frac[gi]
-        remaining = (inp.t_vest - (d + DAY)).astype(np.int64) / RATE_YEAR_DAYS
-        by_rate = outstanding * np.power(1.0 - np.nan_to_num(r_t), np.maximum(remaining, 0.0))
-        by_frac = np.minimum(f_t * inp.t_qty, outstanding)
-        expected = np.where(~np.isnan(f_t), by_frac, by_rate)
-        n_exp = np.where(vested, outstanding, expected)
-    else:
-        n_exp = outstanding.astype(float)
-
-    elapsed = np.where(granted_by, elapsed_fraction(d, gdate_t, inp.t_vest), 0.0)
-    fv = inp.t_fv
-    value = fv * n_exp
     n_g = inp.n_grants
-    cancel_cost = np.bincount(gi, weights=np.where(granted_by, fv * cancelled, 0.0), minlength=n_g)
-    years_left_t = np.maximum((inp.t_vest - d).astype(np.int64), 0) / DAYS_PER_YEAR
+    fv = inp.t_fv
+    value = fv * Q.n_exp
+    cancel_cost = np.bincount(gi, weights=np.where(Q.granted_by, fv * Q.cancelled, 0.0), minlength=n_g)
     if attribution == "graded":
-        tranche_cost = value * elapsed
+        tranche_cost = value * Q.elapsed
         cost = np.bincount(gi, weights=tranche_cost, minlength=n_g)
-        left_t = np.where(granted_by, value - tranche_cost, 0.0)
+        left_t = np.where(Q.granted_by, value - tranche_cost, 0.0)
         unrec = np.bincount(gi, weights=left_t, minlength=n_g)
-        weighted = np.bincount(gi, weights=left_t * years_left_t, minlength=n_g)
+        weighted = np.bincount(gi, weights=left_t * Q.years_left_t, minlength=n_g)
         remaining = weighted / np.where(unrec > 0, unrec, 1.0)
     else:
         total = np.bincount(gi, weights=value, minlength=n_g)
-        vested_value = np.bincount(gi, weights=np.where(vested, value, 0.0), minlength=n_g)
-        granted_g = inp.grant_date <= d
-        el_last = np.where(granted_g, elapsed_fraction(d, inp.grant_date, inp.last_vest), 0.0)
-        cost = np.maximum(total * el_last, vested_value)
-        unrec = np.where(granted_g, total - cost, 0.0)
-        remaining = np.maximum((inp.last_vest - d).astype(np.int64), 0) / DAYS_PER_YEAR
+        vested_value = np.bincount(gi, weights=np.where(Q.vested, value, 0.0), minlength=n_g)
+        cost = np.maximum(total * Q.el_last, vested_value)
+        unrec = np.where(Q.granted_g, total - cost, 0.0)
+        remaining = Q.years_left_g
     remaining = np.where(unrec > 0, remaining, 0.0)
-    expected_total = np.bincount(gi, weights=np.where(granted_by, value, 0.0), minlength=n_g) + cancel_cost
+    expected_total = np.bincount(gi, weights=np.where(Q.granted_by, value, 0.0), minlength=n_g) + cancel_cost
+    n_exp, outstanding, cancelled, elapsed, vested = Q.n_exp, Q.outstanding, Q.cancelled, Q.elapsed, Q.vested
     return Measurement(
         n_expensed=n_exp, outstanding=outstanding, cancelled=cancelled, elapsed=elapsed, vested=vested,
         grant_cost=cost + cancel_cost, expected_total=expected_total, unrecognised=unrec,

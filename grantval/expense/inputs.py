@@ -35,10 +35,49 @@ class ExpenseInputs:
     est_effective: np.ndarray
     est_rate: np.ndarray
     est_fraction: np.ndarray
+    #: what-if: a function applied to the annual forfeiture rate (0 where none) of the grants in
+    #: ``rate_shift_mask``; grants estimated by an expected vest fraction are left as they are
+    rate_shift: object = None
+    rate_shift_mask: np.ndarray | None = None
+    #: shared across runs that differ only in fair values (what-if scenarios): quantities by date
+    memo: dict | None = None
+    #: shift label, part of the memo key when a forfeiture-rate shift is applied
+    rate_shift_label: str = ""
+    _prep: object = None
 
     @property
     def n_grants(self) -> int:
         return len(self.grant_id)
+
+    def prepared(self) -> "Prepared":
+        """Integer day numbers and index arrays computed once per inputs object."""
+        if self._prep is None:
+            self._prep = Prepared(self)
+        return self._prep
+
+
+class Prepared:
+    """Static per-tranche, per-change and per-estimate arrays, as int64 day numbers."""
+
+    def __init__(self, inp: ExpenseInputs):
+        day = lambda a: np.asarray(a, dtype="datetime64[D]").astype(np.int64)  # noqa: E731
+        self.grant = day(inp.grant_date)
+        self.last = day(inp.last_vest)
+        self.t_gdate = self.grant[inp.t_grant]
+        self.t_vest = day(inp.t_vest)
+        self.t_len = self.t_vest - self.t_gdate
+        self.g_len = self.last - self.grant
+        self.c_date = day(inp.c_date)
+        self.c_forfeit = inp.c_kind == "forfeit"
+        self.c_cancel = (inp.c_kind == "cancel") & (self.t_vest[inp.c_tranche] > self.c_date)
+        self.est_eff = day(inp.est_effective)
+        keys = sorted({k for k in inp.est_applies_to if k is not None})
+        self.est_keys = keys
+        index = {k: i for i, k in enumerate(keys)}
+        self.est_key = np.array([index.get(k, -1) for k in inp.est_applies_to], dtype=np.int64)
+        self.code_grant = np.array([index.get(k, -1) for k in inp.grant_id], dtype=np.int64)
+        self.code_group = np.array([index.get(k, -1) for k in inp.group], dtype=np.int64)
+        self.code_star = index.get("*", -1)
 
 
 def build_inputs(ledger: Ledger, fair_values: FairValues) -> ExpenseInputs:

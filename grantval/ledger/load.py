@@ -12,7 +12,7 @@ from grantval.ledger.events import apply_events
 from grantval.ledger.model import Ledger
 from grantval.ledger.parse import parse_table
 from grantval.ledger.schedule import combine_schedules, generate_tranches
-from grantval.ledger.schema import REQUIRED_TABLES, TABLE_NAMES, TABLES
+from grantval.ledger.schema import REQUIRED_TABLES, TABLE_NAMES, TABLES, Column
 from grantval.policy import policy_from_rows
 
 
@@ -20,8 +20,31 @@ def _empty(name: str) -> RawTable:
     return RawTable(name, name, [], [], [], [])
 
 
-def read_ledger(location) -> tuple[Ledger | None, list[Problem]]:
+def _planned_table(path) -> RawTable:
+    """The planned-grants table: a CSV file, or the ``grants`` (else first) sheet of a workbook."""
+    import pathlib
+
+    from grantval.io.read import read_csv_table, read_xlsx
+
+    p = pathlib.Path(path)
+    if not p.exists():
+        raise LedgerError([Problem(str(p), None, None, "no such file")], str(p))
+    if p.suffix.lower() in (".xlsx", ".xlsm"):
+        tables, probs = read_xlsx(p, ("grants",))
+        if "grants" not in tables:
+            raise LedgerError(probs or [Problem(p.name, None, None, "the workbook has no sheet named grants")], str(p))
+        t = tables["grants"]
+        t.source = f"{p.name} {t.source}"
+        return t
+    t = read_csv_table(p, "grants")
+    return t
+
+
+def read_ledger(location, planned=None) -> tuple[Ledger | None, list[Problem]]:
     """Read and check a ledger; never raises for problems in the data.
+
+    ``planned`` is an optional file of hypothetical grants (the grants format;
+    ``holder_id`` may be blank) valued and expensed as if granted.
 
     Returns
     -------
@@ -55,6 +78,26 @@ def read_ledger(location) -> tuple[Ledger | None, list[Problem]]:
     problems += v.check_assumptions(a, sources["assumptions"])
     pos, probs = v.match_assumptions(g, a, sources["grants"])
     problems += probs
+    g["_source"] = sources["grants"]
+    g["planned"] = False
+    if planned is not None:
+        ptab = _planned_table(planned)
+        cols = tuple(Column(c.name, c.kind, False, c.choices, c.default) if c.name == "holder_id" else c
+                     for c in TABLES["grants"])
+        pframe, probs = parse_table(ptab, cols)
+        problems += probs
+        pframe["holder_id"] = pframe["holder_id"].where(pframe["holder_id"].notna(), "(planned)")
+        pframe = v.fill_grant_defaults(pframe)
+        problems += v.check_grants(pframe, ptab.source)
+        clash = pframe["grant_id"].isin(set(g["grant_id"].dropna()))
+        for r, k in zip(pframe["_row"][clash], pframe["grant_id"][clash]):
+            problems.append(Problem(ptab.source, int(r), "grant_id", f"{k!r} is also a grant of the ledger"))
+        ppos, probs = v.match_assumptions(pframe, a, ptab.source)
+        problems += probs
+        pframe["_source"] = ptab.source
+        pframe["planned"] = True
+        g = pd.concat([g, pframe], ignore_index=True)
+        pos = np.concatenate([pos, ppos])
     problems += v.check_grant_assumptions(g, a, pos, sources["assumptions"])
 
     ok = v.schedule_ok(g)
@@ -94,9 +137,9 @@ def read_ledger(location) -> tuple[Ledger | None, list[Problem]]:
     return ledger, problems
 
 
-def load_ledger(location) -> Ledger:
+def load_ledger(location, planned=None) -> Ledger:
     """Read and check a ledger, raising :class:`LedgerError` listing every error found."""
-    ledger, problems = read_ledger(location)
+    ledger, problems = read_ledger(location, planned)
     if ledger is None:
         raise LedgerError(problems, str(location))
     return ledger

@@ -86,8 +86,9 @@ def check_last_vest(g: pd.DataFrame, tranches: pd.DataFrame, src: str) -> list[P
     lv = last.to_numpy("datetime64[D]")
     bad = ~np.isnat(exp) & (lv > exp)
     rows = g["_row"].to_numpy()[idx]
-    for r, v, e in zip(rows[bad], lv[bad], exp[bad]):
-        p.append(Problem(src, int(r), "expiration_date", f"the last tranche vests on {v}, after the expiration date {e}"))
+    srcs = g["_source"].to_numpy()[idx] if "_source" in g.columns else np.full(len(idx), src, dtype=object)
+    for r, v, e, s in zip(rows[bad], lv[bad], exp[bad], srcs[bad]):
+        p.append(Problem(s, int(r), "expiration_date", f"the last tranche vests on {v}, after the expiration date {e}"))
     return p
 
 

@@ -8,8 +8,9 @@ scalar inputs.
 """
 
 from grantval.valuation.bsm import bsm_value
+from grantval.valuation.greeks import bsm_sensitivities
 from grantval.valuation.lattice import DEFAULT_STEPS, lattice_value
 from grantval.valuation.rsu import rsu_value
 from grantval.valuation.terms import simplified_term
 
-__all__ = ["bsm_value", "lattice_value", "simplified_term", "rsu_value", "DEFAULT_STEPS"]
+__all__ = ["bsm_value", "bsm_sensitivities", "lattice_value", "simplified_term", "rsu_value", "DEFAULT_STEPS"]
