@@ -490,3 +490,50 @@ def write_whatif(run, xlsx: pathlib.Path | None, csv_dir: pathlib.Path | None, c
         sheets = W.whatif_sheets(info, scen, sens, torn, fvs, exp, greeks, curve, run.ledger.warnings)
         write_workbook(pathlib.Path(xlsx), sheets, fixed_time=info.workbook_time())
     return outputs
+
+
+def assumptions(prices, curve, *, ledger=None, dates=None, dividends=None, peers=None, **options):
+    """Derive an assumptions table from market data; see :mod:`grantval.market.derive`.
+
+    ``options`` are the fields of :class:`grantval.market.derive.MarketOptions`.
+    """
+    from grantval.market.derive import MarketOptions, derive_assumptions
+
+    return derive_assumptions(prices, curve, dates=dates, ledger=ledger, dividends=dividends, peers=peers,
+                              options=MarketOptions(**options))
+
+
+MARKET_NOTES = [
+    ("Share price", "The close on the grant date, or the last close before it (source_price_note says which)."),
+    ("Expected term", "From the ledger's option grants on the date, quantity-weighted, by the simplified method "
+                      "(SEC SAB Topic 14.D.2); expected_term_years is left blank so the ledger applies the "
+                      "simplified method grant by grant. With --dates, the term given."),
+    ("Volatility", "Sample standard deviation of log returns over the lookback ending on the grant date, "
+                   "annualised by the square root of 252, 52 or 12 periods a year (ASC 718-10-55-37). With peers, "
+                   "blended with their weighted-average volatility over the same lookback (SAB Topic 14.D.1)."),
+    ("Risk-free rate", "Par yield interpolated linearly between tenors to the expected term (flat beyond the ends), "
+                       "converted from semiannual to continuous compounding: r = 2 ln(1 + y/2)."),
+    ("Dividend yield", "Dividends with ex-dates in the 365 days up to the grant date, over the share price."),
+]
+
+
+def write_assumptions(derived, csv_path: pathlib.Path, xlsx: pathlib.Path | None, inputs: list[str],
+                      command: str = "", timestamp: bool = True) -> list[pathlib.Path]:
+    """Write the derived assumptions as CSV (a ledger ``assumptions`` table) and optionally a workbook."""
+    from grantval import workbooks as W
+
+    outputs = [pathlib.Path(csv_path)] + ([pathlib.Path(xlsx)] if xlsx is not None else [])
+    refuse_overwriting_inputs(outputs, inputs)
+    write_csv(pathlib.Path(csv_path), derived.table)
+    if xlsx is not None:
+        from grantval.io.read import sha256_of
+
+        info = W.RunInfo("grantval assumptions: valuation assumptions from market data", command or "(Python API)",
+                         "", [(p, sha256_of(pathlib.Path(p))) for p in inputs], [], derived.notes, timestamp)
+        fmts = {"share_price": "#,##0.00", "volatility": "0.00%", "risk_free_rate": "0.000%", "dividend_yield": "0.00%",
+                "expected_term_years": "0.0000"}
+        sheets = [W.run_sheet(info, info.workbook_time()),
+                  Sheet("assumptions", frame=derived.table, formats=fmts),
+                  W.notes_sheet(MARKET_NOTES, [])]
+        write_workbook(pathlib.Path(xlsx), sheets, fixed_time=info.workbook_time())
+    return outputs

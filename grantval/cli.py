@@ -235,6 +235,60 @@ def whatif_cmd(
         typer.echo(f"wrote {path}")
 
 
+@app.command("assumptions")
+def assumptions_cmd(
+    prices: pathlib.Path = typer.Option(..., "--prices", help="CSV: date, close[, ticker]."),
+    curve: pathlib.Path = typer.Option(..., "--curve", help="CSV: date, then one column per tenor (1m, 3m, 1y, 10y...)."),
+    dividends: Optional[pathlib.Path] = typer.Option(None, "--dividends", help="CSV: ex_date, amount[, ticker]."),
+    peers: Optional[pathlib.Path] = typer.Option(None, "--peers", help="CSV: ticker, weight (peer-group volatility)."),
+    ledger: Optional[pathlib.Path] = typer.Option(None, "--ledger", help="Take the grant dates and terms from this ledger."),
+    dates: Optional[str] = typer.Option(None, "--dates", help="Or: grant dates, comma-separated."),
+    lookback: str = typer.Option("expected-term", "--lookback", help="expected-term, contractual-term or YEARS."),
+    frequency: str = typer.Option("daily", "--frequency", help="daily, weekly or monthly returns."),
+    ticker: Optional[str] = typer.Option(None, "--ticker", help="The company's ticker when PRICES holds several."),
+    peer_weight: float = typer.Option(0.5, "--peer-weight", help="Weight of the peer volatility in the blend (0-1)."),
+    max_gap_days: int = typer.Option(7, "--max-gap-days", help="Longest gap allowed between closes, days."),
+    curve_units: str = typer.Option("auto", "--curve-units", help="auto, percent or decimal."),
+    curve_fallback: bool = typer.Option(False, "--curve-fallback", help="Use the nearest earlier curve date when a grant date has none."),
+    allow_short_history: bool = typer.Option(False, "--allow-short-history", help="Accept (and flag) a lookback longer than the history."),
+    expected_term: Optional[float] = typer.Option(None, "--expected-term", help="With --dates: expected term, years."),
+    contractual_term: Optional[float] = typer.Option(None, "--contractual-term", help="With --dates: contractual term, years."),
+    output: pathlib.Path = typer.Option(..., "-o", "--output", help="assumptions CSV to write."),
+    xlsx: Optional[pathlib.Path] = typer.Option(None, "--xlsx", help="Also write a workbook."),
+    no_timestamp: bool = typer.Option(False, "--no-timestamp", help="Record no run time."),
+) -> None:
+    """Derive share price, volatility, risk-free rate and dividend yield per grant date, with provenance."""
+    from grantval import api
+
+    if (ledger is None) == (dates is None):
+        usage("give either --ledger LEDGER or --dates DATE,...")
+    if lookback not in ("expected-term", "contractual-term"):
+        try:
+            lb: object = float(lookback)
+        except ValueError:
+            usage(f"--lookback {lookback!r}: write expected-term, contractual-term or a number of years")
+        if not lb > 0:
+            usage("--lookback must be a positive number of years")
+    else:
+        lb = lookback
+    if curve_units not in ("auto", "percent", "decimal"):
+        usage("--curve-units must be auto, percent or decimal")
+    try:
+        derived = api.assumptions(
+            prices, curve, ledger=ledger, dates=None if dates is None else dates.split(","), dividends=dividends,
+            peers=peers, lookback=lb, frequency=frequency, ticker=ticker, peer_weight=peer_weight,
+            max_gap_days=max_gap_days, curve_units=curve_units, curve_fallback=curve_fallback,
+            allow_short_history=allow_short_history, expected_term=expected_term, contractual_term=contractual_term)
+        inputs = [str(p) for p in (prices, curve, dividends, peers) if p is not None]
+        written = api.write_assumptions(derived, output, xlsx, inputs, command=_command_line(),
+                                        timestamp=not no_timestamp)
+    except GrantvalError as err:
+        fail(err)
+    typer.echo(f"{len(derived.table)} grant dates")
+    for path in written:
+        typer.echo(f"wrote {path}")
+
+
 def _command_line() -> str:
     return " ".join(["grantval"] + sys.argv[1:])
 

@@ -143,3 +143,57 @@ def load_ledger(location, planned=None) -> Ledger:
     if ledger is None:
         raise LedgerError(problems, str(location))
     return ledger
+
+
+def read_grant_terms(location) -> tuple[list[tuple[int, float, float, bool]], list[Problem]]:
+    """Grant dates of a ledger's grants table with their quantity-weighted terms.
+
+    Only the grants (and tranches) tables are read: the assumptions table may
+    not exist yet.  Returns ``(day number, expected term, contractual term,
+    has options)`` per distinct grant date, the terms by the simplified method
+    over the option grants of that date (NaN when there are none).
+    """
+    from grantval.dates import year_fraction
+
+    raw = read_ledger_files(location, ("grants", "tranches"))
+    problems = list(raw.problems)
+    if "grants" not in raw.tables:
+        problems.append(Problem(str(location), None, None, "the required table grants is missing"))
+        return [], problems
+    g, probs = parse_table(raw.tables["grants"], TABLES["grants"])
+    problems += probs
+    src = raw.tables["grants"].source
+    g = v.fill_grant_defaults(g)
+    problems += v.check_grants(g, src)
+    ok = v.schedule_ok(g) & ~np.isnat(g["grant_date"].to_numpy("datetime64[D]"))
+    ok_pos = np.flatnonzero(ok)
+    tr = generate_tranches(g.iloc[ok_pos])
+    tr["grant_idx"] = ok_pos[tr["grant_idx"].to_numpy()]
+    if "tranches" in raw.tables:
+        tframe, probs = parse_table(raw.tables["tranches"], TABLES["tranches"])
+        problems += probs
+        given, probs = v.check_tranches_table(tframe, g, raw.tables["tranches"].source)
+        problems += probs
+        tr = combine_schedules(tr, given.drop(columns="_row") if len(given) else None)
+    if any(p.severity == "error" for p in problems):
+        return [], problems
+    gd = g["grant_date"].to_numpy("datetime64[D]")
+    option = (g["award_type"] == "option").to_numpy()
+    gi = tr["grant_idx"].to_numpy()
+    tq = tr["quantity"].to_numpy(float)
+    tv = np.maximum(year_fraction(gd[gi], tr["vest_date"].to_numpy("datetime64[D]")), 0.0)
+    qsum = np.bincount(gi, weights=tq, minlength=len(g))
+    avg_vest = np.bincount(gi, weights=tq * tv, minlength=len(g)) / np.where(qsum > 0, qsum, 1)
+    contract = year_fraction(gd, g["expiration_date"].to_numpy("datetime64[D]"))
+    term = (avg_vest + contract) / 2.0
+    q = g["quantity"].to_numpy(float)
+    out = []
+    for d in np.unique(gd[ok]):
+        m = ok & (gd == d)
+        mo = m & option
+        if mo.any():
+            out.append((int(d.astype(np.int64)), float(np.average(term[mo], weights=q[mo])),
+                        float(np.average(contract[mo], weights=q[mo])), True))
+        else:
+            out.append((int(d.astype(np.int64)), float("nan"), float("nan"), False))
+    return out, problems

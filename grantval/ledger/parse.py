@@ -83,7 +83,7 @@ def parse_table(table: RawTable, columns: tuple[Column, ...]) -> tuple[pd.DataFr
     src = table.source
     known = {c.name for c in columns}
     for h in table.headers:
-        if h and h not in known:
+        if h and h not in known and not h.startswith("source_"):
             problems.append(Problem(src, 1, h, "unknown column; it is ignored", "warning"))
     data: dict[str, object] = {"_row": np.asarray(table.rows, dtype=np.int64)}
     n = len(table.rows)

@@ -1,0 +1,1 @@
+"""Deriving valuation assumptions from market data (prices, a yield curve, dividends, peers)."""
