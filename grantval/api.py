@@ -82,7 +82,22 @@ def value(location, *, valuation_unit: str | None = None, lattice_steps: int | N
     """
     ledger = load_ledger(location)
     policy = resolve_policy(ledger.policy_values, valuation_unit=valuation_unit, lattice_steps=lattice_steps)
-    return ValueRun(ledger, policy, compute_fair_values(ledger, policy))
+    fv = compute_fair_values(ledger, policy)
+    reconcile(ledger, fv)
+    return ValueRun(ledger, policy, fv)
+
+
+def reconcile(ledger: Ledger, fv: FairValues, schedule=None) -> None:
+    """Nothing lost: grants read = grants valued (= grants in the schedule); stop the run otherwise."""
+    from grantval.errors import GrantvalError
+
+    valued = int(fv.table["grant_id"].nunique())
+    counts = [("read", ledger.n_grants), ("valued", valued), ("with a fair value", int(np.isfinite(fv.grant_value).sum()))]
+    if schedule is not None:
+        counts.append(("in the schedule", int(schedule.expense_cents.shape[0])))
+    if len({c for _, c in counts}) != 1:
+        raise GrantvalError("reconciliation failed (a bug in grantval; nothing was written): grants "
+                            + ", ".join(f"{k} {v}" for k, v in counts))
 
 
 FAIR_VALUE_FORMATS = {
@@ -191,6 +206,7 @@ def expense(location, *, through, start=None, forecast_through=None, period=None
     inp = build_inputs(ledger, fv)
     sched = compute_schedule(inp, policy, _day(through, "--through"), _day(start, "--from"),
                              _day(forecast_through, "--forecast-through"))
+    reconcile(ledger, fv, sched)
     return ExpenseRun(ledger, policy, fv, inp, sched, str(sched.period_ends[-1]), str(sched.window_start),
                       None if forecast_through is None else str(_day(forecast_through, "--forecast-through")))
 

@@ -19,6 +19,7 @@ from grantval.errors import GrantvalError
 
 app = typer.Typer(
     add_completion=False,
+    pretty_exceptions_enable=False,
     no_args_is_help=True,
     help="Grant-date fair values and expense schedules for stock-based compensation. "
     "Results inform accounting judgements; they must be reviewed by qualified accounting staff.",
@@ -120,8 +121,8 @@ def value_cmd(
         fail(err)
     fv = run.fair_values
     total = float(fv.table["grant_date_fair_value"].sum())
-    typer.echo(f"valued {run.ledger.n_grants} grants ({fv.distinct_valuations} distinct valuations); "
-               f"total grant-date fair value {total:,.2f}")
+    typer.echo(f"grants read {run.ledger.n_grants}, valued {fv.table['grant_id'].nunique()} "
+               f"({fv.distinct_valuations} distinct valuations); total grant-date fair value {total:,.2f}")
     for path in written:
         typer.echo(f"wrote {path}")
 
@@ -300,8 +301,24 @@ def usage(message: str) -> None:
 
 
 def main(argv: Optional[list[str]] = None) -> None:
-    """Entry point of the console script."""
-    app(args=argv, prog_name="grantval")
+    """Entry point of the console script.
+
+    An unexpected exception is a bug in grantval: it is reported in one line
+    (exit code 70) instead of a traceback, unless GRANTVAL_DEBUG=1.
+    """
+    import os
+
+    try:
+        app(args=argv, prog_name="grantval")
+    except GrantvalError as err:
+        typer.echo(f"error: {err}", err=True)
+        sys.exit(err.exit_code)
+    except Exception as exc:  # noqa: BLE001 - the last line of defence
+        if os.environ.get("GRANTVAL_DEBUG") == "1":
+            raise
+        typer.echo(f"internal error (a bug in grantval; please report it with the input that caused it): "
+                   f"{type(exc).__name__}: {exc}", err=True)
+        sys.exit(70)
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -101,6 +101,13 @@ def policy_from_rows(rows: list[tuple[int, str, str]], source: str) -> tuple[dic
             problems.append(Problem(source, row, "value", f"{k}: {err}"))
         else:
             values[k] = v
+    if values.get("standard") == "ifrs2":
+        for key, allowed, why in (("attribution", "graded", "IFRS 2.IG11 recognises each tranche over its own "
+                                   "vesting period"), ("forfeitures", "estimate", "IFRS 2.20 requires an estimate "
+                                                       "of the instruments expected to vest")):
+            if key in values and values[key] != allowed:
+                problems.append(Problem(source, seen[key], "value", f"{key} {values[key]} cannot be combined with "
+                                        f"standard ifrs2: {why}"))
     return values, problems
 
 

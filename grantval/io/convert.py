@@ -73,3 +73,25 @@ def csv_folder_to_workbook(folder: pathlib.Path, target: pathlib.Path, names: tu
     wb.properties.modified = fixed
     with atomic_path(pathlib.Path(target)) as tmp:
         wb.save(tmp)
+
+
+def workbook_to_csv_folder(book: pathlib.Path, folder: pathlib.Path, names: tuple[str, ...]) -> None:
+    """Write each sheet of ``book`` named like a table as ``<name>.csv`` (dates as ISO text)."""
+    from grantval.io.read import read_xlsx
+    from grantval.io.write import csv_text
+
+    tables, problems = read_xlsx(pathlib.Path(book), names)
+    errors = [p for p in problems if p.severity == "error"]
+    if errors:
+        from grantval.errors import LedgerError
+
+        raise LedgerError(errors, str(book))
+    folder = pathlib.Path(folder)
+    folder.mkdir(parents=True, exist_ok=True)
+    for name, t in tables.items():
+        with atomic_path(folder / f"{name}.csv") as tmp, open(tmp, "w", newline="", encoding="utf-8") as fh:
+            w = csv.writer(fh, lineterminator="\n")
+            w.writerow(t.original_headers)
+            for row in t.cells:
+                w.writerow(["" if v is None else (v.isoformat() if isinstance(v, _dt.date) else
+                                                  (v if isinstance(v, str) else csv_text(v))) for v in row])

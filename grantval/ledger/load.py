@@ -16,6 +16,9 @@ from grantval.ledger.schema import REQUIRED_TABLES, TABLE_NAMES, TABLES, Column
 from grantval.policy import policy_from_rows
 
 
+KNOWN_COLUMNS = {name: frozenset(c.name for c in cols) for name, cols in TABLES.items()}
+
+
 def _empty(name: str) -> RawTable:
     return RawTable(name, name, [], [], [], [])
 
@@ -53,7 +56,7 @@ def read_ledger(location, planned=None) -> tuple[Ledger | None, list[Problem]]:
     problems : list of Problem
         Every error and warning, in table order.
     """
-    raw = read_ledger_files(location, TABLE_NAMES)
+    raw = read_ledger_files(location, TABLE_NAMES, KNOWN_COLUMNS)
     problems: list[Problem] = list(raw.problems)
     where = "folder" if not str(location).lower().endswith((".xlsx", ".xlsm")) else "workbook"
     for name in REQUIRED_TABLES:
@@ -155,7 +158,7 @@ def read_grant_terms(location) -> tuple[list[tuple[int, float, float, bool]], li
     """
     from grantval.dates import year_fraction
 
-    raw = read_ledger_files(location, ("grants", "tranches"))
+    raw = read_ledger_files(location, ("grants", "tranches"), KNOWN_COLUMNS)
     problems = list(raw.problems)
     if "grants" not in raw.tables:
         problems.append(Problem(str(location), None, None, "the required table grants is missing"))

@@ -45,7 +45,10 @@ def _number(v):
         return None, f"must be a number, not a date ({_text(v)})"
     s = str(v).strip()
     if _NUMBER.match(s):
-        return float(s), None
+        x = float(s)
+        if not math.isfinite(x):
+            return None, f"{s!r} is too large to be a number"
+        return x, None
     if s.endswith("%") and _NUMBER.match(s[:-1].strip()):
         return None, f"{s!r} is a percentage; write rates and volatilities as decimals (35% is 0.35)"
     if re.match(r"^[+-]?\d{1,3}(,\d{3})+(\.\d*)?$", s):

@@ -13,6 +13,9 @@ from grantval.dates import year_fraction
 from grantval.errors import Problem
 from grantval.ledger.schema import RATE_MAX, RATE_MIN, VOLATILITY_MAX
 
+#: largest quantity of one grant (keeps the tranche arithmetic exact in 64-bit integers)
+MAX_QUANTITY = 1e12
+
 
 def _at(frame: pd.DataFrame, mask) -> list[int]:
     return frame["_row"].to_numpy()[np.asarray(mask, dtype=bool)].tolist()
@@ -30,6 +33,8 @@ def check_grants(g: pd.DataFrame, src: str) -> list[Problem]:
     q = g["quantity"].to_numpy()
     for r, x in zip(_at(g, q <= 0), q[q <= 0]):
         p.append(Problem(src, r, "quantity", f"must be a positive whole number; got {x:g}"))
+    for r, x in zip(_at(g, q > MAX_QUANTITY), q[q > MAX_QUANTITY]):
+        p.append(Problem(src, r, "quantity", f"{x:g} is too large (more than {MAX_QUANTITY:,.0f})"))
     option = (g["award_type"] == "option").to_numpy()
     price = g["exercise_price"].to_numpy()
     exp = g["expiration_date"].to_numpy("datetime64[D]")
@@ -48,6 +53,8 @@ def check_grants(g: pd.DataFrame, src: str) -> list[Problem]:
     cliff = g["cliff_months"].to_numpy()
     for r, x in zip(_at(g, months < 0), months[months < 0]):
         p.append(Problem(src, r, "vest_months", f"must be zero or more; got {x:g}"))
+    for r, x in zip(_at(g, months > 1200), months[months > 1200]):
+        p.append(Problem(src, r, "vest_months", f"{x:g} months is more than 100 years"))
     for r, x in zip(_at(g, every < 1), every[every < 1]):
         p.append(Problem(src, r, "vest_every_months", f"must be at least 1; got {x:g}"))
     with np.errstate(invalid="ignore", divide="ignore"):
@@ -69,6 +76,7 @@ def schedule_ok(g: pd.DataFrame) -> np.ndarray:
     cliff = g["cliff_months"].to_numpy()
     ok = ~np.isnan(months) & ~np.isnan(every) & ~np.isnan(cliff) & ~np.isnan(g["quantity"].to_numpy())
     ok &= (months >= 0) & (every >= 1) & (cliff >= 0) & (cliff <= months) & (g["quantity"].to_numpy() > 0)
+    ok &= (g["quantity"].to_numpy() <= MAX_QUANTITY) & (months <= 1200)
     with np.errstate(invalid="ignore"):
         ok &= np.mod(np.nan_to_num(months), np.where(every >= 1, every, 1)) == 0
     ok &= ~np.isnat(g["vest_start_date"].to_numpy("datetime64[D]"))
@@ -211,6 +219,8 @@ def check_tranches_table(t: pd.DataFrame, g: pd.DataFrame, src: str) -> tuple[pd
     for r, k in zip(_at(t, (gpos < 0) & t["grant_id"].notna().to_numpy()), t["grant_id"][(gpos < 0) & t["grant_id"].notna()]):
         p.append(Problem(src, r, "grant_id", f"{k!r} is not a grant in the grants table"))
     q = t["quantity"].to_numpy()
+    for r, x in zip(_at(t, q > MAX_QUANTITY), q[q > MAX_QUANTITY]):
+        p.append(Problem(src, r, "quantity", f"{x:g} is too large (more than {MAX_QUANTITY:,.0f})"))
     for r, x in zip(_at(t, q <= 0), q[q <= 0]):
         p.append(Problem(src, r, "quantity", f"must be a positive whole number; got {x:g}"))
     ok = (gpos >= 0) & ~np.isnan(q) & ~np.isnat(t["vest_date"].to_numpy("datetime64[D]"))

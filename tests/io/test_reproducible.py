@@ -43,3 +43,11 @@ def test_ledger_text_starting_with_equals_is_text_in_expense_workbook(tmp_path):
     ws = openpyxl.load_workbook(tmp_path / "e.xlsx")["expense_by_grant"]
     cells = [c for c in ws[2] if c.value == "=1+1"]
     assert cells and all(c.data_type == "s" for c in cells)
+
+
+def test_csv_and_xlsx_inputs_give_byte_identical_expense_csv(tmp_path):
+    for name, ledger in (("csv", SAMPLE), ("xlsx", SAMPLE / "sample_grants.xlsx")):
+        run = api.expense(ledger, through="2026-12-31", forecast_through="2027-06-30")
+        api.write_expense(run, None, tmp_path / name)
+    for f in (tmp_path / "csv").iterdir():
+        assert f.read_bytes() == (tmp_path / "xlsx" / f.name).read_bytes(), f.name
