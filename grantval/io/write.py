@@ -126,21 +126,79 @@ def _column_values(series: pd.Series) -> list:
     return list(arr)
 
 
+def _csv_field(text: str) -> str:
+    """One text field: formula guard, then CSV quoting when needed."""
+    if text.startswith(_FORMULA_START):
+        text = "'" + text
+    if any(ch in text for ch in ',"\n\r'):
+        text = '"' + text.replace('"', '""') + '"'
+    return text
+
+
+def _mapped(values: np.ndarray, encode) -> np.ndarray:
+    """Encode each distinct value once (Python) and spread the results back (numpy)."""
+    codes, uniques = pd.factorize(pd.Series(values), use_na_sentinel=True)
+    table = np.array([encode(u).encode("utf-8").replace(b"\x00", b"") for u in uniques] + [b""], dtype=bytes)
+    return table[codes]  # -1 (missing) takes the last entry, b""
+
+
+_CENTS = np.array([f".{i:02d}".encode() for i in range(100)], dtype="S3")
+
+
+def money_field(values: np.ndarray) -> np.ndarray:
+    """Currency amounts with exactly two decimals, from values that are whole cents (vectorised)."""
+    v = np.asarray(values, dtype=float)
+    missing = np.isnan(v)
+    cents = np.rint(np.where(missing, 0.0, v) * 100.0).astype(np.int64)
+    a = np.abs(cents)
+    out = np.char.add((a // 100).astype("S20"), _CENTS[a % 100])
+    neg = cents < 0
+    if neg.any():
+        out = np.where(neg, np.char.add(b"-", out), out)
+    if missing.any():
+        out = np.where(missing, b"", out)
+    return out
+
+
+def column_field(series: pd.Series, money: bool = False) -> np.ndarray:
+    """CSV fields (bytes) of one column, vectorised by kind."""
+    arr = series.to_numpy()
+    if money:
+        return money_field(arr)
+    if arr.dtype == bool:
+        return np.where(arr, b"true", b"false")
+    if np.issubdtype(arr.dtype, np.integer):
+        return arr.astype("S21")
+    if np.issubdtype(arr.dtype, np.floating):
+        return _mapped(arr, lambda x: repr(int(x)) if float(x).is_integer() and abs(x) < 1e15 else repr(float(x)))
+    if np.issubdtype(arr.dtype, np.datetime64):
+        days = arr.astype("datetime64[D]")
+        nat = np.isnat(days)
+        codes, uniques = pd.factorize(np.where(nat, 0, days.astype(np.int64)))
+        table = np.array([str(np.datetime64(int(u), "D")).encode() for u in uniques], dtype=bytes)
+        return np.where(nat, b"", table[codes]) if nat.any() else table[codes]
+    return _mapped(np.asarray(arr, dtype=object), lambda x: _csv_field(csv_text(x)))
+
+
 def write_csv(path: pathlib.Path, frame: pd.DataFrame, money: Sequence[str] = ()) -> None:
-    """Write ``frame`` to ``path`` atomically with snake_case headers as given.
+    """Write ``frame`` to ``path`` atomically with snake_case headers as given (vectorised by column).
 
     Columns named in ``money`` are written with exactly two decimals.
     """
-    cols = []
-    for c in frame.columns:
-        if c in money:
-            cols.append(["" if math.isnan(v) else f"{v:.2f}" for v in frame[c].to_numpy(float)])
-        else:
-            cols.append([csv_text(v) for v in _column_values(frame[c])])
-    with atomic_path(path) as tmp, open(tmp, "w", newline="", encoding="utf-8") as fh:
-        w = csv.writer(fh, lineterminator="\n")
-        w.writerow(list(frame.columns))
-        w.writerows(zip(*cols))
+    header = ",".join(_csv_field(str(c)) for c in frame.columns).encode("utf-8")
+    if len(frame):
+        row = None
+        for c in frame.columns:
+            f = column_field(frame[c], c in money)
+            row = f if row is None else np.char.add(np.char.add(row, b","), f)
+        # fixed-width rows padded with NUL bytes: add the line ends, then drop the padding
+        row = np.char.add(row, b"\n")
+        flat = row.view(np.uint8)
+        body = flat[flat != 0].tobytes()
+    else:
+        body = b""
+    with atomic_path(path) as tmp:
+        tmp.write_bytes(header + b"\n" + body)
 
 
 @dataclass
