@@ -74,6 +74,51 @@ def _date(v):
     return None, f"{s!r} is not an ISO date (write 2027-03-15)"
 
 
+class _Bool:
+    """A boolean cell, kept apart from the numbers 0 and 1 when cells are grouped."""
+
+    __slots__ = ("value",)
+
+    def __init__(self, value: bool):
+        self.value = value
+
+    def __hash__(self):
+        return hash(("bool", self.value))
+
+    def __eq__(self, other):
+        return isinstance(other, _Bool) and other.value == self.value
+
+
+def _type_uniques(col: Column, uniques, blank_u) -> tuple[list, list]:
+    """Typed value and error (or None) of each distinct cell of a column."""
+    typed, errors = [], []
+    for u, is_blank in zip(uniques, blank_u):
+        u = u.value if isinstance(u, _Bool) else u
+        if is_blank:
+            typed.append(None if col.kind in ("text", "choice") else (np.nan if col.kind != "date" else np.datetime64("NaT")))
+            errors.append(None)
+            continue
+        if col.kind == "text":
+            typed.append(_text(u))
+            errors.append(None)
+        elif col.kind == "choice":
+            t = _text(u).lower()
+            ok = t in col.choices
+            typed.append(t if ok else None)
+            errors.append(None if ok else f"{_text(u)!r} is not one of: {', '.join(col.choices)}")
+        elif col.kind in ("number", "integer"):
+            x, err = _number(u)
+            if err is None and col.kind == "integer" and not float(x).is_integer():
+                err = f"{_text(u)!r} must be a whole number"
+            typed.append(np.nan if err else x)
+            errors.append(err)
+        else:
+            x, err = _date(u)
+            typed.append(np.datetime64("NaT") if err else x)
+            errors.append(err)
+    return typed, errors
+
+
 def parse_table(table: RawTable, columns: tuple[Column, ...]) -> tuple[pd.DataFrame, list[Problem]]:
     """Type one raw table.
 
@@ -89,65 +134,43 @@ def parse_table(table: RawTable, columns: tuple[Column, ...]) -> tuple[pd.DataFr
         if h and h not in known and not h.startswith("source_"):
             problems.append(Problem(src, 1, h, "unknown column; it is ignored", "warning"))
     data: dict[str, object] = {"_row": np.asarray(table.rows, dtype=np.int64)}
-    n = len(table.rows)
+    rows = np.asarray(table.rows, dtype=np.int64)
+    n = len(rows)
     for col in columns:
         present = col.name in table.headers
         if col.required and not present and table.headers:
             problems.append(Problem(src, 1, col.name, "required column is missing"))
         cells = table.column(col.name)
-        if col.kind == "text":
-            vals = [None if _blank(v) else _text(v) for v in cells]
-            if col.required and present:
-                for v, r in zip(vals, table.rows):
-                    if v is None:
-                        problems.append(Problem(src, r, col.name, "is required and is empty"))
-            data[col.name] = pd.array(vals, dtype="object")
-        elif col.kind == "choice":
-            vals = []
-            for v, r in zip(cells, table.rows):
-                if _blank(v):
-                    if col.required and present:
-                        problems.append(Problem(src, r, col.name, "is required and is empty"))
-                    vals.append(col.default)
-                    continue
-                s = _text(v).lower()
-                if s not in col.choices:
-                    problems.append(Problem(src, r, col.name,
-                                            f"{_text(v)!r} is not one of: {', '.join(col.choices)}"))
-                    vals.append(None)
-                else:
-                    vals.append(s)
+        if any(isinstance(c, bool) for c in cells):
+            cells = [_Bool(c) if isinstance(c, bool) else c for c in cells]  # True must not merge with 1
+        # each distinct cell is typed once; results and problems are spread back to every row holding it
+        codes, uniques = pd.factorize(pd.Series(cells, dtype=object), use_na_sentinel=True)
+        blank_u = np.array([_blank(u) for u in uniques], dtype=bool)
+        blank = (codes < 0) | (blank_u[codes] if len(uniques) else np.zeros(n, bool))
+        if col.required and present and blank.any():
+            for r in rows[blank]:
+                problems.append(Problem(src, int(r), col.name, "is required and is empty"))
+        typed, errors = _type_uniques(col, uniques, blank_u)
+        bad = np.flatnonzero(np.array([e is not None for e in errors], dtype=bool))
+        if bad.size:
+            where = np.isin(codes, bad)
+            for r, c in zip(rows[where], codes[where]):
+                problems.append(Problem(src, int(r), col.name, errors[c]))
+        if col.kind in ("text", "choice"):
+            table_u = np.array(list(typed) + [None], dtype=object)
+            vals = table_u[codes]
+            if col.kind == "choice" and col.default is not None:
+                vals = np.where(blank, col.default, vals)
             data[col.name] = pd.array(vals, dtype="object")
         elif col.kind in ("number", "integer"):
-            out = np.full(n, np.nan)
-            for i, (v, r) in enumerate(zip(cells, table.rows)):
-                if _blank(v):
-                    if col.required and present:
-                        problems.append(Problem(src, r, col.name, "is required and is empty"))
-                    elif col.default is not None:
-                        out[i] = float(col.default)
-                    continue
-                x, err = _number(v)
-                if err is None and col.kind == "integer" and not float(x).is_integer():
-                    err = f"{_text(v)!r} must be a whole number"
-                if err:
-                    problems.append(Problem(src, r, col.name, err))
-                else:
-                    out[i] = x
+            table_u = np.array(list(typed) + [np.nan], dtype=float)
+            out = table_u[codes]
+            if col.default is not None and not (col.required and present):
+                out = np.where(blank, float(col.default), out)
             data[col.name] = out
         elif col.kind == "date":
-            out = np.full(n, np.datetime64("NaT"), dtype="datetime64[D]")
-            for i, (v, r) in enumerate(zip(cells, table.rows)):
-                if _blank(v):
-                    if col.required and present:
-                        problems.append(Problem(src, r, col.name, "is required and is empty"))
-                    continue
-                x, err = _date(v)
-                if err:
-                    problems.append(Problem(src, r, col.name, err))
-                else:
-                    out[i] = x
-            data[col.name] = out
+            table_u = np.array(list(typed) + [np.datetime64("NaT")], dtype="datetime64[D]")
+            data[col.name] = table_u[codes]
         else:  # pragma: no cover - schema error
             raise AssertionError(col.kind)
     frame = pd.DataFrame(data)
