@@ -22,6 +22,7 @@ from grantval.io.write import Formula, Sheet, refuse_overwriting_inputs, write_c
 from grantval.ledger import Ledger, load_ledger, read_ledger
 from grantval.notes import REVIEW, VALUATION_METHODS
 from grantval.policy import Policy, resolve_policy
+from grantval.progress import stage
 
 if TYPE_CHECKING:  # pragma: no cover
     from grantval.disclosure import Disclosure
@@ -80,9 +81,11 @@ def value(location, *, valuation_unit: str | None = None, lattice_steps: int | N
     LedgerError
         Listing every error in the ledger; nothing is valued then.
     """
-    ledger = load_ledger(location)
+    with stage("read+check"):
+        ledger = load_ledger(location)
     policy = resolve_policy(ledger.policy_values, valuation_unit=valuation_unit, lattice_steps=lattice_steps)
-    fv = compute_fair_values(ledger, policy)
+    with stage("value"):
+        fv = compute_fair_values(ledger, policy)
     reconcile(ledger, fv)
     return ValueRun(ledger, policy, fv)
 
@@ -199,13 +202,16 @@ def expense(location, *, through, start=None, forecast_through=None, period=None
     from grantval.expense.inputs import build_inputs
     from grantval.expense.periods import compute_schedule
 
-    ledger = load_ledger(location)
+    with stage("read+check"):
+        ledger = load_ledger(location)
     policy = resolve_policy(ledger.policy_values, period=period, standard=standard, attribution=attribution,
                             forfeitures=forfeitures, fiscal_year_end_month=fiscal_year_end_month)
-    fv = compute_fair_values(ledger, policy)
-    inp = build_inputs(ledger, fv)
-    sched = compute_schedule(inp, policy, _day(through, "--through"), _day(start, "--from"),
-                             _day(forecast_through, "--forecast-through"))
+    with stage("value"):
+        fv = compute_fair_values(ledger, policy)
+    with stage("schedule"):
+        inp = build_inputs(ledger, fv)
+        sched = compute_schedule(inp, policy, _day(through, "--through"), _day(start, "--from"),
+                                 _day(forecast_through, "--forecast-through"))
     reconcile(ledger, fv, sched)
     return ExpenseRun(ledger, policy, fv, inp, sched, str(sched.period_ends[-1]), str(sched.window_start),
                       None if forecast_through is None else str(_day(forecast_through, "--forecast-through")))
@@ -252,36 +258,38 @@ def write_expense(run: ExpenseRun, xlsx: pathlib.Path | None, csv_dir: pathlib.P
     outputs = csv_paths + ([pathlib.Path(xlsx)] if xlsx is not None else [])
     refuse_overwriting_inputs(outputs, [p for p, _ in run.ledger.files] + [run.ledger.location])
 
-    award = run.ledger.grants["award_type"].to_numpy()
-    qty = run.ledger.grants["quantity"].to_numpy(np.int64)
-    by_grant = T.wide_by_grant(inp, award, run.fair_values.grant_value, qty, sched.period_ends, sched.expense_cents)
-    by_group, group_sums = T.wide_by_group(inp, sched.period_ends, sched.expense_cents)
-    tranches = T.tranche_table(inp, sched, run.ledger.tranches["tranche"].to_numpy())
-    unrec, unrec_total, unrec_wa = T.unrecognised_table(inp, sched)
-    forecast = T.wide_by_grant(inp, award, run.fair_values.grant_value, qty, sched.forecast_ends,
-                               sched.forecast_cents)
-    disc = compute_disclosure(run.ledger, run.fair_values, inp, run.policy, run.start, run.through, share_price)
-    fv_frame, fv_info = W.fair_value_audit(run.fair_values.table)
-    checks = expense_checks(run, tranches, unrec, disc, fv_info["recomputed"])
-
-    if csv_paths:
-        pathlib.Path(csv_dir).mkdir(parents=True, exist_ok=True)
-        write_csv(csv_paths[0], T.long_expense(inp, sched), money=("expense", "cumulative_expense"))
-        write_csv(csv_paths[1], T.long_by_group(sched.period_ends, by_group["group"].to_numpy(), group_sums),
-                  money=("expense",))
-        write_csv(csv_paths[2], tranches)
-        write_csv(csv_paths[3], T.long_forecast(inp, sched), money=("expense",))
-        write_csv(csv_paths[4], unrec, money=("recognised_to_date", "unrecognised_cost"))
-    if xlsx is not None:
-        info = W.RunInfo(
-            "grantval expense: stock-based compensation expense", command or "(Python API)", run.ledger.location,
-            run.ledger.files,
-            [("from", run.start), ("through", run.through), ("forecast through", run.forecast_through or "(none)"),
-             ("share price for intrinsic values", "(not given)" if share_price is None else repr(share_price))],
-            run.policy.describe(), timestamp)
-        sheets = W.expense_sheets(run, info, fv_frame, by_grant, by_group, tranches, unrec, unrec_total, unrec_wa, forecast,
-                                  disc if share_price is not None else None, checks, expense_notes(run))
-        write_workbook(pathlib.Path(xlsx), sheets, fixed_time=info.workbook_time())
+    with stage("tables"):
+        award = run.ledger.grants["award_type"].to_numpy()
+        qty = run.ledger.grants["quantity"].to_numpy(np.int64)
+        by_grant = T.wide_by_grant(inp, award, run.fair_values.grant_value, qty, sched.period_ends, sched.expense_cents)
+        by_group, group_sums = T.wide_by_group(inp, sched.period_ends, sched.expense_cents)
+        tranches = T.tranche_table(inp, sched, run.ledger.tranches["tranche"].to_numpy())
+        unrec, unrec_total, unrec_wa = T.unrecognised_table(inp, sched)
+        forecast = T.wide_by_grant(inp, award, run.fair_values.grant_value, qty, sched.forecast_ends,
+                                   sched.forecast_cents)
+        disc = compute_disclosure(run.ledger, run.fair_values, inp, run.policy, run.start, run.through, share_price)
+        checks = expense_checks(run, tranches, unrec, disc, W.recomputed_column(run.fair_values.table))
+    with stage("write csv"):
+        if csv_paths:
+            pathlib.Path(csv_dir).mkdir(parents=True, exist_ok=True)
+            write_csv(csv_paths[0], T.long_expense(inp, sched), money=("expense", "cumulative_expense"))
+            write_csv(csv_paths[1], T.long_by_group(sched.period_ends, by_group["group"].to_numpy(), group_sums),
+                      money=("expense",))
+            write_csv(csv_paths[2], tranches)
+            write_csv(csv_paths[3], T.long_forecast(inp, sched), money=("expense",))
+            write_csv(csv_paths[4], unrec, money=("recognised_to_date", "unrecognised_cost"))
+    with stage("write workbook"):
+        if xlsx is not None:
+            info = W.RunInfo(
+                "grantval expense: stock-based compensation expense", command or "(Python API)", run.ledger.location,
+                run.ledger.files,
+                [("from", run.start), ("through", run.through), ("forecast through", run.forecast_through or "(none)"),
+                 ("share price for intrinsic values", "(not given)" if share_price is None else repr(share_price))],
+                run.policy.describe(), timestamp)
+            fv_frame, _ = W.fair_value_audit(run.fair_values.table)
+            sheets = W.expense_sheets(run, info, fv_frame, by_grant, by_group, tranches, unrec, unrec_total, unrec_wa, forecast,
+                                      disc if share_price is not None else None, checks, expense_notes(run))
+            write_workbook(pathlib.Path(xlsx), sheets, fixed_time=info.workbook_time())
     return ExpenseOutputs(outputs, checks)
 
 

@@ -37,8 +37,13 @@ def _root(
     version: bool = typer.Option(
         False, "--version", callback=_version, is_eager=True, help="Print the version and exit."
     ),
+    quiet: bool = typer.Option(False, "--quiet", "-q", help="Show no progress."),
+    verbose: bool = typer.Option(False, "--verbose", "-v", help="Print the time of each stage."),
 ) -> None:
     """grantval command line."""
+    from grantval.progress import Reporter, install
+
+    install(Reporter(show=sys.stderr.isatty() and not quiet and not verbose, verbose=verbose))
 
 
 def fail(err: GrantvalError) -> None:

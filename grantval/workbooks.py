@@ -103,15 +103,22 @@ def _bsm_formula(r: int, c: dict[str, str]) -> Formula:
     return Formula(f"={S}*EXP(-{Q}*{T})*NORMSDIST({d1})-{K}*EXP(-{R}*{T})*NORMSDIST({d2})")
 
 
+AUDIT_INPUTS = ["model", "share_price", "exercise_price", "expected_term_years", "risk_free_rate", "volatility",
+                "dividend_yield", "lattice_steps", "exercise_multiple", "post_vest_exit_rate"]
+
+
+def recomputed_column(table: pd.DataFrame) -> str:
+    """Column letter of the formula-recomputed fair value in the fair_values sheet."""
+    return col_letter(1 + int("tranche" in table.columns) + len(AUDIT_INPUTS) + 2)
+
+
 def fair_value_audit(table: pd.DataFrame) -> tuple[pd.DataFrame, dict]:
     """The auditor's fair-value table: inputs, tool value, live BSM recomputation, difference.
 
     Returns the frame and a dict with the recomputation column letter, the
     number of BSM rows and the tool's total over them.
     """
-    cols = ["grant_id"] + (["tranche"] if "tranche" in table.columns else []) + [
-        "model", "share_price", "exercise_price", "expected_term_years", "risk_free_rate", "volatility",
-        "dividend_yield", "lattice_steps", "exercise_multiple", "post_vest_exit_rate"]
+    cols = ["grant_id"] + (["tranche"] if "tranche" in table.columns else []) + AUDIT_INPUTS
     frame = table[cols].copy()
     frame["tool_fair_value_per_unit"] = table["fair_value_per_unit"].to_numpy()
     pos = {c: col_letter(i + 1) for i, c in enumerate(list(frame.columns) + ["recomputed_fair_value_per_unit"])}
@@ -134,6 +141,7 @@ def fair_value_audit(table: pd.DataFrame) -> tuple[pd.DataFrame, dict]:
         np.where(table["model"].to_numpy() == "lattice", "tool (lattice; inputs and steps shown)",
                  np.where(table["model"].to_numpy() == "rsu", "tool (RSU: share price less dividends forgone)",
                           "tool (BSM; recomputed by formula)")))
+    assert pos["recomputed_fair_value_per_unit"] == recomputed_column(table)
     info = {"recomputed": pos["recomputed_fair_value_per_unit"], "rows": len(frame), "bsm_rows": int(bsm.sum()),
             "bsm_total": float(table["fair_value_per_unit"].to_numpy()[bsm].sum())}
     return frame, info

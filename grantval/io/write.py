@@ -145,6 +145,18 @@ def _mapped(values: np.ndarray, encode) -> np.ndarray:
 _CENTS = np.array([f".{i:02d}".encode() for i in range(100)], dtype="S3")
 
 
+def _float_field(arr: np.ndarray) -> np.ndarray:
+    """Shortest round-trip text of floats (whole numbers without a decimal point); NaN as empty."""
+    codes, uniques = pd.factorize(arr, use_na_sentinel=True)
+    uniques = np.asarray(uniques, dtype=float)
+    whole = (np.floor(uniques) == uniques) & (np.abs(uniques) < 1e15)
+    table = np.empty(len(uniques) + 1, dtype=object)
+    table[:-1][whole] = [str(int(x)).encode() for x in uniques[whole].tolist()]
+    table[:-1][~whole] = [repr(x).encode() for x in uniques[~whole].tolist()]
+    table[-1] = b""
+    return np.array(table.tolist(), dtype=bytes)[codes]
+
+
 def money_field(values: np.ndarray) -> np.ndarray:
     """Currency amounts with exactly two decimals, from values that are whole cents (vectorised)."""
     v = np.asarray(values, dtype=float)
@@ -170,7 +182,7 @@ def column_field(series: pd.Series, money: bool = False) -> np.ndarray:
     if np.issubdtype(arr.dtype, np.integer):
         return arr.astype("S21")
     if np.issubdtype(arr.dtype, np.floating):
-        return _mapped(arr, lambda x: repr(int(x)) if float(x).is_integer() and abs(x) < 1e15 else repr(float(x)))
+        return _float_field(arr.astype(float))
     if np.issubdtype(arr.dtype, np.datetime64):
         days = arr.astype("datetime64[D]")
         nat = np.isnat(days)
@@ -187,13 +199,18 @@ def write_csv(path: pathlib.Path, frame: pd.DataFrame, money: Sequence[str] = ()
     """
     header = ",".join(_csv_field(str(c)) for c in frame.columns).encode("utf-8")
     if len(frame):
-        row = None
-        for c in frame.columns:
-            f = column_field(frame[c], c in money)
-            row = f if row is None else np.char.add(np.char.add(row, b","), f)
-        # fixed-width rows padded with NUL bytes: add the line ends, then drop the padding
-        row = np.char.add(row, b"\n")
-        flat = row.view(np.uint8)
+        # one fixed-width block per column, padded with NUL bytes, then a separator;
+        # the padding is dropped at the end
+        fields = [column_field(frame[c], c in money) for c in frame.columns]
+        widths = [f.dtype.itemsize for f in fields]
+        buf = np.zeros((len(frame), sum(widths) + len(widths)), dtype=np.uint8)
+        at = 0
+        for f, w in zip(fields, widths):
+            buf[:, at : at + w] = f.view(np.uint8).reshape(len(frame), w)
+            buf[:, at + w] = ord(",")
+            at += w + 1
+        buf[:, -1] = ord("\n")
+        flat = buf.ravel()
         body = flat[flat != 0].tobytes()
     else:
         body = b""
