@@ -29,6 +29,11 @@ import pandas as pd
 from grantval.errors import OutputError
 
 _FORMULA_START = ("=", "+", "-", "@")
+#: frame sheets longer than this are written by grantval.io.bigsheet after the first data row
+FAST_ROWS = 2_000
+#: Excel's limits: rows per sheet (with the header) and columns
+EXCEL_ROWS = 1_048_576
+EXCEL_COLUMNS = 16_384
 #: timestamp written into reproducible workbooks (``--no-timestamp``)
 FIXED_TIME = _dt.datetime(2000, 1, 1)
 
@@ -290,10 +295,14 @@ def write_workbook(path: pathlib.Path, sheets: Sequence[Sheet], fixed_time: _dt.
     wb.properties.modified = stamp
     wb.properties.creator = "grantval"
     bold = Font(bold=True)
-    for sh in sheets:
+    big: dict[str, pd.DataFrame] = {}
+    for index, sh in enumerate(_split_long(sheets)):
         ws = wb.create_sheet(sh.name)
         if sh.frame is not None:
             cols = list(sh.frame.columns)
+            if len(cols) > EXCEL_COLUMNS:
+                raise OutputError(f"the sheet {sh.name} would have {len(cols):,} columns, more than Excel's "
+                                  f"{EXCEL_COLUMNS:,}; use fewer periods (a longer --period) or --csv-dir")
             for j, c in enumerate(cols, start=1):
                 width = sh.widths.get(c, max(10, min(40, len(sh.labels.get(c, label(c))) + 2)))
                 ws.column_dimensions[get_column_letter(j)].width = width
@@ -307,7 +316,11 @@ def write_workbook(path: pathlib.Path, sheets: Sequence[Sheet], fixed_time: _dt.
                 cell.alignment = Alignment(wrap_text=True, vertical="top")
                 header.append(cell)
             ws.append(header)
-            values = [_column_values(sh.frame[c]) for c in cols]
+            frame = sh.frame
+            if len(frame) > FAST_ROWS:
+                big[f"xl/worksheets/sheet{index + 1}.xml"] = frame
+                frame = frame.iloc[:1]
+            values = [_column_values(frame[c]) for c in cols]
             fmts = [sh.formats.get(c) for c in cols]
             texts = [c in sh.text_columns for c in cols]
             for row in zip(*values):
@@ -324,8 +337,8 @@ def write_workbook(path: pathlib.Path, sheets: Sequence[Sheet], fixed_time: _dt.
                         if v is not None:
                             cell.data_type = "s"  # never a formula
                         out.append(cell)
-                    elif fmt and v is not None:
-                        cell = WriteOnlyCell(ws, value=v)
+                    elif fmt:
+                        cell = WriteOnlyCell(ws, value=v)  # a styled cell even when empty
                         cell.number_format = fmt
                         out.append(cell)
                     else:
@@ -360,7 +373,7 @@ def write_workbook(path: pathlib.Path, sheets: Sequence[Sheet], fixed_time: _dt.
             ws.add_chart(_build_chart(ch, wb, ws), ch.anchor)
     with atomic_path(path) as tmp:
         wb.save(tmp)
-        _normalise_zip(tmp, stamp)
+        _normalise_zip(tmp, stamp, big)
 
 
 def _build_chart(spec: Chart, wb, ws):
@@ -379,7 +392,28 @@ def _build_chart(spec: Chart, wb, ws):
     return chart
 
 
-def _normalise_zip(path: pathlib.Path, stamp: _dt.datetime) -> None:
+def _split_long(sheets: Sequence[Sheet]) -> list[Sheet]:
+    """Split frame sheets longer than Excel allows into numbered parts (name, name_2, ...)."""
+    import dataclasses
+
+    out: list[Sheet] = []
+    per = EXCEL_ROWS - 1
+    for sh in sheets:
+        if sh.frame is None or len(sh.frame) <= per:
+            out.append(sh)
+            continue
+        if any(sh.frame[c].dtype == object and sh.frame[c].map(lambda v: isinstance(v, Formula)).any()
+               for c in sh.frame.columns):
+            raise OutputError(f"the sheet {sh.name} would have {len(sh.frame):,} rows, more than Excel's "
+                              f"{per:,}; write the CSV tables instead (--csv-dir with --no-workbook)")
+        for k, start in enumerate(range(0, len(sh.frame), per)):
+            part = sh.frame.iloc[start : start + per].reset_index(drop=True)
+            out.append(dataclasses.replace(sh, name=sh.name if k == 0 else f"{sh.name}_{k + 1}"[:31], frame=part,
+                                           charts=sh.charts if k == 0 else []))
+    return out
+
+
+def _normalise_zip(path: pathlib.Path, stamp: _dt.datetime, big: dict | None = None) -> None:
     """Rewrite a saved workbook with fixed zip entry times and ``stamp`` as its modified time.
 
     openpyxl stamps the save time into docProps/core.xml and the zip entries;
@@ -393,9 +427,14 @@ def _normalise_zip(path: pathlib.Path, stamp: _dt.datetime) -> None:
     when = stamp.strftime("%Y-%m-%dT%H:%M:%SZ").encode()
     entries = [(info, re.sub(rb"(<dcterms:modified[^>]*>)[^<]*(</dcterms:modified>)", rb"\g<1>" + when + rb"\g<2>", data)
                 if info.filename == "docProps/core.xml" else data) for info, data in entries]
+    if big:
+        from grantval.io.bigsheet import splice
+
+        entries = [(info, splice(data, big[info.filename]) if info.filename in big else data)
+                   for info, data in entries]
     with zipfile.ZipFile(path, "w", compression=zipfile.ZIP_DEFLATED) as dst:
         for info, data in entries:
             fixed = zipfile.ZipInfo(info.filename, date_time=(1980, 1, 1, 0, 0, 0))
             fixed.compress_type = zipfile.ZIP_DEFLATED
             fixed.external_attr = info.external_attr
-            dst.writestr(fixed, data)
+            dst.writestr(fixed, data, compresslevel=1 if len(data) > 2**24 else 6)

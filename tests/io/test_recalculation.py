@@ -41,8 +41,12 @@ def recalculate(book: pathlib.Path, work: pathlib.Path) -> pathlib.Path:
     return out / book.name
 
 
-@pytest.fixture(scope="module")
-def books(tmp_path_factory):
+@pytest.fixture(scope="module", params=["openpyxl rows", "fast rows"])
+def books(request, tmp_path_factory):
+    """The sample's expense workbook, written cell by cell by openpyxl, or with the fast row writer
+    (grantval.io.bigsheet) for every row after the first, then recalculated."""
+    import grantval.io.write as W
+
     if SOFFICE is None:
         if os.environ.get("CI"):
             pytest.fail("LibreOffice (soffice) is required in CI; .ci/run installs libreoffice-calc")
@@ -50,7 +54,12 @@ def books(tmp_path_factory):
     work = tmp_path_factory.mktemp("recalc")
     run = api.expense(SAMPLE, through="2026-12-31", forecast_through="2027-12-31")
     book = work / "expense.xlsx"
-    api.write_expense(run, book, None, timestamp=False, share_price=31.0)
+    saved = W.FAST_ROWS
+    W.FAST_ROWS = 3 if request.param == "fast rows" else saved
+    try:
+        api.write_expense(run, book, None, timestamp=False, share_price=31.0)
+    finally:
+        W.FAST_ROWS = saved
     return run, openpyxl.load_workbook(book), openpyxl.load_workbook(recalculate(book, work), data_only=True)
 
 
