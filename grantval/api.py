@@ -18,7 +18,7 @@ import numpy as np
 import pandas as pd
 
 from grantval.errors import UsageError
-from grantval.io.write import Formula, Sheet, refuse_overwriting_inputs, write_csv, write_workbook
+from grantval.io.write import EXCEL_ROWS, Formula, Sheet, refuse_overwriting_inputs, write_csv, write_workbook
 from grantval.ledger import Ledger, load_ledger, read_ledger
 from grantval.notes import REVIEW, VALUATION_METHODS
 from grantval.policy import Policy, resolve_policy
@@ -53,7 +53,8 @@ class CheckReport:
 
 def check(location) -> CheckReport:
     """Read and check a ledger, returning every problem found (never raises for data problems)."""
-    ledger, problems = read_ledger(location)
+    with stage("read+check"):
+        ledger, problems = read_ledger(location)
     return CheckReport(str(location), problems, ledger)
 
 
@@ -351,6 +352,8 @@ def expense_checks(run: ExpenseRun, tranches, unrec, disc, rc: str) -> list:
         W.CheckRow("Recognised + unrecognised = expected quantity x fair value (all tranches)",
                    Formula(f"=SUM(unrecognized!{uc['recognised_to_date']}2:{uc['recognised_to_date']}{n + 1})"
                            f"+SUM(unrecognized!{uc['unrecognised_cost']}2:{uc['unrecognised_cost']}{n + 1})"),
+                   # a formula over the tranches sheet, unless it had to be split across sheets
+                   expected if nt > EXCEL_ROWS else
                    Formula(f"=SUMPRODUCT(tranches!{cols['quantity_expensed']}2:{cols['quantity_expensed']}{nt},"
                            f"tranches!{cols['fair_value_per_unit']}2:{cols['fair_value_per_unit']}{nt})"
                            f"+SUMPRODUCT(tranches!{cols['cancelled_unvested']}2:{cols['cancelled_unvested']}{nt},"

@@ -146,10 +146,13 @@ def expense_cmd(
     csv_dir: Optional[pathlib.Path] = typer.Option(None, "--csv-dir", help="Also write the CSV tables here."),
     share_price: Optional[float] = typer.Option(None, "--share-price", help="Share price at --through: adds the disclosure sheets."),
     no_timestamp: bool = typer.Option(False, "--no-timestamp", help="Record no run time, for byte-identical reruns."),
+    no_workbook: bool = typer.Option(False, "--no-workbook", help="Write only the CSV tables (with --csv-dir)."),
 ) -> None:
     """Compute stock-compensation expense by period and write the workbook and CSV tables."""
     from grantval import api
 
+    if no_workbook and (output is not None or csv_dir is None):
+        usage("--no-workbook goes with --csv-dir and without -o")
     if output is None and csv_dir is None:
         usage("give -o WORKBOOK.xlsx, --csv-dir DIR, or both")
     if output is not None and output.suffix.lower() != ".xlsx":

@@ -33,6 +33,7 @@ class Reporter:
 
             status = Console(stderr=True).status(f"{name}...", spinner="dots")
             status.start()
+            self._status = status
         t0 = time.perf_counter()
         try:
             yield
@@ -40,9 +41,32 @@ class Reporter:
             elapsed = time.perf_counter() - t0
             if status is not None:
                 status.stop()
+                self._status = None
             self.timings.append((name, elapsed))
             if self.verbose:
                 print(f"  {name:<10} {elapsed:8.2f} s", file=sys.stderr)
+
+
+    def track(self, items, total: int, label: str):
+        """Iterate over ``items``, showing a progress bar on a terminal."""
+        if not self.show:
+            yield from items
+            return
+        from rich.console import Console
+        from rich.progress import Progress
+
+        paused = self._status
+        if paused is not None:
+            paused.stop()  # one live display at a time
+        try:
+            with Progress(console=Console(stderr=True), transient=True) as bar:
+                task = bar.add_task(label, total=total)
+                for item in items:
+                    yield item
+                    bar.advance(task)
+        finally:
+            if paused is not None:
+                paused.start()
 
 
 _current = Reporter()
@@ -61,3 +85,8 @@ def install(r: Reporter) -> None:
 def stage(name: str):
     """Context manager timing one stage of the current run."""
     return _current.stage(name)
+
+
+def track(items, total: int, label: str):
+    """Iterate with a progress bar from the current reporter (silent unless shown)."""
+    return _current.track(items, total, label)

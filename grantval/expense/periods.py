@@ -11,6 +11,7 @@ from grantval.errors import UsageError
 from grantval.expense.engine import Measurement, measure
 from grantval.expense.inputs import ExpenseInputs
 from grantval.policy import Policy
+from grantval.progress import track
 
 
 def to_cents(amount: np.ndarray) -> np.ndarray:
@@ -92,7 +93,7 @@ def compute_schedule(inp: ExpenseInputs, policy: Policy, through, start=None, fo
     opening = to_cents(measure(inp, start - DAY, **kw).grant_cost)
     cum = np.empty((inp.n_grants, len(ends)), dtype=np.int64)
     at_through = None
-    for k, d in enumerate(ends):
+    for k, d in track(enumerate(ends), len(ends), "periods"):
         m = measure(inp, d, **kw)
         cum[:, k] = to_cents(m.grant_cost)
         at_through = m
