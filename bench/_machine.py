@@ -31,3 +31,14 @@ def describe() -> str:
         f"machine: {cpu}, {os.cpu_count()} cores{mem}; "
         f"Python {sys.version.split()[0]}, numpy {numpy.__version__}, {platform.system()} {platform.release()}"
     )
+
+
+def write_results(path, lines: list[str]) -> None:
+    """Print the benchmark's lines and keep them in ``path`` (bench/results/...)."""
+    import pathlib
+
+    text = "\n".join(lines) + "\n"
+    print(text, end="")
+    path = pathlib.Path(path)
+    path.parent.mkdir(parents=True, exist_ok=True)
+    path.write_text(text)

@@ -18,7 +18,7 @@ import tracemalloc
 
 import numpy as np
 
-from bench._machine import describe
+from bench._machine import describe, write_results
 from grantval.expense.inputs import ExpenseInputs
 from grantval.expense.periods import compute_schedule
 from grantval.policy import Policy
@@ -74,10 +74,7 @@ def main() -> None:
             f"total expense {sched.expense_cents.sum() / 100:,.2f}")
     rss = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 2**10
     lines.append(f"process maximum resident set size: {rss:.0f} MiB")
-    text = "\n".join(lines) + "\n"
-    print(text, end="")
-    RESULTS.parent.mkdir(parents=True, exist_ok=True)
-    RESULTS.write_text(text)
+    write_results(RESULTS, lines)
 
 
 if __name__ == "__main__":

@@ -19,7 +19,7 @@ import subprocess
 import sys
 import tempfile
 
-from bench._machine import describe
+from bench._machine import describe, write_results
 from bench.make_ledger import make_ledger
 
 RESULTS = pathlib.Path(__file__).parent / "results" / "scale.txt"
@@ -69,10 +69,7 @@ def main() -> None:
         if len(ns) > 1:
             ratios = ", ".join(f"x{by_n[b] / by_n[a]:.1f} for x{b // a} grants" for a, b in zip(ns, ns[1:]))
             lines.append(f"growth {name}: {ratios}")
-    text = "\n".join(lines) + "\n"
-    print(text, end="")
-    RESULTS.parent.mkdir(parents=True, exist_ok=True)
-    RESULTS.write_text(text)
+    write_results(RESULTS, lines)
 
 
 if __name__ == "__main__":

@@ -21,7 +21,7 @@ import time
 
 import numpy as np
 
-from bench._machine import describe
+from bench._machine import describe, write_results
 from grantval.valuation import DEFAULT_STEPS, bsm_value, lattice_value
 
 RESULTS = pathlib.Path(__file__).parent / "results" / "valuation.txt"
@@ -117,10 +117,7 @@ def main() -> None:
     lines = [f"grantval valuation benchmark, {_dt.date.today().isoformat()}", describe()]
     bench_bsm(lines)
     bench_lattice(lines)
-    text = "\n".join(lines) + "\n"
-    print(text, end="")
-    RESULTS.parent.mkdir(parents=True, exist_ok=True)
-    RESULTS.write_text(text)
+    write_results(RESULTS, lines)
 
 
 if __name__ == "__main__":

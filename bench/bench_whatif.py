@@ -13,7 +13,7 @@ import pathlib
 import tempfile
 import time
 
-from bench._machine import describe
+from bench._machine import describe, write_results
 from bench.make_ledger import make_ledger
 from grantval import api
 
@@ -34,10 +34,7 @@ def main() -> None:
              f"10,000 grants, {len(run.results) - 1} grid scenarios plus base, {len(run.tornado)} one-at-a-time runs: "
              f"{el:.1f} s to value and expense (target <= 30 s), {run.priced:,} input sets priced in all; "
              f"writing the workbook and CSV files {wr:.1f} s"]
-    text = "\n".join(lines) + "\n"
-    print(text, end="")
-    RESULTS.parent.mkdir(parents=True, exist_ok=True)
-    RESULTS.write_text(text)
+    write_results(RESULTS, lines)
 
 
 if __name__ == "__main__":

@@ -115,10 +115,7 @@ def value_cmd(
     """Value every grant at its grant date and write the fair-value table."""
     from grantval import api
 
-    if output is None and csv_dir is None:
-        usage("give -o WORKBOOK.xlsx, --csv-dir DIR, or both")
-    if output is not None and output.suffix.lower() != ".xlsx":
-        usage(f"-o {output}: the workbook name must end in .xlsx")
+    check_outputs(output, csv_dir)
     try:
         run = api.value(ledger, valuation_unit=valuation_unit, lattice_steps=lattice_steps)
         written = api.write_fair_values(run, output, csv_dir)
@@ -153,10 +150,7 @@ def expense_cmd(
 
     if no_workbook and (output is not None or csv_dir is None):
         usage("--no-workbook goes with --csv-dir and without -o")
-    if output is None and csv_dir is None:
-        usage("give -o WORKBOOK.xlsx, --csv-dir DIR, or both")
-    if output is not None and output.suffix.lower() != ".xlsx":
-        usage(f"-o {output}: the workbook name must end in .xlsx")
+    check_outputs(output, csv_dir)
     try:
         run = api.expense(ledger, through=through, start=start, forecast_through=forecast_through, period=period,
                           standard=standard, attribution=attribution, forfeitures=forfeitures)
@@ -189,10 +183,7 @@ def disclose_cmd(
     """Write the disclosure tables (ASC 718-10-50): award activity, grant figures, unrecognised cost."""
     from grantval import api
 
-    if output is None and csv_dir is None:
-        usage("give -o WORKBOOK.xlsx, --csv-dir DIR, or both")
-    if output is not None and output.suffix.lower() != ".xlsx":
-        usage(f"-o {output}: the workbook name must end in .xlsx")
+    check_outputs(output, csv_dir)
     try:
         run = api.disclose(ledger, start=start, through=through, share_price=share_price)
         result = api.write_disclosure(run, output, csv_dir, command=_command_line(), timestamp=not no_timestamp)
@@ -228,10 +219,7 @@ def whatif_cmd(
     """Re-value and re-expense under shifted assumptions; write sensitivity tables and charts."""
     from grantval import api
 
-    if output is None and csv_dir is None:
-        usage("give -o WORKBOOK.xlsx, --csv-dir DIR, or both")
-    if output is not None and output.suffix.lower() != ".xlsx":
-        usage(f"-o {output}: the workbook name must end in .xlsx")
+    check_outputs(output, csv_dir)
     try:
         run = api.whatif(ledger, vary=vary, grants_from=grants_from, grants_through=grants_through, through=through,
                          forecast_through=forecast_through, planned=planned, forfeitures=forfeitures)
@@ -300,6 +288,14 @@ def assumptions_cmd(
 
 def _command_line() -> str:
     return " ".join(["grantval"] + sys.argv[1:])
+
+
+def check_outputs(output: Optional[pathlib.Path], csv_dir: Optional[pathlib.Path]) -> None:
+    """Exit 2 unless a workbook (.xlsx), a CSV folder or both were asked for."""
+    if output is None and csv_dir is None:
+        usage("give -o WORKBOOK.xlsx, --csv-dir DIR, or both")
+    if output is not None and output.suffix.lower() != ".xlsx":
+        usage(f"-o {output}: the workbook name must end in .xlsx")
 
 
 def usage(message: str) -> None:

@@ -16,6 +16,7 @@ import numpy as np
 import pandas as pd
 
 from grantval import __version__
+from grantval.io.cells import col_letter
 from grantval.io.write import FIXED_TIME, Chart, Formula, Sheet
 from grantval.notes import REVIEW, VALUATION_METHODS
 
@@ -34,15 +35,6 @@ FORMATS = {
     "aggregate_intrinsic_value": MONEY, "weighted_average_grant_date_fair_value": UNIT,
 }
 LEDGER_TEXT = ("grant_id", "holder_id", "group", "assumption_key")
-
-
-def col_letter(n: int) -> str:
-    """Excel column letters of 1-based column ``n``."""
-    s = ""
-    while n:
-        n, r = divmod(n - 1, 26)
-        s = chr(65 + r) + s
-    return s
 
 
 @dataclass

@@ -16,6 +16,8 @@ import re
 import numpy as np
 import pandas as pd
 
+from grantval.io.cells import col_letter
+
 #: rows generated per block (bounds memory)
 CHUNK = 100_000
 _EXCEL_EPOCH = 25569  # days from 1899-12-30 to 1970-01-01
@@ -25,14 +27,6 @@ _BAD_XML = re.compile("[\x00-\x08\x0b\x0c\x0e-\x1f]")
 def _xml_text(text: str) -> bytes:
     text = _BAD_XML.sub("", text)
     return text.replace("&", "&amp;").replace("<", "&lt;").replace(">", "&gt;").encode("utf-8")
-
-
-def _letters(n: int) -> str:
-    s = ""
-    while n:
-        n, r = divmod(n - 1, 26)
-        s = chr(65 + r) + s
-    return s
 
 
 def first_row_styles(sheet_xml: bytes) -> dict[str, bytes]:
@@ -119,7 +113,7 @@ def rows_xml(frame: pd.DataFrame, first_row: int, styles: dict[str, bytes]) -> b
     """SpreadsheetML ``<row>`` elements for every row of ``frame``, numbered from ``first_row``."""
     out = []
     cols = list(frame.columns)
-    letters = [_letters(j + 1).encode() for j in range(len(cols))]
+    letters = [col_letter(j + 1).encode() for j in range(len(cols))]
     arrays = [frame[c].to_numpy() for c in cols]
     for start in range(0, len(frame), CHUNK):
         stop = min(start + CHUNK, len(frame))
