@@ -214,7 +214,7 @@ def expense_sheets(run, info: RunInfo, fv_frame, by_grant, by_group, tranches, u
     head = len(summary) + 1  # 1-based row of the period table's header
     summary.append(["Period end", "Expense"])
     summary += [[str(d), int(c) / 100.0] for d, c in zip(sched.period_ends, period_totals)]
-    sfmt = {(head - 4, 1): MONEY, (head - 3, 1): MONEY, (head - 2, 1): "0.00"}
+    sfmt = {(head - 5, 1): MONEY, (head - 4, 1): MONEY, (head - 3, 1): "0.00"}  # 0-based rows of the totals
     sfmt.update({(head + k, 1): MONEY for k in range(p)})
     charts = [Chart("bar", "Expense by period", (2, head, 2, head + p), (1, head + 1, 1, head + p), "D2",
                     y_title="Expense", x_title="Period end")]
