@@ -162,12 +162,7 @@ def expense_cmd(
     typer.echo(f"{run.ledger.n_grants} grants, {len(run.schedule.period_ends)} periods from {run.start} "
                f"through {run.through} ({run.policy.standard}, {run.policy.attribution}, {run.policy.forfeitures}); "
                f"expense {total:,.2f}")
-    for path in result.paths:
-        typer.echo(f"wrote {path}")
-    for c in result.failed:
-        typer.echo(f"check failed: {c.name}: {c.a} vs {c.b}", err=True)
-    if result.failed:
-        raise typer.Exit(1)
+    report_outputs(result)
 
 
 @app.command("disclose")
@@ -192,12 +187,7 @@ def disclose_cmd(
     o = run.disclosure.options
     typer.echo(f"options outstanding at {run.disclosure.through}: {o['number'].iloc[5]:,.0f}; "
                f"RSUs nonvested: {run.disclosure.rsus['number'].iloc[4]:,.0f}")
-    for path in result.paths:
-        typer.echo(f"wrote {path}")
-    for c in result.failed:
-        typer.echo(f"check failed: {c.name}", err=True)
-    if result.failed:
-        raise typer.Exit(1)
+    report_outputs(result)
 
 
 @app.command("whatif")
@@ -288,6 +278,16 @@ def assumptions_cmd(
 
 def _command_line() -> str:
     return " ".join(["grantval"] + sys.argv[1:])
+
+
+def report_outputs(result) -> None:
+    """Print the paths written and any failed tie-out check; exit 1 when one failed."""
+    for path in result.paths:
+        typer.echo(f"wrote {path}")
+    for c in result.failed:
+        typer.echo(f"check failed: {c.name}: {c.a} vs {c.b}", err=True)
+    if result.failed:
+        raise typer.Exit(1)
 
 
 def check_outputs(output: Optional[pathlib.Path], csv_dir: Optional[pathlib.Path]) -> None:
