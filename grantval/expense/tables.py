@@ -44,37 +44,30 @@ def wide_by_group(inp: ExpenseInputs, ends, cents) -> pd.DataFrame:
     return frame, sums
 
 
+def _long(keys: dict[str, np.ndarray], ends, columns: dict[str, np.ndarray]) -> pd.DataFrame:
+    """Long table: each key row repeated once per period end, with the (rows x periods) cents columns."""
+    n, p = next(iter(columns.values())).shape
+    data = {k: np.repeat(v, p) for k, v in keys.items()}
+    data["period_end"] = np.tile(np.asarray(ends, dtype="datetime64[D]"), n)
+    data.update({k: money(v.ravel()) for k, v in columns.items()})
+    return pd.DataFrame(data)
+
+
 def long_expense(inp: ExpenseInputs, sched: ExpenseSchedule) -> pd.DataFrame:
     """``expense.csv``: grant_id, group, period_end, expense, cumulative_expense (life to date)."""
-    g, p = sched.expense_cents.shape
-    return pd.DataFrame({
-        "grant_id": np.repeat(inp.grant_id, p),
-        "group": np.repeat(inp.group, p),
-        "period_end": np.tile(np.asarray(sched.period_ends, dtype="datetime64[D]"), g),
-        "expense": money(sched.expense_cents.ravel()),
-        "cumulative_expense": money(sched.cumulative_cents.ravel()),
-    })
+    return _long({"grant_id": inp.grant_id, "group": inp.group}, sched.period_ends,
+                 {"expense": sched.expense_cents, "cumulative_expense": sched.cumulative_cents})
 
 
 def long_by_group(ends, names, sums) -> pd.DataFrame:
     """``expense_by_group.csv``: group, period_end, expense."""
-    n, p = sums.shape
-    return pd.DataFrame({
-        "group": np.repeat(names, p),
-        "period_end": np.tile(np.asarray(ends, dtype="datetime64[D]"), n),
-        "expense": money(sums.ravel()),
-    })
+    return _long({"group": names}, ends, {"expense": sums})
 
 
 def long_forecast(inp: ExpenseInputs, sched: ExpenseSchedule) -> pd.DataFrame:
     """``forecast.csv``: grant_id, group, period_end, expense."""
-    g, p = sched.forecast_cents.shape
-    return pd.DataFrame({
-        "grant_id": np.repeat(inp.grant_id, p),
-        "group": np.repeat(inp.group, p),
-        "period_end": np.tile(np.asarray(sched.forecast_ends, dtype="datetime64[D]"), g),
-        "expense": money(sched.forecast_cents.ravel()),
-    })
+    return _long({"grant_id": inp.grant_id, "group": inp.group}, sched.forecast_ends,
+                 {"expense": sched.forecast_cents})
 
 
 def tranche_table(inp: ExpenseInputs, sched: ExpenseSchedule, tranche_no) -> pd.DataFrame:

@@ -23,6 +23,21 @@ def _empty(name: str) -> RawTable:
     return RawTable(name, name, [], [], [], [])
 
 
+def _tranches(g: pd.DataFrame, given_frame: pd.DataFrame, source: str):
+    """Tranches of the grants whose schedule is valid, with the ledger's own tranches replacing them.
+
+    Returns the mask of grants with a valid schedule, the tranches and the
+    problems of the tranches table.
+    """
+    ok = v.schedule_ok(g)
+    ok_pos = np.flatnonzero(ok)
+    generated = generate_tranches(g.iloc[ok_pos])
+    generated["grant_idx"] = ok_pos[generated["grant_idx"].to_numpy()]
+    given, probs = v.check_tranches_table(given_frame, g, source)
+    tranches = combine_schedules(generated, given.drop(columns="_row") if len(given) else None)
+    return ok, tranches, probs
+
+
 def _planned_table(path) -> RawTable:
     """The planned-grants table: a CSV file, or the ``grants`` (else first) sheet of a workbook."""
     import pathlib
@@ -103,13 +118,8 @@ def read_ledger(location, planned=None) -> tuple[Ledger | None, list[Problem]]:
         pos = np.concatenate([pos, ppos])
     problems += v.check_grant_assumptions(g, a, pos, sources["assumptions"])
 
-    ok = v.schedule_ok(g)
-    ok_pos = np.flatnonzero(ok)
-    generated = generate_tranches(g.iloc[ok_pos])
-    generated["grant_idx"] = ok_pos[generated["grant_idx"].to_numpy()]
-    given, probs = v.check_tranches_table(frames["tranches"], g, sources["tranches"])
+    ok, tranches, probs = _tranches(g, frames["tranches"], sources["tranches"])
     problems += probs
-    tranches = combine_schedules(generated, given.drop(columns="_row") if len(given) else None)
     problems += v.check_last_vest(g, tranches, sources["grants"])
 
     ev = frames["events"]
@@ -168,16 +178,11 @@ def read_grant_terms(location) -> tuple[list[tuple[int, float, float, bool]], li
     src = raw.tables["grants"].source
     g = v.fill_grant_defaults(g)
     problems += v.check_grants(g, src)
-    ok = v.schedule_ok(g) & ~np.isnat(g["grant_date"].to_numpy("datetime64[D]"))
-    ok_pos = np.flatnonzero(ok)
-    tr = generate_tranches(g.iloc[ok_pos])
-    tr["grant_idx"] = ok_pos[tr["grant_idx"].to_numpy()]
-    if "tranches" in raw.tables:
-        tframe, probs = parse_table(raw.tables["tranches"], TABLES["tranches"])
-        problems += probs
-        given, probs = v.check_tranches_table(tframe, g, raw.tables["tranches"].source)
-        problems += probs
-        tr = combine_schedules(tr, given.drop(columns="_row") if len(given) else None)
+    ttable = raw.tables.get("tranches") or _empty("tranches")
+    tframe, probs = parse_table(ttable, TABLES["tranches"])
+    problems += probs
+    ok, tr, probs = _tranches(g, tframe, ttable.source)
+    problems += probs
     if any(p.severity == "error" for p in problems):
         return [], problems
     gd = g["grant_date"].to_numpy("datetime64[D]")
