@@ -120,7 +120,6 @@ FAIR_VALUE_FORMATS = {
     "expiration_date": "yyyy-mm-dd",
     "vest_date": "yyyy-mm-dd",
 }
-LEDGER_TEXT = ("grant_id", "holder_id", "group", "assumption_key")
 
 
 def notes_rows(run_title: str, ledger: Ledger, policy: Policy, extra: list[tuple[str, str]] = ()) -> list[list]:
@@ -146,6 +145,8 @@ def notes_rows(run_title: str, ledger: Ledger, policy: Policy, extra: list[tuple
 
 def write_fair_values(run: ValueRun, xlsx: pathlib.Path | None, csv_dir: pathlib.Path | None) -> list[pathlib.Path]:
     """Write the fair-value table to a workbook and/or ``fair_values.csv``; returns the paths written."""
+    from grantval import workbooks as W
+
     outputs = []
     if xlsx is not None:
         outputs.append(pathlib.Path(xlsx))
@@ -160,7 +161,7 @@ def write_fair_values(run: ValueRun, xlsx: pathlib.Path | None, csv_dir: pathlib
         write_csv(csv_path, table)
     if xlsx is not None:
         sheets = [
-            Sheet("fair_values", frame=table, formats=FAIR_VALUE_FORMATS, text_columns=LEDGER_TEXT,
+            Sheet("fair_values", frame=table, formats=FAIR_VALUE_FORMATS, text_columns=W.LEDGER_TEXT,
                   widths={"grant_id": 14, "expected_term_method": 34, "fair_value_source": 28}),
             Sheet("notes", rows=notes_rows("grantval value: grant-date fair values", run.ledger, run.policy,
                                            [("distinct valuations", str(run.fair_values.distinct_valuations))]),
@@ -260,14 +261,9 @@ def write_expense(run: ExpenseRun, xlsx: pathlib.Path | None, csv_dir: pathlib.P
     refuse_overwriting_inputs(outputs, [p for p, _ in run.ledger.files] + [run.ledger.location])
 
     with stage("tables"):
-        award = run.ledger.grants["award_type"].to_numpy()
-        qty = run.ledger.grants["quantity"].to_numpy(np.int64)
-        by_grant = T.wide_by_grant(inp, award, run.fair_values.grant_value, qty, sched.period_ends, sched.expense_cents)
         by_group, group_sums = T.wide_by_group(inp, sched.period_ends, sched.expense_cents)
         tranches = T.tranche_table(inp, sched, run.ledger.tranches["tranche"].to_numpy())
         unrec, unrec_total, unrec_wa = T.unrecognised_table(inp, sched)
-        forecast = T.wide_by_grant(inp, award, run.fair_values.grant_value, qty, sched.forecast_ends,
-                                   sched.forecast_cents)
         disc = compute_disclosure(run.ledger, run.fair_values, inp, run.policy, run.start, run.through, share_price)
         checks = expense_checks(run, tranches, unrec, disc, W.recomputed_column(run.fair_values.table))
     with stage("write csv"):
@@ -287,6 +283,13 @@ def write_expense(run: ExpenseRun, xlsx: pathlib.Path | None, csv_dir: pathlib.P
                 [("from", run.start), ("through", run.through), ("forecast through", run.forecast_through or "(none)"),
                  ("share price for intrinsic values", "(not given)" if share_price is None else repr(share_price))],
                 run.policy.describe(), timestamp)
+            # the wide tables are for the workbook only
+            award = run.ledger.grants["award_type"].to_numpy()
+            qty = run.ledger.grants["quantity"].to_numpy(np.int64)
+            by_grant = T.wide_by_grant(inp, award, run.fair_values.grant_value, qty, sched.period_ends,
+                                       sched.expense_cents)
+            forecast = T.wide_by_grant(inp, award, run.fair_values.grant_value, qty, sched.forecast_ends,
+                                       sched.forecast_cents)
             fv_frame, _ = W.fair_value_audit(run.fair_values.table)
             sheets = W.expense_sheets(run, info, fv_frame, by_grant, by_group, tranches, unrec, unrec_total, unrec_wa, forecast,
                                       disc if share_price is not None else None, checks, expense_notes(run))
