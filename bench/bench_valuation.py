@@ -22,13 +22,13 @@ import time
 import numpy as np
 
 from bench._machine import describe, write_results
-from grantval.valuation import DEFAULT_STEPS, bsm_value, lattice_value
+from grantval.pricing import DEFAULT_STEPS, bsm_value, lattice_value
 
 RESULTS = pathlib.Path(__file__).parent / "results" / "valuation.txt"
 
 
 def _ql():
-    from tests.valuation.ql_reference import american_call, european
+    from tests.pricing.ql_reference import american_call, european
 
     return american_call, european
 

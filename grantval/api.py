@@ -312,7 +312,7 @@ class ExpenseOutputs:
 def expense_checks(run: ExpenseRun, tranches, unrec, disc, rc: str) -> list:
     """The tie-outs of an expense run, as :class:`grantval.workbooks.CheckRow` (figures and formulas)."""
     from grantval import workbooks as W
-    from grantval.valuation import bsm_value
+    from grantval.pricing import bsm_value
 
     sched, inp = run.schedule, run.inputs
     n = run.ledger.n_grants

@@ -66,7 +66,7 @@ def price_option(
     exit_rate: float = typer.Option(0.0, help="Lattice: post-vesting exit rate per year."),
 ) -> None:
     """Value one option with the stated assumptions and print the value per option."""
-    from grantval.valuation import bsm_value, lattice_value
+    from grantval.pricing import bsm_value, lattice_value
 
     try:
         if model == "bsm":

@@ -30,7 +30,7 @@ from grantval.dates import year_fraction
 from grantval.errors import UsageError
 from grantval.ledger.model import Ledger
 from grantval.policy import Policy
-from grantval.valuation import DEFAULT_STEPS, bsm_value, lattice_value, rsu_value
+from grantval.pricing import DEFAULT_STEPS, bsm_value, lattice_value, rsu_value
 
 
 @dataclass

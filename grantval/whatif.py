@@ -247,7 +247,7 @@ def volatility_curve(run: WhatIfRun) -> pd.DataFrame | None:
 
 def greeks_table(run: WhatIfRun) -> pd.DataFrame:
     """Analytic BSM sensitivities of each BSM grant's base value, per unit and per award."""
-    from grantval.valuation import bsm_sensitivities
+    from grantval.pricing import bsm_sensitivities
 
     t = run.results[0].fair_values.table
     b = t[t["model"] == "bsm"]

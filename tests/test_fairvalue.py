@@ -7,7 +7,7 @@ import pytest
 
 from grantval import api
 from grantval.dates import year_fraction
-from grantval.valuation import bsm_value, lattice_value, rsu_value, simplified_term
+from grantval.pricing import bsm_value, lattice_value, rsu_value, simplified_term
 from tests.factory import set_cell, tables, write_ledger
 
 SAMPLE = pathlib.Path(__file__).resolve().parents[1] / "sample_grants"

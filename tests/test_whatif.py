@@ -63,7 +63,7 @@ def test_planned_grants_with_ledger_terms_get_the_same_value(tmp_path):
 
 
 def test_greeks_table_matches_the_valuation_core():
-    from grantval.valuation import bsm_sensitivities
+    from grantval.pricing import bsm_sensitivities
     from grantval.whatif import greeks_table
 
     run = api.whatif(SAMPLE, vary=["volatility=+0.01"])

@@ -1,16 +1,9 @@
-"""Valuation core: pure numpy/scipy pricing functions on arrays.
+"""Public name kept from the first release: the pricing core now lives in :mod:`grantval.pricing`.
 
-No dates, files or pandas live here.  Terms and vesting are in years; rates
-and dividend yields are continuously compounded decimals per year; volatility
-is a decimal per square-root year.  Every public function checks and
-broadcasts its inputs, values a whole batch per call and returns a float for
-scalar inputs.
+``from grantval.valuation import bsm_value, lattice_value, simplified_term, rsu_value``
+keeps working (documented in README.md).
 """
 
-from grantval.valuation.bsm import bsm_value
-from grantval.valuation.greeks import bsm_sensitivities
-from grantval.valuation.lattice import DEFAULT_STEPS, lattice_value
-from grantval.valuation.rsu import rsu_value
-from grantval.valuation.terms import simplified_term
+from grantval.pricing import DEFAULT_STEPS, bsm_sensitivities, bsm_value, lattice_value, rsu_value, simplified_term
 
 __all__ = ["bsm_value", "bsm_sensitivities", "lattice_value", "simplified_term", "rsu_value", "DEFAULT_STEPS"]

@@ -10,7 +10,7 @@ import pytest
 from grantval import api
 from grantval.errors import LedgerError, UsageError
 from grantval.market.derive import MarketOptions, derive_assumptions
-from grantval.valuation import bsm_value
+from grantval.pricing import bsm_value
 from tests.factory import tables, write_ledger
 
 MARKET = pathlib.Path(__file__).resolve().parents[2] / "sample_grants" / "market"

@@ -4,9 +4,9 @@ import numpy as np
 import pytest
 
 from grantval.errors import InputError
-from grantval.valuation import bsm_value
+from grantval.pricing import bsm_value
 
-from tests.valuation.ql_reference import european
+from tests.pricing.ql_reference import european
 
 
 @pytest.mark.parametrize(

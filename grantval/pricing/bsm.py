@@ -6,7 +6,7 @@ import numpy as np
 from scipy.special import ndtr
 
 from grantval.errors import InputError
-from grantval.valuation._inputs import FINITE, NON_NEGATIVE, POSITIVE, finish, prepare
+from grantval.pricing._inputs import FINITE, NON_NEGATIVE, POSITIVE, finish, prepare
 
 KINDS = ("call", "put")
 

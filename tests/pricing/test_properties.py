@@ -10,7 +10,7 @@ import numpy as np
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from grantval.valuation import bsm_value, lattice_value
+from grantval.pricing import bsm_value, lattice_value
 
 price = st.floats(5, 200)
 moneyness = st.floats(0.5, 1.8)

@@ -3,8 +3,8 @@
 import numpy as np
 import pytest
 
-from grantval.valuation import bsm_sensitivities, bsm_value
-from tests.valuation.ql_reference import TODAY
+from grantval.pricing import bsm_sensitivities, bsm_value
+from tests.pricing.ql_reference import TODAY
 
 
 def test_against_central_finite_differences():
@@ -35,7 +35,7 @@ def test_against_quantlib_analytic_greeks():
     # QuantLib AnalyticEuropeanEngine: delta, vega, rho, dividendRho, theta (per year)
     import QuantLib as ql
 
-    from tests.valuation.ql_reference import DAY_COUNT, _process
+    from tests.pricing.ql_reference import DAY_COUNT, _process
 
     s, k, days, r, v, q = 50.0, 55.0, 1825, 0.04, 0.35, 0.015
     option = ql.VanillaOption(ql.PlainVanillaPayoff(ql.Option.Call, k), ql.EuropeanExercise(TODAY + days))

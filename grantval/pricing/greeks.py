@@ -5,7 +5,7 @@ from __future__ import annotations
 import numpy as np
 from scipy.special import ndtr
 
-from grantval.valuation._inputs import FINITE, NON_NEGATIVE, POSITIVE, finish, prepare
+from grantval.pricing._inputs import FINITE, NON_NEGATIVE, POSITIVE, finish, prepare
 
 _INV_SQRT_2PI = 1.0 / np.sqrt(2.0 * np.pi)
 
@@ -34,7 +34,7 @@ def bsm_sensitivities(share_price, strike, term, rate, volatility, dividend_yiel
 
     Notes
     -----
-    With ``d1, d2`` as in :func:`grantval.valuation.bsm_value`, ``phi`` the
+    With ``d1, d2`` as in :func:`grantval.pricing.bsm_value`, ``phi`` the
     standard normal density (Hull, Options, Futures and Other Derivatives,
     chapter on the Greek letters, for dividend-paying shares):
     delta = e^{-qT} N(d1); vega = S e^{-qT} phi(d1) sqrt(T);

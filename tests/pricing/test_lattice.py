@@ -5,9 +5,9 @@ import pytest
 from scipy.integrate import quad
 
 from grantval.errors import InputError
-from grantval.valuation import bsm_value, lattice_value
+from grantval.pricing import bsm_value, lattice_value
 
-from tests.valuation.ql_reference import american_call
+from tests.pricing.ql_reference import american_call
 
 
 def tolerance(value):

@@ -5,7 +5,7 @@ from __future__ import annotations
 import numpy as np
 
 from grantval.errors import InputError
-from grantval.valuation._inputs import NON_NEGATIVE, as_float_array, check, finish, prepare
+from grantval.pricing._inputs import NON_NEGATIVE, as_float_array, check, finish, prepare
 
 
 def simplified_term(vesting_years, contractual_years, weights=None):

@@ -25,13 +25,13 @@ from __future__ import annotations
 import numpy as np
 
 from grantval.errors import InputError
-from grantval.valuation._inputs import FINITE, NAN_ALLOWED, NON_NEGATIVE, POSITIVE, finish, prepare
+from grantval.pricing._inputs import FINITE, NAN_ALLOWED, NON_NEGATIVE, POSITIVE, finish, prepare
 from scipy.special import ndtr
 
-from grantval.valuation.bsm import _bsm
+from grantval.pricing.bsm import _bsm
 
 #: total time steps used when ``steps`` is None; with Richardson extrapolation
-#: this meets the accuracy documented in DEVELOPERS.md (see tests/valuation/test_lattice.py).
+#: this meets the accuracy documented in DEVELOPERS.md (see tests/pricing/test_lattice.py).
 DEFAULT_STEPS = 256
 #: smallest accepted explicit ``steps`` (the extrapolation needs steps // 2 >= 2)
 MIN_STEPS = 4

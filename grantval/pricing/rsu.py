@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from grantval.valuation._inputs import NON_NEGATIVE, finish, prepare
+from grantval.pricing._inputs import NON_NEGATIVE, finish, prepare
 
 
 def rsu_value(share_price, term, dividend_yield=0.0):

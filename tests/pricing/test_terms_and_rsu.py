@@ -4,7 +4,7 @@ import numpy as np
 import pytest
 
 from grantval.errors import InputError
-from grantval.valuation import rsu_value, simplified_term
+from grantval.pricing import rsu_value, simplified_term
 
 
 def test_graded_four_year_ten_year_term():

@@ -1,0 +1,16 @@
+"""Valuation core: pure numpy/scipy pricing functions on arrays.
+
+No dates, files or pandas live here.  Terms and vesting are in years; rates
+and dividend yields are continuously compounded decimals per year; volatility
+is a decimal per square-root year.  Every public function checks and
+broadcasts its inputs, values a whole batch per call and returns a float for
+scalar inputs.
+"""
+
+from grantval.pricing.bsm import bsm_value
+from grantval.pricing.greeks import bsm_sensitivities
+from grantval.pricing.lattice import DEFAULT_STEPS, lattice_value
+from grantval.pricing.rsu import rsu_value
+from grantval.pricing.terms import simplified_term
+
+__all__ = ["bsm_value", "bsm_sensitivities", "lattice_value", "simplified_term", "rsu_value", "DEFAULT_STEPS"]
