@@ -7,7 +7,7 @@ import datetime as _dt
 import pathlib
 import re
 
-from grantval.io.write import atomic_path
+from grantval.io.files import atomic_path
 
 _ISO = re.compile(r"^\d{4}-\d{2}-\d{2}$")
 _INT = re.compile(r"^-?\d+$")
@@ -77,8 +77,8 @@ def csv_folder_to_workbook(folder: pathlib.Path, target: pathlib.Path, names: tu
 
 def workbook_to_csv_folder(book: pathlib.Path, folder: pathlib.Path, names: tuple[str, ...]) -> None:
     """Write each sheet of ``book`` named like a table as ``<name>.csv`` (dates as ISO text)."""
-    from grantval.io.read import read_xlsx
-    from grantval.io.write import csv_text
+    from grantval.io.xlsx.read import read_xlsx
+    from grantval.io.csv import csv_text
 
     tables, problems = read_xlsx(pathlib.Path(book), names)
     errors = [p for p in problems if p.severity == "error"]

@@ -6,7 +6,8 @@ import numpy as np
 import pandas as pd
 
 from grantval.errors import LedgerError, Problem
-from grantval.io.read import RawTable, read_ledger_files
+from grantval.io.ledger_files import read_ledger_files
+from grantval.io.tables import RawTable
 from grantval.ledger import validate as v
 from grantval.ledger.events import apply_events
 from grantval.ledger.model import Ledger
@@ -42,7 +43,8 @@ def _planned_table(path) -> RawTable:
     """The planned-grants table: a CSV file, or the ``grants`` (else first) sheet of a workbook."""
     import pathlib
 
-    from grantval.io.read import read_csv_table, read_xlsx
+    from grantval.io.csv_read import read_csv_table
+    from grantval.io.xlsx.read import read_xlsx
 
     p = pathlib.Path(path)
     if not p.exists():

@@ -14,7 +14,7 @@ import numpy as np
 import pandas as pd
 
 from grantval.errors import Problem
-from grantval.io.read import RawTable
+from grantval.io.tables import RawTable
 from grantval.ledger.schema import Column
 
 _ISO = re.compile(r"^\d{4}-\d{2}-\d{2}$")

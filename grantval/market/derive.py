@@ -27,7 +27,8 @@ import numpy as np
 import pandas as pd
 
 from grantval.errors import LedgerError, Problem, UsageError
-from grantval.io.read import RawTable, read_csv_table
+from grantval.io.csv_read import read_csv_table
+from grantval.io.tables import RawTable
 from grantval.ledger.parse import parse_table
 from grantval.ledger.schema import Column
 from grantval.market.stats import historical_volatility, interpolate_yield, par_to_continuous, sample_closes

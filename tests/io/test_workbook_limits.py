@@ -16,7 +16,7 @@ SAMPLE = pathlib.Path(__file__).resolve().parents[2] / "sample_grants"
 
 
 def test_long_table_is_split_across_sheets(tmp_path, monkeypatch):
-    monkeypatch.setattr(W, "EXCEL_ROWS", 11)  # 10 data rows per sheet for the test
+    monkeypatch.setattr("grantval.io.xlsx.write.EXCEL_ROWS", 11)  # 10 data rows per sheet for the test
     frame = pd.DataFrame({"grant_id": [f"G{i}" for i in range(25)], "x": np.arange(25) * 1.5})
     W.write_workbook(tmp_path / "b.xlsx", [W.Sheet("tranches", frame=frame)])
     wb = openpyxl.load_workbook(tmp_path / "b.xlsx")
@@ -26,7 +26,7 @@ def test_long_table_is_split_across_sheets(tmp_path, monkeypatch):
 
 
 def test_too_many_columns_is_a_clear_error(tmp_path, monkeypatch):
-    monkeypatch.setattr(W, "EXCEL_COLUMNS", 5)
+    monkeypatch.setattr("grantval.io.xlsx.write.EXCEL_COLUMNS", 5)
     frame = pd.DataFrame({f"c{i}": [1.0] for i in range(6)})
     with pytest.raises(OutputError, match="more than Excel's"):
         W.write_workbook(tmp_path / "b.xlsx", [W.Sheet("wide", frame=frame)])
@@ -42,7 +42,7 @@ def test_fast_rows_equal_openpyxl_rows(tmp_path, monkeypatch):
     })
     fmts = {"x": "0.00", "d": "yyyy-mm-dd", "n": "#,##0"}
     W.write_workbook(tmp_path / "slow.xlsx", [W.Sheet("s", frame=frame, formats=fmts, text_columns=("grant_id",))])
-    monkeypatch.setattr(W, "FAST_ROWS", 1)
+    monkeypatch.setattr("grantval.io.xlsx.write.FAST_ROWS", 1)
     W.write_workbook(tmp_path / "fast.xlsx", [W.Sheet("s", frame=frame, formats=fmts, text_columns=("grant_id",))])
     a = openpyxl.load_workbook(tmp_path / "slow.xlsx")["s"]
     b = openpyxl.load_workbook(tmp_path / "fast.xlsx")["s"]

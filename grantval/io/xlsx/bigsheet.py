@@ -5,7 +5,7 @@ column's cell style; the remaining rows are generated here, column by column
 with numpy byte arrays, and spliced into the sheet's XML part before the
 workbook is zipped again.  Cells carry explicit references (``r``), numbers
 are written in shortest round-trip form, dates as Excel serial numbers, text
-as inline strings (never formulas), and :class:`~grantval.io.write.Formula`
+as inline strings (never formulas), and :class:`~grantval.io.xlsx.sheet.Formula`
 values as formulas.
 """
 
@@ -59,7 +59,7 @@ def _any_cell(v) -> bytes:
     """The rest of one cell after its reference and style, for a value of any type (mixed columns)."""
     import datetime as _dt
 
-    from grantval.io.write import Formula
+    from grantval.io.xlsx.sheet import Formula
 
     if isinstance(v, Formula):
         return b"><f>" + _xml_text(str(v)[1:]) + b"</f></c>"
@@ -81,7 +81,8 @@ def _any_cell(v) -> bytes:
 
 def _column_pieces(values: np.ndarray, letter: bytes, style: bytes, rownum: np.ndarray) -> list:
     """The pieces of one column's cells for a block of rows."""
-    from grantval.io.write import Formula, _float_field
+    from grantval.io.csv import _float_field
+    from grantval.io.xlsx.sheet import Formula
 
     head = [b'<c r="', letter, rownum, b'"', style]
     if values.dtype == object and not all(v is None or (isinstance(v, str) and not isinstance(v, Formula))

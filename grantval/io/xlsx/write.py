@@ -1,0 +1,202 @@
+"""Writing workbooks with openpyxl, deterministic and atomic; long tables via the fast row writer."""
+
+from __future__ import annotations
+
+import datetime as _dt
+import math
+import pathlib
+from typing import Sequence
+
+import numpy as np
+import pandas as pd
+
+from grantval.errors import OutputError
+from grantval.io.csv import _column_values
+from grantval.io.files import atomic_path
+from grantval.io.xlsx.sheet import (
+    EXCEL_COLUMNS,
+    EXCEL_ROWS,
+    FAST_ROWS,
+    Chart,
+    Formula,
+    Sheet,
+    label,
+)
+
+
+def _cell_value(v):
+    if v is None:
+        return None
+    if isinstance(v, (float, np.floating)):
+        return None if math.isnan(v) else float(v)
+    if isinstance(v, (np.integer,)):
+        return int(v)
+    if isinstance(v, np.datetime64):
+        return None if np.isnat(v) else v.astype("datetime64[D]").astype(_dt.date)
+    if isinstance(v, pd.Timestamp):
+        return None if v is pd.NaT else v.date()
+    if isinstance(v, np.bool_):
+        return bool(v)
+    return v
+
+
+def write_workbook(path: pathlib.Path, sheets: Sequence[Sheet], fixed_time: _dt.datetime | None = None) -> None:
+    """Write ``sheets`` to an .xlsx workbook atomically (openpyxl write-only mode).
+
+    ``fixed_time`` sets the workbook's created/modified properties (for
+    reproducible files); default is the current time.
+    """
+    from openpyxl import Workbook
+    from openpyxl.cell import WriteOnlyCell
+    from openpyxl.styles import Alignment, Font
+    from openpyxl.utils import get_column_letter
+
+    wb = Workbook(write_only=True)
+    stamp = fixed_time or _dt.datetime.now().replace(microsecond=0)
+    wb.properties.created = stamp
+    wb.properties.modified = stamp
+    wb.properties.creator = "grantval"
+    bold = Font(bold=True)
+    big: dict[str, pd.DataFrame] = {}
+    for index, sh in enumerate(_split_long(sheets)):
+        ws = wb.create_sheet(sh.name)
+        if sh.frame is not None:
+            cols = list(sh.frame.columns)
+            if len(cols) > EXCEL_COLUMNS:
+                raise OutputError(f"the sheet {sh.name} would have {len(cols):,} columns, more than Excel's "
+                                  f"{EXCEL_COLUMNS:,}; use fewer periods (a longer --period) or --csv-dir")
+            for j, c in enumerate(cols, start=1):
+                width = sh.widths.get(c, max(10, min(40, len(sh.labels.get(c, label(c))) + 2)))
+                ws.column_dimensions[get_column_letter(j)].width = width
+            ws.freeze_panes = "A2"
+            if len(sh.frame):
+                ws.auto_filter.ref = f"A1:{get_column_letter(len(cols))}{len(sh.frame) + 1}"
+            header = []
+            for c in cols:
+                cell = WriteOnlyCell(ws, value=sh.labels.get(c, label(c)))
+                cell.font = bold
+                cell.alignment = Alignment(wrap_text=True, vertical="top")
+                header.append(cell)
+            ws.append(header)
+            frame = sh.frame
+            if len(frame) > FAST_ROWS:
+                big[f"xl/worksheets/sheet{index + 1}.xml"] = frame
+                frame = frame.iloc[:1]
+            values = [_column_values(frame[c]) for c in cols]
+            fmts = [sh.formats.get(c) for c in cols]
+            texts = [c in sh.text_columns for c in cols]
+            for row in zip(*values):
+                out = []
+                for v, fmt, is_text in zip(row, fmts, texts):
+                    v = _cell_value(v)
+                    if isinstance(v, Formula):
+                        cell = WriteOnlyCell(ws, value=str(v))
+                        if fmt:
+                            cell.number_format = fmt
+                        out.append(cell)
+                    elif isinstance(v, str) or is_text:
+                        cell = WriteOnlyCell(ws, value=None if v is None else str(v))
+                        if v is not None:
+                            cell.data_type = "s"  # never a formula
+                        out.append(cell)
+                    elif fmt:
+                        cell = WriteOnlyCell(ws, value=v)  # a styled cell even when empty
+                        cell.number_format = fmt
+                        out.append(cell)
+                    else:
+                        out.append(v)
+                ws.append(out)
+        if sh.rows is not None:
+            for j, w in sh.widths.items():
+                if isinstance(j, int):
+                    ws.column_dimensions[get_column_letter(j)].width = w
+            for i, row in enumerate(sh.rows):
+                out = []
+                for j, v in enumerate(row):
+                    v = _cell_value(v)
+                    fmt = sh.row_formats.get((i, j))
+                    if isinstance(v, Formula):
+                        cell = WriteOnlyCell(ws, value=str(v))
+                    elif isinstance(v, str):
+                        cell = WriteOnlyCell(ws, value=v)
+                        cell.data_type = "s"
+                        if i == 0:
+                            cell.font = bold
+                    elif fmt is not None and v is not None:
+                        cell = WriteOnlyCell(ws, value=v)
+                    else:
+                        out.append(v)
+                        continue
+                    if fmt:
+                        cell.number_format = fmt
+                    out.append(cell)
+                ws.append(out)
+        for ch in sh.charts:
+            ws.add_chart(_build_chart(ch, wb, ws), ch.anchor)
+    with atomic_path(path) as tmp:
+        wb.save(tmp)
+        _normalise_zip(tmp, stamp, big)
+
+
+def _build_chart(spec: Chart, wb, ws):
+    from openpyxl.chart import BarChart, LineChart, Reference
+
+    chart = BarChart() if spec.kind == "bar" else LineChart()
+    chart.title = spec.title
+    chart.y_axis.title = spec.y_title
+    chart.x_axis.title = spec.x_title
+    chart.height, chart.width = 9, 18
+    src = ws if spec.source is None else wb[spec.source]
+    c0, r0, c1, r1 = spec.data
+    chart.add_data(Reference(src, min_col=c0, min_row=r0, max_col=c1, max_row=r1), titles_from_data=True)
+    c0, r0, c1, r1 = spec.categories
+    chart.set_categories(Reference(src, min_col=c0, min_row=r0, max_col=c1, max_row=r1))
+    return chart
+
+
+def _split_long(sheets: Sequence[Sheet]) -> list[Sheet]:
+    """Split frame sheets longer than Excel allows into numbered parts (name, name_2, ...)."""
+    import dataclasses
+
+    out: list[Sheet] = []
+    per = EXCEL_ROWS - 1
+    for sh in sheets:
+        if sh.frame is None or len(sh.frame) <= per:
+            out.append(sh)
+            continue
+        if any(sh.frame[c].dtype == object and sh.frame[c].map(lambda v: isinstance(v, Formula)).any()
+               for c in sh.frame.columns):
+            raise OutputError(f"the sheet {sh.name} would have {len(sh.frame):,} rows, more than Excel's "
+                              f"{per:,}; write the CSV tables instead (--csv-dir with --no-workbook)")
+        for k, start in enumerate(range(0, len(sh.frame), per)):
+            part = sh.frame.iloc[start : start + per].reset_index(drop=True)
+            out.append(dataclasses.replace(sh, name=sh.name if k == 0 else f"{sh.name}_{k + 1}"[:31], frame=part,
+                                           charts=sh.charts if k == 0 else []))
+    return out
+
+
+def _normalise_zip(path: pathlib.Path, stamp: _dt.datetime, big: dict | None = None) -> None:
+    """Rewrite a saved workbook with fixed zip entry times and ``stamp`` as its modified time.
+
+    openpyxl stamps the save time into docProps/core.xml and the zip entries;
+    with this, equal content gives equal bytes.
+    """
+    import re
+    import zipfile
+
+    with zipfile.ZipFile(path) as src:
+        entries = [(info, src.read(info.filename)) for info in src.infolist()]
+    when = stamp.strftime("%Y-%m-%dT%H:%M:%SZ").encode()
+    entries = [(info, re.sub(rb"(<dcterms:modified[^>]*>)[^<]*(</dcterms:modified>)", rb"\g<1>" + when + rb"\g<2>", data)
+                if info.filename == "docProps/core.xml" else data) for info, data in entries]
+    if big:
+        from grantval.io.xlsx.bigsheet import splice
+
+        entries = [(info, splice(data, big[info.filename]) if info.filename in big else data)
+                   for info, data in entries]
+    with zipfile.ZipFile(path, "w", compression=zipfile.ZIP_DEFLATED) as dst:
+        for info, data in entries:
+            fixed = zipfile.ZipInfo(info.filename, date_time=(1980, 1, 1, 0, 0, 0))
+            fixed.compress_type = zipfile.ZIP_DEFLATED
+            fixed.external_attr = info.external_attr
+            dst.writestr(fixed, data, compresslevel=1 if len(data) > 2**24 else 6)
