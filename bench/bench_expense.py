@@ -19,8 +19,8 @@ import tracemalloc
 import numpy as np
 
 from bench._machine import describe, write_results
-from grantval.expense.inputs import ExpenseInputs
-from grantval.expense.periods import compute_schedule
+from grantval.attribution.inputs import ExpenseInputs
+from grantval.attribution.periods import compute_schedule
 from grantval.policy import Policy
 
 RESULTS = pathlib.Path(__file__).parent / "results" / "expense.txt"

@@ -4,7 +4,7 @@ The package is layered:
 
 - :mod:`grantval.pricing` -- the pricing core, pure numpy/scipy on arrays;
 - :mod:`grantval.ledger` -- reading and validating a grant ledger;
-- :mod:`grantval.expense` -- attribution and forfeiture rules, period schedules;
+- :mod:`grantval.attribution` -- attribution and forfeiture rules, period schedules;
 - :mod:`grantval.cli` -- the ``grantval`` command, thin over the Python API.
 """
 

@@ -13,7 +13,7 @@ from typing import TYPE_CHECKING
 
 from grantval import __version__
 from grantval.errors import Problem
-from grantval.fairvalue import FairValues, compute_fair_values
+from grantval.measurement.fairvalue import FairValues, compute_fair_values
 import numpy as np
 import pandas as pd
 
@@ -26,8 +26,8 @@ from grantval.progress import stage
 
 if TYPE_CHECKING:  # pragma: no cover
     from grantval.disclosure import Disclosure
-    from grantval.expense.inputs import ExpenseInputs
-    from grantval.expense.periods import ExpenseSchedule
+    from grantval.attribution.inputs import ExpenseInputs
+    from grantval.attribution.periods import ExpenseSchedule
 
 
 @dataclass
@@ -201,8 +201,8 @@ def expense(location, *, through, start=None, forecast_through=None, period=None
     period, standard, attribution, forfeitures, fiscal_year_end_month : optional
         Override the ledger's policy table.
     """
-    from grantval.expense.inputs import build_inputs
-    from grantval.expense.periods import compute_schedule
+    from grantval.attribution.inputs import build_inputs
+    from grantval.attribution.periods import compute_schedule
 
     with stage("read+check"):
         ledger = load_ledger(location)
@@ -252,7 +252,7 @@ def write_expense(run: ExpenseRun, xlsx: pathlib.Path | None, csv_dir: pathlib.P
     """
     from grantval import workbooks as W
     from grantval.disclosure import compute_disclosure
-    from grantval.expense import tables as T
+    from grantval.attribution import tables as T
 
     inp, sched = run.inputs, run.schedule
     names = ["expense.csv", "expense_by_group.csv", "tranches.csv", "forecast.csv", "unrecognized.csv"]
@@ -399,7 +399,7 @@ def disclose(location, *, start, through, share_price: float | None = None, peri
     """Option and RSU activity and grant figures (ASC 718-10-50-2) for the window ``start``..``through``."""
     from grantval.disclosure import compute_disclosure
     from grantval.errors import UsageError
-    from grantval.expense.inputs import build_inputs
+    from grantval.attribution.inputs import build_inputs
 
     s, t = _day(start, "--from"), _day(through, "--through")
     if s is None or t is None:
@@ -469,7 +469,7 @@ def whatif(location, *, vary: list[str], grants_from=None, grants_through=None, 
     planned : path, optional
         Hypothetical grants (grants format) valued and expensed as if granted.
     """
-    from grantval.whatif import parse_vary, run_scenarios
+    from grantval.scenarios.whatif import parse_vary, run_scenarios
 
     if not vary:
         raise UsageError("give at least one --vary NAME=SPEC")
@@ -485,7 +485,7 @@ def whatif(location, *, vary: list[str], grants_from=None, grants_through=None, 
 def write_whatif(run, xlsx: pathlib.Path | None, csv_dir: pathlib.Path | None, command: str = "",
                  timestamp: bool = True) -> list[pathlib.Path]:
     """Write the what-if workbook and/or its CSV tables; returns the paths written."""
-    from grantval import whatif as WI
+    from grantval.scenarios import whatif as WI
     from grantval import workbooks as W
 
     names = ["scenarios.csv", "sensitivity.csv", "tornado.csv", "fair_values_by_scenario.csv",

@@ -13,9 +13,9 @@ import numpy as np
 import pandas as pd
 
 from grantval.dates import DAY, DAYS_PER_YEAR
-from grantval.expense.engine import measure
-from grantval.expense.inputs import ExpenseInputs
-from grantval.fairvalue import FairValues
+from grantval.attribution.engine import measure
+from grantval.attribution.inputs import ExpenseInputs
+from grantval.measurement.fairvalue import FairValues
 from grantval.ledger.model import Ledger
 from grantval.policy import Policy
 

@@ -3,6 +3,9 @@
 from __future__ import annotations
 
 import numpy as np
+
+from grantval.awards.registry import flag
+from grantval.pricing.terms import simplified_formula
 import pandas as pd
 
 from grantval.errors import LedgerError, Problem
@@ -188,14 +191,14 @@ def read_grant_terms(location) -> tuple[list[tuple[int, float, float, bool]], li
     if any(p.severity == "error" for p in problems):
         return [], problems
     gd = g["grant_date"].to_numpy("datetime64[D]")
-    option = (g["award_type"] == "option").to_numpy()
+    option = flag(g["award_type"].to_numpy(), "option_terms")
     gi = tr["grant_idx"].to_numpy()
     tq = tr["quantity"].to_numpy(float)
     tv = np.maximum(year_fraction(gd[gi], tr["vest_date"].to_numpy("datetime64[D]")), 0.0)
     qsum = np.bincount(gi, weights=tq, minlength=len(g))
     avg_vest = np.bincount(gi, weights=tq * tv, minlength=len(g)) / np.where(qsum > 0, qsum, 1)
     contract = year_fraction(gd, g["expiration_date"].to_numpy("datetime64[D]"))
-    term = (avg_vest + contract) / 2.0
+    term = simplified_formula(avg_vest, contract)
     q = g["quantity"].to_numpy(float)
     out = []
     for d in np.unique(gd[ok]):

@@ -7,6 +7,8 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
+from grantval.awards.registry import AWARD_TYPES
+
 
 @dataclass(frozen=True)
 class Column:
@@ -29,7 +31,7 @@ GRANTS = (
     Column("grant_id", "text", required=True),
     Column("holder_id", "text", required=True),
     Column("group", "text"),
-    Column("award_type", "choice", choices=("option", "rsu"), default="option"),
+    Column("award_type", "choice", choices=AWARD_TYPES, default="option"),
     Column("grant_date", "date", required=True),
     Column("quantity", "integer", required=True),
     Column("exercise_price", "number"),

@@ -8,6 +8,11 @@ from grantval.errors import InputError
 from grantval.pricing._inputs import NON_NEGATIVE, as_float_array, check, finish, prepare
 
 
+def simplified_formula(average_vesting_years, contractual_years):
+    """The simplified method on plain arrays (no checks): (average vesting time + contractual term) / 2, years."""
+    return (average_vesting_years + contractual_years) / 2.0
+
+
 def simplified_term(vesting_years, contractual_years, weights=None):
     """Expected term by the simplified method of SEC Staff Accounting Bulletin Topic 14.D.2.
 
@@ -61,4 +66,4 @@ def simplified_term(vesting_years, contractual_years, weights=None):
     if np.any(avg > contract):
         raise InputError("vesting_years must not exceed contractual_years")
     scalar = scalar or (weights is not None and np.ndim(vesting_years) == 1 and np.ndim(contractual_years) == 0)
-    return finish((avg + contract) / 2.0, scalar)
+    return finish(simplified_formula(avg, contract), scalar)

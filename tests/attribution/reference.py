@@ -3,7 +3,7 @@
 Written from the rules of docs/expense-rules.md with plain Python loops over
 days and tranches, using only the standard library on the checked ledger's
 tranches, allocated events, estimates and per-tranche fair values.  It
-shares no code with ``grantval.expense``.
+shares no code with ``grantval.attribution``.
 """
 
 from __future__ import annotations

@@ -3,12 +3,16 @@
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import TYPE_CHECKING, Callable
 
 import numpy as np
 import pandas as pd
 
-from grantval.fairvalue import FairValues
+from grantval.attribution.layers import CostLayers, grant_date_layers
 from grantval.ledger.model import Ledger
+
+if TYPE_CHECKING:  # pragma: no cover
+    from grantval.measurement.fairvalue import FairValues
 
 
 @dataclass
@@ -26,7 +30,7 @@ class ExpenseInputs:
     t_grant: np.ndarray            # per tranche: grant position
     t_vest: np.ndarray             # per tranche: vest date
     t_qty: np.ndarray              # per tranche: quantity granted
-    t_fv: np.ndarray               # per tranche: fair value per unit
+    t_fv: np.ndarray               # per tranche: fair value per unit (sum of its cost layers)
     c_tranche: np.ndarray          # per change: tranche position
     c_date: np.ndarray             # per change: date
     c_qty: np.ndarray              # per change: quantity
@@ -35,15 +39,21 @@ class ExpenseInputs:
     est_effective: np.ndarray
     est_rate: np.ndarray
     est_fraction: np.ndarray
-    #: what-if: a function applied to the annual forfeiture rate (0 where none) of the grants in
-    #: ``rate_shift_mask``; grants estimated by an expected vest fraction are left as they are
-    rate_shift: object = None
-    rate_shift_mask: np.ndarray | None = None
+    #: cost layers of every tranche; default: one grant-date layer per tranche carrying ``t_fv``
+    layers: CostLayers | None = None
+    #: a scenario's change to the estimates in force: ``(rate, fraction) -> (rate, fraction)``
+    #: per grant (see :mod:`grantval.scenarios.shifts`); None for the estimates as booked
+    estimate_adjust: Callable | None = None
+    #: names ``estimate_adjust`` in the memo key
+    estimate_label: str = ""
     #: shared across runs that differ only in fair values (what-if scenarios): quantities by date
     memo: dict | None = None
-    #: shift label, part of the memo key when a forfeiture-rate shift is applied
-    rate_shift_label: str = ""
     _prep: object = None
+
+    def __post_init__(self):
+        if self.layers is None:
+            gdate = np.asarray(self.grant_date, dtype="datetime64[D]")
+            self.layers = grant_date_layers(self.t_fv, gdate[np.asarray(self.t_grant, dtype=np.int64)])
 
     @property
     def n_grants(self) -> int:
@@ -56,11 +66,16 @@ class ExpenseInputs:
         return self._prep
 
 
+def _days(a) -> np.ndarray:
+    """Dates as int64 day numbers."""
+    return np.asarray(a, dtype="datetime64[D]").astype(np.int64)
+
+
 class Prepared:
     """Static per-tranche, per-change and per-estimate arrays, as int64 day numbers."""
 
     def __init__(self, inp: ExpenseInputs):
-        day = lambda a: np.asarray(a, dtype="datetime64[D]").astype(np.int64)  # noqa: E731
+        day = _days
         self.grant = day(inp.grant_date)
         self.last = day(inp.last_vest)
         self.t_gdate = self.grant[inp.t_grant]
@@ -78,9 +93,29 @@ class Prepared:
         self.code_grant = np.array([index.get(k, -1) for k in inp.grant_id], dtype=np.int64)
         self.code_group = np.array([index.get(k, -1) for k in inp.group], dtype=np.int64)
         self.code_star = index.get("*", -1)
+        self._layers(inp)
+
+    def _layers(self, inp: ExpenseInputs) -> None:
+        """Per-layer service periods and the layer sets of straight-line attribution."""
+        lay = inp.layers
+        n_t = len(inp.t_qty)
+        if len(lay) < n_t or not np.array_equal(lay.tranche[:n_t], np.arange(n_t)):
+            raise ValueError("the first cost layer of each tranche must come first, in tranche order")
+        self.l_tranche = lay.tranche
+        self.l_grant = inp.t_grant[lay.tranche]
+        self.l_start = _days(lay.start)
+        self.l_len = self.t_vest[lay.tranche] - self.l_start
+        keys = self.l_grant * (int(lay.set_id.max(initial=0)) + 1) + lay.set_id
+        uniq, self.l_set = np.unique(keys, return_inverse=True)
+        self.l_set = self.l_set.ravel()
+        first = np.zeros(len(uniq), dtype=np.int64)
+        first[self.l_set[::-1]] = np.arange(len(lay))[::-1]
+        self.set_grant = self.l_grant[first]
+        self.set_start = self.l_start[first]
+        self.set_len = self.last[self.set_grant] - self.set_start
 
 
-def build_inputs(ledger: Ledger, fair_values: FairValues) -> ExpenseInputs:
+def build_inputs(ledger: Ledger, fair_values: "FairValues") -> ExpenseInputs:
     """Collect the engine's arrays from a ledger and its fair values."""
     g, tr, ch, est = ledger.grants, ledger.tranches, ledger.changes, ledger.estimates
     t_grant = tr["grant_idx"].to_numpy(np.int64)

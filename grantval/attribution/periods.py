@@ -8,8 +8,8 @@ import numpy as np
 
 from grantval.dates import DAY, period_ends
 from grantval.errors import UsageError
-from grantval.expense.engine import Measurement, measure
-from grantval.expense.inputs import ExpenseInputs
+from grantval.attribution.engine import Measurement, measure
+from grantval.attribution.inputs import ExpenseInputs
 from grantval.policy import Policy
 from grantval.progress import track
 

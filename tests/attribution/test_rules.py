@@ -7,8 +7,8 @@ import pytest
 
 from grantval import api
 from grantval.errors import UsageError
-from tests.expense.random_ledgers import random_ledger
-from tests.expense.reference import schedule_cents
+from tests.attribution.random_ledgers import random_ledger
+from tests.attribution.reference import schedule_cents
 from tests.factory import tables, write_ledger
 
 

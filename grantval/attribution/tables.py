@@ -5,8 +5,8 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-from grantval.expense.inputs import ExpenseInputs
-from grantval.expense.periods import ExpenseSchedule
+from grantval.attribution.inputs import ExpenseInputs
+from grantval.attribution.periods import ExpenseSchedule
 
 
 def money(cents: np.ndarray) -> np.ndarray:

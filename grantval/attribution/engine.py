@@ -24,7 +24,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from grantval.dates import DAYS_PER_YEAR
-from grantval.expense.inputs import ExpenseInputs
+from grantval.attribution.inputs import ExpenseInputs
 
 DAY = np.timedelta64(1, "D")
 #: days per year for the remaining time of an annual forfeiture rate
@@ -92,12 +92,10 @@ def estimates_at(inp: ExpenseInputs, d) -> tuple[np.ndarray, np.ndarray]:
 
 
 def _shifted(inp: ExpenseInputs, rate: np.ndarray, frac: np.ndarray):
-    if inp.rate_shift is None:
+    """Apply a scenario's change to the estimates (see :mod:`grantval.scenarios.shifts`)."""
+    if inp.estimate_adjust is None:
         return rate, frac
-    m = inp.rate_shift_mask & np.isnan(frac)
-    rate = rate.copy()
-    rate[m] = inp.rate_shift(np.nan_to_num(rate[m], nan=0.0))
-    return rate, frac
+    return inp.estimate_adjust(rate, frac)
 
 
 @dataclass
@@ -107,8 +105,9 @@ class _Quantities:
     n_exp: np.ndarray
     vested: np.ndarray
     granted_by: np.ndarray
-    elapsed: np.ndarray
-    el_last: np.ndarray
+    started: np.ndarray       # per layer: its service has begun by the date
+    elapsed: np.ndarray       # per layer: service fraction to the tranche's vesting date
+    el_set: np.ndarray        # per layer set: service fraction to the award's last vesting date
     granted_g: np.ndarray
     years_left_t: np.ndarray
     years_left_g: np.ndarray
@@ -116,7 +115,7 @@ class _Quantities:
 
 def _quantities(inp: ExpenseInputs, dn: int, forfeitures: str, cut: int) -> _Quantities:
     """Everything at day number ``dn`` that does not depend on fair values."""
-    key = (dn, forfeitures, cut, inp.rate_shift_label)
+    key = (dn, forfeitures, cut, inp.estimate_label)
     if inp.memo is not None and key in inp.memo:
         return inp.memo[key]
     pre = inp.prepared()
@@ -142,8 +141,9 @@ def _quantities(inp: ExpenseInputs, dn: int, forfeitures: str, cut: int) -> _Qua
     granted_g = pre.grant <= dn
     q = _Quantities(
         outstanding=outstanding, cancelled=cancelled, n_exp=n_exp, vested=vested, granted_by=granted_by,
-        elapsed=np.where(granted_by, _elapsed(dn, pre.t_gdate, pre.t_len), 0.0),
-        el_last=np.where(granted_g, _elapsed(dn, pre.grant, pre.g_len), 0.0),
+        started=pre.l_start <= dn,
+        elapsed=np.where(pre.l_start <= dn, _elapsed(dn, pre.l_start, pre.l_len), 0.0),
+        el_set=np.where(pre.set_start <= dn, _elapsed(dn, pre.set_start, pre.set_len), 0.0),
         granted_g=granted_g,
         years_left_t=np.maximum(pre.t_vest - dn, 0) / DAYS_PER_YEAR,
         years_left_g=np.maximum(pre.last - dn, 0) / DAYS_PER_YEAR,
@@ -169,29 +169,33 @@ def measure(inp: ExpenseInputs, d, *, attribution: str, forfeitures: str, events
     dn = int(np.datetime64(d, "D").astype(np.int64))
     cut = dn if events_through is None else min(dn, int(np.datetime64(events_through, "D").astype(np.int64)))
     Q = _quantities(inp, dn, forfeitures, cut)
-    gi = inp.t_grant
+    pre = inp.prepared()
+    gi, lg, lt = inp.t_grant, pre.l_grant, pre.l_tranche
     n_g = inp.n_grants
-    fv = inp.t_fv
-    value = fv * Q.n_exp
-    cancel_cost = np.bincount(gi, weights=np.where(Q.granted_by, fv * Q.cancelled, 0.0), minlength=n_g)
+    value = inp.layers.fair_value * Q.n_exp[lt]  # per layer
+    started = Q.started
+    cancel_cost = np.bincount(lg, weights=np.where(Q.granted_by[lt] & started,
+                                                   inp.layers.fair_value * Q.cancelled[lt], 0.0), minlength=n_g)
     if attribution == "graded":
-        tranche_cost = value * Q.elapsed
-        cost = np.bincount(gi, weights=tranche_cost, minlength=n_g)
-        left_t = np.where(Q.granted_by, value - tranche_cost, 0.0)
-        unrec = np.bincount(gi, weights=left_t, minlength=n_g)
-        weighted = np.bincount(gi, weights=left_t * Q.years_left_t, minlength=n_g)
+        layer_cost = value * Q.elapsed
+        cost = np.bincount(lg, weights=layer_cost, minlength=n_g)
+        left = np.where(started, value - layer_cost, 0.0)
+        unrec = np.bincount(lg, weights=left, minlength=n_g)
+        weighted = np.bincount(lg, weights=left * Q.years_left_t[lt], minlength=n_g)
         remaining = weighted / np.where(unrec > 0, unrec, 1.0)
     else:
-        total = np.bincount(gi, weights=value, minlength=n_g)
-        vested_value = np.bincount(gi, weights=np.where(Q.vested, value, 0.0), minlength=n_g)
-        cost = np.maximum(total * Q.el_last, vested_value)
+        total = np.bincount(lg, weights=np.where(started, value, 0.0), minlength=n_g)
+        by_set = np.bincount(pre.l_set, weights=value, minlength=len(pre.set_grant)) * Q.el_set
+        vested_value = np.bincount(lg, weights=np.where(Q.vested[lt] & started, value, 0.0), minlength=n_g)
+        cost = np.maximum(np.bincount(pre.set_grant, weights=by_set, minlength=n_g), vested_value)
         unrec = np.where(Q.granted_g, total - cost, 0.0)
         remaining = Q.years_left_g
     remaining = np.where(unrec > 0, remaining, 0.0)
-    expected_total = np.bincount(gi, weights=np.where(Q.granted_by, value, 0.0), minlength=n_g) + cancel_cost
-    n_exp, outstanding, cancelled, elapsed, vested = Q.n_exp, Q.outstanding, Q.cancelled, Q.elapsed, Q.vested
+    expected_total = np.bincount(lg, weights=np.where(Q.granted_by[lt] & started, value, 0.0),
+                                 minlength=n_g) + cancel_cost
+    n_t = len(inp.t_qty)
     return Measurement(
-        n_expensed=n_exp, outstanding=outstanding, cancelled=cancelled, elapsed=elapsed, vested=vested,
-        grant_cost=cost + cancel_cost, expected_total=expected_total, unrecognised=unrec,
+        n_expensed=Q.n_exp, outstanding=Q.outstanding, cancelled=Q.cancelled, elapsed=Q.elapsed[:n_t],
+        vested=Q.vested, grant_cost=cost + cancel_cost, expected_total=expected_total, unrecognised=unrec,
         remaining_years=remaining,
     )
