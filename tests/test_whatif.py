@@ -32,6 +32,8 @@ def test_fair_value_rises_with_volatility_and_term():
     by = {r.scenario.description: r.fair_values.grant_value for r in run.results}
     lo_lo, hi_lo = by["volatility=-0.1; expected_term_years=-1"], by["volatility=+0.1; expected_term_years=-1"]
     lo_hi = by["volatility=-0.1; expected_term_years=+1"]
+    # the sample ledger holds 27 BSM and 9 lattice option grants: the comparisons below are not empty
+    assert (opt & bsm).sum() >= 10 and (opt & (model == "lattice")).sum() >= 5
     assert np.all(hi_lo[opt] > lo_lo[opt])          # more volatility, more value (lattice included)
     assert np.all(lo_hi[opt & bsm] > lo_lo[opt & bsm])  # longer expected term, more value (BSM)
 
@@ -49,6 +51,7 @@ def test_only_grants_in_the_window_are_revalued():
     base, shifted = run.results[0].fair_values.grant_value, run.results[1].fair_values.grant_value
     np.testing.assert_array_equal(base[~inside], shifted[~inside])
     opt = run.ledger.grants["award_type"].to_numpy() == "option"
+    assert (inside & opt).sum() >= 5 and (~inside).sum() >= 5  # both sides of the window are checked
     assert np.all(shifted[inside & opt] > base[inside & opt])
 
 

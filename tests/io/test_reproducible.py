@@ -8,6 +8,8 @@ from grantval import api
 from tests.factory import BASE, set_cell, write_ledger
 
 SAMPLE = pathlib.Path(__file__).resolve().parents[2] / "sample_grants"
+# the CSV files of an expense run with --forecast-through (README, "expense")
+EXPENSE_CSVS = sorted(["expense.csv", "expense_by_group.csv", "tranches.csv", "forecast.csv", "unrecognized.csv"])
 
 
 def _run(out: pathlib.Path, timestamp: bool):
@@ -19,8 +21,10 @@ def test_reruns_are_byte_identical_without_timestamp(tmp_path):
     _run(tmp_path / "a", False)
     _run(tmp_path / "b", False)
     assert (tmp_path / "a" / "e.xlsx").read_bytes() == (tmp_path / "b" / "e.xlsx").read_bytes()
-    for f in (tmp_path / "a" / "csv").iterdir():
-        assert f.read_bytes() == (tmp_path / "b" / "csv" / f.name).read_bytes(), f.name
+    names = sorted(f.name for f in (tmp_path / "a" / "csv").iterdir())
+    assert names == sorted(f.name for f in (tmp_path / "b" / "csv").iterdir()) == EXPENSE_CSVS
+    for name in names:
+        assert (tmp_path / "a" / "csv" / name).read_bytes() == (tmp_path / "b" / "csv" / name).read_bytes(), name
 
 
 def test_with_timestamp_only_the_run_time_differs(tmp_path):
@@ -29,11 +33,16 @@ def test_with_timestamp_only_the_run_time_differs(tmp_path):
     a = openpyxl.load_workbook(tmp_path / "a" / "e.xlsx")
     b = openpyxl.load_workbook(tmp_path / "b" / "e.xlsx")
     assert a.sheetnames == b.sheetnames
+    skipped = 0
     for ws in a.worksheets:
-        for ra, rb in zip(ws.iter_rows(values_only=True), b[ws.title].iter_rows(values_only=True)):
+        rows_a, rows_b = list(ws.iter_rows(values_only=True)), list(b[ws.title].iter_rows(values_only=True))
+        assert len(rows_a) == len(rows_b), ws.title
+        for ra, rb in zip(rows_a, rows_b):
             if ra and ra[0] == "Run at":
+                skipped += 1
                 continue
             assert ra == rb, ws.title
+    assert skipped == 1  # the one run-time row exists and is the only row left out
 
 
 def test_ledger_text_starting_with_equals_is_text_in_expense_workbook(tmp_path):
@@ -49,5 +58,7 @@ def test_csv_and_xlsx_inputs_give_byte_identical_expense_csv(tmp_path):
     for name, ledger in (("csv", SAMPLE), ("xlsx", SAMPLE / "sample_grants.xlsx")):
         run = api.expense(ledger, through="2026-12-31", forecast_through="2027-06-30")
         api.write_expense(run, None, tmp_path / name)
-    for f in (tmp_path / "csv").iterdir():
-        assert f.read_bytes() == (tmp_path / "xlsx" / f.name).read_bytes(), f.name
+    names = sorted(f.name for f in (tmp_path / "csv").iterdir())
+    assert names == sorted(f.name for f in (tmp_path / "xlsx").iterdir()) == EXPENSE_CSVS
+    for name in names:
+        assert (tmp_path / "csv" / name).read_bytes() == (tmp_path / "xlsx" / name).read_bytes(), name

@@ -1,6 +1,7 @@
 """Workbooks stay within Excel's limits; the fast row writer matches openpyxl; progress stays quiet."""
 
 import pathlib
+import re
 
 import numpy as np
 import openpyxl
@@ -46,6 +47,7 @@ def test_fast_rows_equal_openpyxl_rows(tmp_path, monkeypatch):
     W.write_workbook(tmp_path / "fast.xlsx", [W.Sheet("s", frame=frame, formats=fmts, text_columns=("grant_id",))])
     a = openpyxl.load_workbook(tmp_path / "slow.xlsx")["s"]
     b = openpyxl.load_workbook(tmp_path / "fast.xlsx")["s"]
+    assert (a.max_row, a.max_column) == (b.max_row, b.max_column) == (6, 6)  # zip below would hide a short sheet
     for ra, rb in zip(a.iter_rows(), b.iter_rows()):
         for ca, cb in zip(ra, rb):
             assert (ca.value, ca.data_type, ca.number_format) == (cb.value, cb.data_type, cb.number_format), ca.coordinate
@@ -60,5 +62,10 @@ def test_no_progress_output_when_not_a_terminal(tmp_path):
 
 def test_verbose_prints_stage_timings(tmp_path):
     r = CliRunner().invoke(app, ["--verbose", "value", str(SAMPLE), "--csv-dir", str(tmp_path)])
-    assert r.exit_code == 0
-    assert "read+check" in r.output and "value" in r.output
+    assert r.exit_code == 0, r.output
+    # one timing line per stage, "  <stage padded to 10> <seconds, 8.2f> s" (grantval.progress.Reporter),
+    # in the order the stages ran; a plain "value" would also match "valued" in the summary line
+    timings = re.findall(r"^  (\S+) +\d+\.\d\d s$", r.output, flags=re.MULTILINE)
+    assert timings == ["read+check", "value"], r.output
+    quiet = CliRunner().invoke(app, ["value", str(SAMPLE), "--csv-dir", str(tmp_path)])
+    assert quiet.exit_code == 0 and not re.search(r"\d\.\d\d s$", quiet.output, flags=re.MULTILINE), quiet.output

@@ -29,14 +29,24 @@ def test_gbm_volatility_recovered_within_two_standard_errors(sigma, frequency, n
 
 
 def test_weekly_and_monthly_sampling_take_the_last_close():
+    # business days 2027-01-01 (a Friday) to 2027-02-26; close = position + 1.  The
+    # expected dates are read off the 2027 calendar (hand-worked): weeks run Monday to
+    # Sunday, so every Friday ends a week; January's last business day is Friday the
+    # 29th, February's is Friday the 26th.  The Friday 2027-01-15 is removed (a holiday),
+    # so that week ends on Thursday the 14th.
     days = np.arange(np.datetime64("2027-01-01"), np.datetime64("2027-03-01"))
-    days = days[np.is_busday(days)].astype(np.int64)
+    days = days[np.is_busday(days) & (days != np.datetime64("2027-01-15"))].astype(np.int64)
     closes = np.arange(days.size, dtype=float) + 1
+    as_text = lambda d: [str(np.datetime64(int(x), "D")) for x in d]  # noqa: E731
+    close_on = {t: c for t, c in zip(as_text(days), closes)}
     d, c = sample_closes(days, closes, "monthly")
-    assert [str(np.datetime64(int(x), "D")) for x in d] == ["2027-01-29", "2027-02-26"]
+    assert as_text(d) == ["2027-01-29", "2027-02-26"]
+    assert list(c) == [close_on["2027-01-29"], close_on["2027-02-26"]] == [20.0, 40.0]  # 20 business days in each month here
     d, c = sample_closes(days, closes, "weekly")
-    assert np.all(np.diff(d) == 7) or d.size > 0
-    assert all(np.datetime64(int(x), "D").astype("datetime64[D]").item().weekday() == 4 for x in d[:-1])
+    fridays = ["2027-01-01", "2027-01-08", "2027-01-14", "2027-01-22", "2027-01-29",
+               "2027-02-05", "2027-02-12", "2027-02-19", "2027-02-26"]
+    assert as_text(d) == fridays
+    assert list(c) == [close_on[t] for t in fridays]
 
 
 def test_interpolation_exact_at_tenors_and_linear_between():

@@ -49,3 +49,23 @@ def american_call(s, k, days, r, vol, q, vest_days=0, engine="fd", steps=1000, x
     else:
         option.setPricingEngine(ql.BinomialVanillaEngine(proc, "crr", int(steps)))
     return option.NPV()
+
+
+def european_call_greeks(s, k, days, r, vol, q):
+    """QuantLib AnalyticEuropeanEngine sensitivities of a European call; ``days`` to expiry.
+
+    Returns QuantLib's own conventions: ``delta``; ``vega`` per 1.00 of
+    volatility; ``theta`` per year (on DAY_COUNT, so dV/dT = -theta);
+    ``rho`` and ``dividendRho`` per 1.00 of rate or yield.
+    """
+    option = ql.VanillaOption(
+        ql.PlainVanillaPayoff(ql.Option.Call, float(k)), ql.EuropeanExercise(TODAY + int(days))
+    )
+    option.setPricingEngine(ql.AnalyticEuropeanEngine(_process(s, r, q, vol)))
+    return {
+        "delta": option.delta(),
+        "vega": option.vega(),
+        "theta": option.theta(),
+        "rho": option.rho(),
+        "dividendRho": option.dividendRho(),
+    }
