@@ -140,7 +140,7 @@ def test_entities_past_grantvals_part_scan_are_still_refused_by_its_reader(tmp_p
     # (grantval.io.read.inspect_xlsx) blinded to entity declarations, grantval's reader
     # still refuses the workbook, because openpyxl parses sheet XML through defusedxml,
     # and reports it as grantval's own located message, exit 1, no traceback
-    import grantval.io.read as R
+    import grantval.io.xlsx.safety as R
 
     clean = _workbook_declaring_an_entity(tmp_path / "clean", declare=False)
     assert run(["check", clean], capsys)[0] == 0  # the same ledger without the declaration is clean
