@@ -26,9 +26,26 @@ class InputError(GrantvalError, ValueError):
 
 
 class UsageError(GrantvalError):
-    """The command was called with options that do not fit together."""
+    """The command or function was called with arguments that do not fit together.
+
+    A message may name the arguments it is about as ``{name}`` fields listed in
+    ``params``: the Python API shows the parameter names (``through``), the
+    command line shows its own option names (``--through``) through
+    :meth:`worded`.
+    """
 
     exit_code = 2
+
+    def __init__(self, message: str, params: tuple[str, ...] = ()):
+        self.template = message
+        self.params = tuple(params)
+        super().__init__(self.worded({}))
+
+    def worded(self, names: dict[str, str]) -> str:
+        """The message with each named argument written as ``names`` gives it (default: its own name)."""
+        if not self.params:
+            return self.template
+        return self.template.format(**{k: names.get(k, k) for k in self.params})
 
 
 @dataclass(frozen=True)

@@ -127,8 +127,6 @@ def test_assumptions_output_that_is_a_market_input_is_refused(tmp_path):
     assert _digests(market) == before
 
 
-@pytest.mark.xfail(strict=True, reason="product bug: assumptions --ledger does not count the ledger's files as "
-                                       "inputs (grantval/cli.py assumptions_cmd), so -o LEDGER/grants.csv overwrites them")
 def test_assumptions_output_over_the_ledgers_grants_is_refused(tmp_path):
     ledger = tmp_path / "l"
     shutil.copytree(SAMPLE, ledger, ignore=shutil.ignore_patterns("*.xlsx", "*.py", "market"))
@@ -140,8 +138,6 @@ def test_assumptions_output_over_the_ledgers_grants_is_refused(tmp_path):
     assert r.exit_code == 1 and "is one of the inputs" in r.output, r.output
 
 
-@pytest.mark.xfail(strict=True, reason="product bug: whatif does not count the --planned file as an input "
-                                       "(grantval/api.py write_whatif), so a CSV output of the same name overwrites it")
 def test_whatif_csv_over_the_planned_file_is_refused(tmp_path):
     ledger = write_ledger(tmp_path / "l", tables())
     planned = write_ledger(tmp_path / "p", {"grants": [dict(BASE["grants"][0], grant_id="P1", holder_id="")]})

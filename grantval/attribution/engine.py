@@ -170,7 +170,7 @@ def measure(inp: ExpenseInputs, d, *, attribution: str, forfeitures: str, events
     cut = dn if events_through is None else min(dn, int(np.datetime64(events_through, "D").astype(np.int64)))
     Q = _quantities(inp, dn, forfeitures, cut)
     pre = inp.prepared()
-    gi, lg, lt = inp.t_grant, pre.l_grant, pre.l_tranche
+    lg, lt = pre.l_grant, pre.l_tranche
     n_g = inp.n_grants
     value = inp.layers.fair_value * Q.n_exp[lt]  # per layer
     started = Q.started

@@ -7,16 +7,31 @@ from dataclasses import dataclass
 import numpy as np
 
 from grantval.dates import DAY, period_ends
-from grantval.errors import UsageError
+from grantval.errors import GrantvalError, UsageError
 from grantval.attribution.engine import Measurement, measure
 from grantval.attribution.inputs import ExpenseInputs
 from grantval.policy import Policy
 from grantval.progress import track
 
 
+#: largest amount, in currency, the int64 cents arithmetic accepts (well inside 2**63 cents)
+MAX_AMOUNT = 1e15
+
+
 def to_cents(amount: np.ndarray) -> np.ndarray:
-    """Round non-negative currency amounts to whole cents (half up) as int64."""
-    return np.floor(np.asarray(amount) * 100.0 + 0.5).astype(np.int64)
+    """Round non-negative currency amounts to whole cents (half up) as int64.
+
+    Raises
+    ------
+    GrantvalError
+        When an amount is not finite or exceeds :data:`MAX_AMOUNT` (the arithmetic
+        would wrap or lose cents); never wraps silently.
+    """
+    a = np.asarray(amount, dtype=float)
+    if a.size and not (np.all(np.isfinite(a)) and np.max(np.abs(a)) <= MAX_AMOUNT):
+        raise GrantvalError(f"an amount of {np.max(np.abs(a)):g} is beyond what grantval's cents arithmetic "
+                            f"holds ({MAX_AMOUNT:g}); check the quantities and fair values")
+    return np.floor(a * 100.0 + 0.5).astype(np.int64)
 
 
 @dataclass
@@ -87,7 +102,7 @@ def compute_schedule(inp: ExpenseInputs, policy: Policy, through, start=None, fo
         raise UsageError("the ledger has no grants to expense")
     start = default_start(inp, policy) if start is None else np.datetime64(start, "D")
     if start > through:
-        raise UsageError(f"--from {start} is after --through {through}")
+        raise UsageError(f"{{start}} {start} is after {{through}} {through}", ("start", "through"))
     ends = _ends(start, through, policy)
     kw = dict(attribution=policy.attribution, forfeitures=policy.forfeitures)
     opening = to_cents(measure(inp, start - DAY, **kw).grant_cost)
@@ -102,7 +117,8 @@ def compute_schedule(inp: ExpenseInputs, policy: Policy, through, start=None, fo
     if forecast_through is not None:
         fthrough = np.datetime64(forecast_through, "D")
         if fthrough <= through:
-            raise UsageError(f"--forecast-through {fthrough} must be after --through {through}")
+            raise UsageError(f"{{forecast_through}} {fthrough} must be after {{through}} {through}",
+                              ("forecast_through", "through"))
         fends = _ends(through + DAY, fthrough, policy)
         fcum = np.empty((inp.n_grants, len(fends)), dtype=np.int64)
         for k, d in enumerate(fends):

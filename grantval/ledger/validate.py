@@ -7,11 +7,13 @@ Every function returns the problems it finds and never stops at the first;
 from __future__ import annotations
 
 import numpy as np
+
+from grantval import plausibility
+from grantval.awards.registry import flag
 import pandas as pd
 
 from grantval.dates import year_fraction
 from grantval.errors import Problem
-from grantval.ledger.schema import RATE_MAX, RATE_MIN, VOLATILITY_MAX
 
 #: largest quantity of one grant (keeps the tranche arithmetic exact in 64-bit integers)
 MAX_QUANTITY = 1e12
@@ -35,14 +37,15 @@ def check_grants(g: pd.DataFrame, src: str) -> list[Problem]:
         p.append(Problem(src, r, "quantity", f"must be a positive whole number; got {x:g}"))
     for r, x in zip(_at(g, q > MAX_QUANTITY), q[q > MAX_QUANTITY]):
         p.append(Problem(src, r, "quantity", f"{x:g} is too large (more than {MAX_QUANTITY:,.0f})"))
-    option = (g["award_type"] == "option").to_numpy()
+    option = flag(g["award_type"].to_numpy(), "option_terms")
     price = g["exercise_price"].to_numpy()
     exp = g["expiration_date"].to_numpy("datetime64[D]")
     gd = g["grant_date"].to_numpy("datetime64[D]")
     for r in _at(g, option & np.isnan(price)):
         p.append(Problem(src, r, "exercise_price", "is required for an option grant"))
-    for r, x in zip(_at(g, option & (price <= 0)), price[option & (price <= 0)]):
-        p.append(Problem(src, r, "exercise_price", f"must be greater than zero; got {x:g}"))
+    wrong = option & plausibility.bad("exercise_price", price)
+    for r, x in zip(_at(g, wrong), price[wrong]):
+        p.append(Problem(src, r, "exercise_price", f"{plausibility.LIMITS['exercise_price'].words}; got {x:g}"))
     for r in _at(g, option & np.isnat(exp)):
         p.append(Problem(src, r, "expiration_date", "is required for an option grant"))
     bad = ~np.isnat(exp) & ~np.isnat(gd) & (exp <= gd)
@@ -121,20 +124,11 @@ def check_assumptions(a: pd.DataFrame, src: str) -> list[Problem]:
         for r, x in zip(_at(a, bad_mask), vals[np.asarray(bad_mask)]):
             p.append(Problem(src, r, col, f"{words}; got {x:g}"))
 
-    s = a["share_price"].to_numpy()
-    rule("share_price", s <= 0, "must be greater than zero")
-    v = a["volatility"].to_numpy()
-    rule("volatility", (v <= 0) | (v > VOLATILITY_MAX),
-         f"must be greater than 0 and at most {VOLATILITY_MAX:g} (a decimal: 0.35 is 35%)")
-    rf = a["risk_free_rate"].to_numpy()
-    rule("risk_free_rate", (rf < RATE_MIN) | (rf > RATE_MAX),
-         f"must be between {RATE_MIN:g} and {RATE_MAX:g} (a decimal: 0.04 is 4%)")
-    q = a["dividend_yield"].to_numpy()
-    rule("dividend_yield", q < 0, "must be zero or more")
-    te = a["expected_term_years"].to_numpy()
-    rule("expected_term_years", te <= 0, "must be greater than zero")
-    fv = a["fair_value"].to_numpy()
-    rule("fair_value", fv < 0, "must be zero or more")
+    for col in ("share_price", "volatility", "risk_free_rate", "dividend_yield", "expected_term_years", "fair_value"):
+        vals = a[col].to_numpy(float)
+        rule(col, plausibility.bad(col, vals), plausibility.LIMITS[col].words)
+        for r, x in zip(_at(a, plausibility.odd(col, vals)), vals[plausibility.odd(col, vals)]):
+            p.append(Problem(src, r, col, f"{x:g} {plausibility.LIMITS[col].unusual}", "warning"))
     bsm = (a["model"] == "bsm").to_numpy()
     em = a["exercise_multiple"].to_numpy()
     ex = a["post_vest_exit_rate"].to_numpy()
@@ -144,7 +138,7 @@ def check_assumptions(a: pd.DataFrame, src: str) -> list[Problem]:
     rule("exercise_multiple", ~bsm & (em < 1), "must be at least 1")
     rule("post_vest_exit_rate", ~bsm & (ex < 0), "must be zero or more")
     lat = (a["model"] == "lattice").to_numpy()
-    for r in _at(a, lat & ~np.isnan(te)):
+    for r in _at(a, lat & ~np.isnan(a["expected_term_years"].to_numpy(float))):
         p.append(Problem(src, r, "expected_term_years",
                          "is not used by the lattice, which runs to the contractual term; leave it blank"))
     return p
@@ -186,7 +180,7 @@ def check_grant_assumptions(g: pd.DataFrame, a: pd.DataFrame, pos: np.ndarray, a
         return p
     gi = np.flatnonzero(ok)
     ai = pos[ok]
-    option = (g["award_type"].to_numpy()[gi] == "option")
+    option = flag(g["award_type"].to_numpy(), "option_terms")[gi]
     supplied = ~np.isnan(a["fair_value"].to_numpy()[ai])
     need = option & ~supplied
     reported: set[tuple[int, str]] = set()

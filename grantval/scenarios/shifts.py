@@ -13,6 +13,7 @@ from typing import Callable
 
 import numpy as np
 
+from grantval import plausibility
 from grantval.awards.registry import flag
 from grantval.errors import UsageError
 
@@ -37,17 +38,19 @@ class Shifts:
     expected_term_years: Callable | None = None
 
 
-def _shift(shifts: Shifts, name: str, base: np.ndarray, mask: np.ndarray, ids, ok, words: str) -> np.ndarray:
-    """Apply one scenario shift to the grants in ``mask``; refuse results outside the valid range."""
+def _shift(shifts: Shifts, name: str, base: np.ndarray, mask: np.ndarray, ids) -> np.ndarray:
+    """Apply one scenario shift to the grants in ``mask``; refuse results outside the limits of
+    :mod:`grantval.plausibility` (the same limits as the ledger's)."""
     fn = getattr(shifts, name)
     if fn is None or not mask.any():
         return base
     out = base.copy()
     out[mask] = fn(base[mask])
-    bad = mask & ~ok(out)
+    bad = mask & plausibility.bad(name, out)
     if bad.any():
         i = int(np.flatnonzero(bad)[0])
-        raise UsageError(f"scenario {shifts.label}: {name} becomes {out[i]:g} for grant {ids[i]}; it must be {words}")
+        raise UsageError(f"scenario {shifts.label}: {name} becomes {out[i]:g} for grant {ids[i]}; it "
+                         f"{plausibility.LIMITS[name].words}")
     return out
 
 
@@ -72,14 +75,9 @@ def apply_shifts(ctx, shifts: Shifts) -> None:
     ctx.moved = moved
     ids = ctx.ledger.grants["grant_id"].to_numpy()
     option = flag(ctx.award, "option_terms")
-    ctx.share_price = _shift(shifts, "share_price", ctx.share_price, moved, ids, lambda x: x > 0,
-                             "greater than zero")
-    ctx.volatility = _shift(shifts, "volatility", ctx.volatility, moved & option, ids,
-                            lambda x: (x > 0) & (x <= 5), "greater than 0 and at most 5")
-    ctx.risk_free_rate = _shift(shifts, "risk_free_rate", ctx.risk_free_rate, moved & option, ids,
-                                lambda x: (x >= -0.05) & (x <= 0.5), "between -0.05 and 0.5")
-    ctx.dividend_yield = _shift(shifts, "dividend_yield", ctx.dividend_yield, moved, ids, lambda x: x >= 0,
-                                "zero or more")
+    for name, where in (("share_price", moved), ("volatility", moved & option),
+                        ("risk_free_rate", moved & option), ("dividend_yield", moved)):
+        setattr(ctx, name, _shift(shifts, name, getattr(ctx, name), where, ids))
     bsm = moved & option & (ctx.model != "lattice")
     if ctx.per_tranche:
         ctx.term_tranche = _shift_term(shifts, ctx.term_tranche, bsm[ctx.gi], ctx.contract[ctx.gi], ids[ctx.gi])

@@ -118,6 +118,7 @@ class WhatIfRun:
     through: np.datetime64
     start: np.datetime64
     priced: int                       # input sets priced in the whole run
+    planned: str | None = None        # the planned-grants file read, if any
 
 
 def run_scenarios(ledger: Ledger, policy: Policy, varies: list[list[Shift]], *, grants_from=None,

@@ -1,0 +1,177 @@
+"""Tie-out checks: two independent figures, a tolerance, a live PASS/FAIL formula and the tool's verdict."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from grantval.io.cells import col_letter
+from grantval.io.xlsx.sheet import EXCEL_ROWS, Formula, Sheet
+
+
+@dataclass
+class CheckRow:
+    """One tie-out: two figures (values or formulas), a tolerance and the tool's own verdict."""
+
+    name: str
+    a: object
+    b: object
+    tolerance: float
+    tool_pass: bool
+    relative: bool = False
+
+
+def checks_sheet(rows: list[CheckRow]) -> Sheet:
+    """Checks as rows: figure A, figure B, difference, tolerance, status (formula) and the tool's verdict."""
+    out: list[list] = [["Check", "Figure A", "Figure B", "Difference", "Tolerance", "Status", "Tool's verdict"]]
+    fmts = {}
+    for i, c in enumerate(rows):
+        r = i + 2
+        tol = Formula(f"={c.tolerance!r}*ABS(C{r})") if c.relative else c.tolerance
+        out.append([c.name, c.a, c.b, Formula(f"=B{r}-C{r}"), tol,
+                    Formula(f'=IF(ABS(D{r})<=E{r},"PASS","FAIL")'), "PASS" if c.tool_pass else "FAIL"])
+        for j in (1, 2, 3):
+            fmts[(i + 1, j)] = "#,##0.00########"
+        fmts[(i + 1, 4)] = "0.00E+00"
+    return Sheet("checks", rows=out, widths={1: 70, 2: 20, 3: 20, 4: 14, 5: 12, 6: 10, 7: 14}, row_formats=fmts)
+
+
+def _bsm_by_erf(s, k, t, r, v, q) -> np.ndarray:
+    """Black-Scholes-Merton call written out with the error function: a second implementation.
+
+    Deliberately shares no code with :mod:`grantval.pricing` (it follows the
+    workbook's own formula), so that agreement is evidence, not an identity.
+    """
+    from scipy.special import erf
+
+    cdf = lambda x: 0.5 * (1.0 + erf(x / np.sqrt(2.0)))  # noqa: E731
+    d1 = (np.log(s / k) + (r - q + v * v / 2.0) * t) / (v * np.sqrt(t))
+    d2 = (np.log(s / k) + (r - q - v * v / 2.0) * t) / (v * np.sqrt(t))
+    return s * np.exp(-q * t) * cdf(d1) - k * np.exp(-r * t) * cdf(d2)
+
+
+def _cents(values) -> int:
+    """Sum of currency amounts as written (floats of whole cents), in cents."""
+    return int(np.round(np.asarray(values, dtype=float) * 100.0).astype(np.int64).sum())
+
+
+@dataclass
+class ExpenseFigures:
+    """The figures the expense checks compare, each from its own computation.
+
+    Attributes
+    ----------
+    period_cells : ndarray
+        Every grant's period amounts as they go into the written table (currency).
+    row_totals : ndarray
+        The per-grant total column of that table (currency).
+    group_cells : ndarray
+        The by-group table's period amounts (its own grouping of the per-grant schedule).
+    engine_total_cents : int
+        The window's expense recomputed from the per-tranche costs: cumulative cost
+        through the last period end less cumulative cost before the window, per grant,
+        each rounded to cents (a fresh pass of the engine, not the schedule's arrays).
+    table_rows : int
+        Grant rows in the written by-grant table.
+    """
+
+    period_cells: np.ndarray
+    row_totals: np.ndarray
+    group_cells: np.ndarray
+    engine_total_cents: int
+    table_rows: int
+
+
+def engine_total_cents(inp, policy, start, through) -> int:
+    """The window's expense from two fresh measurements of the per-tranche costs, in cents."""
+    from grantval.attribution.engine import measure
+    from grantval.attribution.periods import to_cents
+
+    kw = dict(attribution=policy.attribution, forfeitures=policy.forfeitures)
+    end = to_cents(measure(inp, np.datetime64(through, "D"), **kw).grant_cost)
+    opening = to_cents(measure(inp, np.datetime64(start, "D") - np.timedelta64(1, "D"), **kw).grant_cost)
+    return int((end - opening).sum())
+
+
+def _schedule_checks(run, fig: ExpenseFigures, n_periods: int) -> list[CheckRow]:
+    """Grant counts and the sums of the period tables against the engine's own total."""
+    n = run.ledger.n_grants
+    valued = int(run.fair_values.table["grant_id"].nunique())
+    first, last = col_letter(7), col_letter(6 + n_periods)
+    tot_col, trow = col_letter(7 + n_periods), fig.table_rows + 2
+    g_rows, g_tot = fig.group_cells.shape[0], col_letter(2 + n_periods)
+    engine = fig.engine_total_cents / 100.0
+    cells = _cents(fig.period_cells)
+    col_sums = _cents(np.asarray(fig.period_cells, dtype=float).sum(axis=0)) if fig.period_cells.size else 0
+    return [
+        CheckRow("Grants in the ledger = grants valued", n, valued, 0, n == valued),
+        CheckRow("Grants valued = grant rows in the expense schedule", valued,
+                 Formula(f"=COUNTA(expense_by_grant!A2:A{fig.table_rows + 1})"), 0, valued == fig.table_rows),
+        CheckRow("Period cells of all grants sum to the engine's total from the per-tranche costs",
+                 Formula(f"=SUM(expense_by_grant!{first}2:{last}{fig.table_rows + 1})"), engine, 0.005,
+                 cells == fig.engine_total_cents),
+        CheckRow("Column totals sum to the total of the row totals",
+                 Formula(f"=SUM(expense_by_grant!{first}{trow}:{last}{trow})"),
+                 Formula(f"=expense_by_grant!{tot_col}{trow}"), 0.005, col_sums == _cents(fig.row_totals)),
+        CheckRow("Expense by group (its own grouping) sums to the engine's total",
+                 Formula(f"=expense_by_group!{g_tot}{g_rows + 2}"), engine, 0.005,
+                 _cents(fig.group_cells) == fig.engine_total_cents),
+    ]
+
+
+def _cost_checks(run, tranches, unrec) -> list[CheckRow]:
+    """Recognised plus unrecognised cost against expected quantities times fair values."""
+    n = run.ledger.n_grants
+    sched = run.schedule
+    nt = len(tranches) + 1
+    cols = {c: col_letter(i + 1) for i, c in enumerate(tranches.columns)}
+    uc = {c: col_letter(i + 1) for i, c in enumerate(unrec.columns)}
+    q_name = "quantity_expected_to_vest" if "quantity_expected_to_vest" in cols else "quantity_expensed"
+    q_col, fv_col, c_col = cols[q_name], cols["fair_value_per_unit"], cols["cancelled_unvested"]
+    expected = float(np.sum(tranches[q_name] * tranches["fair_value_per_unit"]) +
+                     np.sum(tranches["cancelled_unvested"] * tranches["fair_value_per_unit"]))
+    rec_plus = float(unrec["recognised_to_date"].sum() + unrec["unrecognised_cost"].sum())
+    per_grant = np.abs(sched.cumulative_cents[:, -1] + np.round(unrec["unrecognised_cost"].to_numpy() * 100)
+                       - np.floor(sched.at_through.expected_total * 100 + 0.5))
+    off = int(np.sum(per_grant > 1))
+    rec, unr = uc["recognised_to_date"], uc["unrecognised_cost"]
+    by_formula = (expected if nt > EXCEL_ROWS else
+                  Formula(f"=SUMPRODUCT(tranches!{q_col}2:{q_col}{nt},tranches!{fv_col}2:{fv_col}{nt})"
+                          f"+SUMPRODUCT(tranches!{c_col}2:{c_col}{nt},tranches!{fv_col}2:{fv_col}{nt})"))
+    return [
+        CheckRow("Recognised + unrecognised = expected quantity x fair value (all tranches)",
+                 Formula(f"=SUM(unrecognized!{rec}2:{rec}{n + 1})+SUM(unrecognized!{unr}2:{unr}{n + 1})"),
+                 by_formula, round(0.01 * n + 0.005, 2), abs(rec_plus - expected) <= 0.01 * n + 0.005),
+        CheckRow("Grants whose recognised + unrecognised differs from expected quantity x fair value by over a cent",
+                 off, 0, 0, off == 0),
+    ]
+
+
+def disclosure_ties(disc) -> list[CheckRow]:
+    """Roll-forward ties of the activity tables (flows against the end balance counted on its own)."""
+    o_a, o_b = disc.option_tie
+    r_a, r_b = disc.rsu_tie
+    return [
+        CheckRow("Option roll-forward: start + granted - exercised - forfeited - expired = end", o_a, o_b, 0,
+                 o_a == o_b),
+        CheckRow("RSU roll-forward: start + granted - vested - forfeited = end", r_a, r_b, 0, r_a == r_b),
+    ]
+
+
+def bsm_check(fvt, rc: str) -> CheckRow:
+    """The tool's BSM values against a second implementation of the formula (and the live formulas)."""
+    bsm = fvt["model"].to_numpy() == "bsm"
+    get = lambda c: fvt[c].to_numpy(float)[bsm]  # noqa: E731
+    tool = get("fair_value_per_unit")
+    again = _bsm_by_erf(get("share_price"), get("exercise_price"), get("expected_term_years"), get("risk_free_rate"),
+                        get("volatility"), get("dividend_yield"))
+    return CheckRow("Formula-recomputed BSM fair values sum to the tool's (relative tolerance)",
+                    Formula(f"=SUM(fair_values!{rc}2:{rc}{len(fvt) + 1})"), float(tool.sum()), 1e-9,
+                    bool(np.allclose(again, tool, rtol=1e-9, atol=1e-9)), relative=True)
+
+
+def expense_checks(run, figures: ExpenseFigures, tranches, unrec, disc, rc: str) -> list[CheckRow]:
+    """The tie-outs of an expense run: every verdict compares two independent computations."""
+    return (_schedule_checks(run, figures, len(run.schedule.period_ends)) + _cost_checks(run, tranches, unrec)
+            + disclosure_ties(disc) + [bsm_check(run.fair_values.table, rc)])

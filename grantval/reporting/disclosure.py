@@ -1,0 +1,191 @@
+"""Disclosure tables (ASC 718-10-50-2): award activity roll-forwards and grant-year figures.
+
+All figures are computed from the checked ledger's tranches and allocated
+events, vectorised over tranches.  Options still outstanding at the end of
+their expiration date expire by themselves on that date.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+
+from grantval.dates import DAY, DAYS_PER_YEAR
+from grantval.attribution.engine import measure
+from grantval.attribution.inputs import ExpenseInputs
+from grantval.measurement.fairvalue import FairValues
+from grantval.ledger.model import Ledger
+from grantval.policy import Policy
+
+
+@dataclass
+class Disclosure:
+    """Disclosure tables for one window."""
+
+    options: pd.DataFrame      # option activity: line, number, wa exercise price, wa remaining term, intrinsic value
+    rsus: pd.DataFrame         # RSU activity: line, number, wa grant-date fair value
+    grants: pd.DataFrame       # figures for awards granted in the window: item, value
+    option_tie: tuple[int, int]  # (start + granted - exercised - forfeited - expired, end)
+    rsu_tie: tuple[int, int]
+    start: np.datetime64
+    through: np.datetime64
+    share_price: float | None
+
+
+class _Tranches:
+    """Per-tranche arrays with event quantities by kind up to a date."""
+
+    def __init__(self, ledger: Ledger, fv: FairValues):
+        g, tr, ch = ledger.grants, ledger.tranches, ledger.changes
+        gi = tr["grant_idx"].to_numpy()
+        self.gi = gi
+        self.option = (g["award_type"].to_numpy() == "option")[gi]
+        self.qty = tr["quantity"].to_numpy(np.int64)
+        self.vest = tr["vest_date"].to_numpy("datetime64[D]")
+        self.grant_date = g["grant_date"].to_numpy("datetime64[D]")[gi]
+        self.expiry = g["expiration_date"].to_numpy("datetime64[D]")[gi]
+        self.strike = g["exercise_price"].to_numpy(float)[gi]
+        self.fv = np.asarray(fv.tranche_value, dtype=float)
+        self.c_t = ch["tranche_idx"].to_numpy(np.int64)
+        self.c_date = ch["date"].to_numpy("datetime64[D]")
+        self.c_kind = ch["kind"].to_numpy(dtype=object)
+        self.c_qty = ch["quantity"].to_numpy(np.int64)
+        self.c_event = ch["event_idx"].to_numpy(np.int64)
+        n = len(self.qty)
+        # implicit expiry: what is left of an option after all its events lapses at expiration
+        used = np.bincount(self.c_t, weights=self.c_qty, minlength=n).astype(np.int64)
+        self.lapse_qty = np.where(self.option, self.qty - used, 0)
+
+    def moved(self, kinds: tuple[str, ...], lo, hi) -> np.ndarray:
+        """Quantity per tranche removed by events of ``kinds`` dated in [lo, hi]."""
+        m = np.isin(self.c_kind, kinds) & (self.c_date >= lo) & (self.c_date <= hi)
+        out = np.bincount(self.c_t[m], weights=self.c_qty[m], minlength=len(self.qty))
+        if "expire" in kinds:
+            lapse = self.option & (self.expiry >= lo) & (self.expiry <= hi)
+            out = out + np.where(lapse, self.lapse_qty, 0)
+        return out.astype(np.int64)
+
+    def removed_before_vest(self) -> np.ndarray:
+        """Quantity per tranche forfeited or cancelled before it vested."""
+        m = np.isin(self.c_kind, ("forfeit", "cancel")) & (self.c_date < self.vest[self.c_t])
+        return np.bincount(self.c_t[m], weights=self.c_qty[m], minlength=len(self.qty)).astype(np.int64)
+
+    def outstanding(self, d) -> np.ndarray:
+        """Quantity per tranche outstanding at the end of ``d``."""
+        early = np.datetime64("1900-01-01")
+        removed = self.moved(("forfeit", "cancel", "exercise", "expire"), early, d)
+        return np.where(self.grant_date <= d, self.qty - removed, 0)
+
+
+def _wavg(values, weights) -> float:
+    w = np.asarray(weights, dtype=float)
+    total = w.sum()
+    return float(np.sum(np.asarray(values, float) * w) / total) if total > 0 else float("nan")
+
+
+def compute_disclosure(ledger: Ledger, fv: FairValues, inp: ExpenseInputs, policy: Policy, start, through,
+                       share_price: float | None = None) -> Disclosure:
+    """Option and RSU activity from ``start`` through ``through`` and the window's grant figures."""
+    start = np.datetime64(start, "D")
+    through = np.datetime64(through, "D")
+    before = start - DAY
+    T = _Tranches(ledger, fv)
+    opt, rsu = T.option, ~T.option
+    out0, out1 = T.outstanding(before), T.outstanding(through)
+    granted = np.where((T.grant_date >= start) & (T.grant_date <= through), T.qty, 0)
+    exercised = T.moved(("exercise",), start, through)
+    forfeited = T.moved(("forfeit", "cancel"), start, through)
+    expired = T.moved(("expire",), start, through)
+    exercisable = np.where(T.vest <= through, out1, 0)
+
+    m = measure(inp, through, attribution=policy.attribution, forfeitures=policy.forfeitures)
+    ratio = np.where(m.outstanding > 0, m.n_expensed / np.where(m.outstanding > 0, m.outstanding, 1), 0.0)
+    expected = np.where(T.vest <= through, out1, out1 * np.minimum(ratio, 1.0))
+
+    def term(d, q):
+        years = np.maximum((T.expiry - d).astype(np.int64), 0) / DAYS_PER_YEAR
+        return _wavg(years[opt], q[opt])
+
+    def intrinsic(q):
+        if share_price is None:
+            return float("nan")
+        return float(np.sum(q[opt] * np.maximum(share_price - T.strike[opt], 0.0)))
+
+    k = T.strike
+    lines = [
+        ("Outstanding at start", out0, term(before, out0), float("nan")),
+        ("Granted", granted, float("nan"), float("nan")),
+        ("Exercised", exercised, float("nan"), float("nan")),
+        ("Forfeited or cancelled", forfeited, float("nan"), float("nan")),
+        ("Expired", expired, float("nan"), float("nan")),
+        ("Outstanding at end", out1, term(through, out1), intrinsic(out1)),
+        ("Exercisable at end", exercisable, term(through, exercisable), intrinsic(exercisable)),
+        ("Vested and expected to vest at end", expected, term(through, expected), intrinsic(expected)),
+    ]
+    options = pd.DataFrame({
+        "line": [x[0] for x in lines],
+        "number": [float(np.sum(x[1][opt])) for x in lines],
+        "weighted_average_exercise_price": [_wavg(k[opt], x[1][opt]) for x in lines],
+        "weighted_average_remaining_term_years": [x[2] for x in lines],
+        "aggregate_intrinsic_value": [x[3] for x in lines],
+    })
+    option_tie = (int(np.sum((out0 + granted - exercised - forfeited - expired)[opt])), int(np.sum(out1[opt])))
+
+    # RSUs: nonvested units
+    def nonvested(d):
+        removed = T.moved(("forfeit", "cancel"), np.datetime64("1900-01-01"), d)
+        return np.where((T.grant_date <= d) & (T.vest > d), T.qty - removed, 0)
+
+    nv0, nv1 = nonvested(before), nonvested(through)
+    vest_in = (T.vest >= start) & (T.vest <= through) & (T.grant_date <= through)
+    vested_q = np.where(vest_in, T.qty - T.removed_before_vest(), 0)
+    rlines = [("Nonvested at start", nv0), ("Granted", granted), ("Vested", vested_q),
+              ("Forfeited", forfeited), ("Nonvested at end", nv1)]
+    rsus = pd.DataFrame({
+        "line": [x[0] for x in rlines],
+        "number": [float(np.sum(x[1][rsu])) for x in rlines],
+        "weighted_average_grant_date_fair_value": [_wavg(T.fv[rsu], x[1][rsu]) for x in rlines],
+    })
+    rsu_tie = (int(np.sum((nv0 + granted - vested_q - forfeited)[rsu])), int(np.sum(nv1[rsu])))
+
+    # awards granted in the window
+    g = ledger.grants
+    award = g["award_type"].to_numpy()
+    gq = g["quantity"].to_numpy(float)
+    gd = g["grant_date"].to_numpy("datetime64[D]")
+    g_in = (gd >= start) & (gd <= through)
+    items: list[tuple[str, float]] = []
+    for label, mask in (("options", (award == "option") & g_in), ("RSUs", (award == "rsu") & g_in)):
+        items.append((f"{label} granted: number", float(gq[mask].sum())))
+        items.append((f"{label} granted: weighted-average grant-date fair value",
+                      _wavg(fv.grant_value[mask], gq[mask])))
+    tab = fv.table  # one row per grant, or per tranche under the tranche valuation unit
+    td = tab["grant_date"].to_numpy("datetime64[D]")
+    computed = (td >= start) & (td <= through) & (tab["model"].to_numpy() == "bsm")
+    w = tab["quantity"].to_numpy(float)[computed]
+    for col, name in (("volatility", "expected volatility"), ("risk_free_rate", "risk-free rate"),
+                      ("dividend_yield", "dividend yield"), ("expected_term_years", "expected term (years)")):
+        vals = tab[col].to_numpy(float)[computed]
+        items.append((f"BSM options granted: weighted-average {name}", _wavg(vals, w)))
+        items.append((f"BSM options granted: lowest {name}", float(np.min(vals)) if vals.size else float("nan")))
+        items.append((f"BSM options granted: highest {name}", float(np.max(vals)) if vals.size else float("nan")))
+    ev = ledger.events
+    ex = (T.c_kind == "exercise") & (T.c_date >= start) & (T.c_date <= through)
+    ev_price = ev["share_price"].to_numpy(float)[T.c_event[ex]] if len(ev) else np.zeros(0)
+    gain = (ev_price - T.strike[T.c_t[ex]]) * T.c_qty[ex]
+    items.append(("Total intrinsic value of options exercised", float(np.nansum(np.maximum(gain, 0.0)))))
+    items.append(("Options exercised without an event share price (not in the intrinsic value)",
+                  float(np.sum(T.c_qty[ex][np.isnan(ev_price)]))))
+    vest_value = vested_q * T.fv
+    items.append(("Total grant-date fair value of options vested", float(np.sum(vest_value[opt]))))
+    items.append(("Total grant-date fair value of RSUs vested", float(np.sum(vest_value[rsu]))))
+    unrec = m.unrecognised
+    granted_g = inp.grant_date <= through
+    total_unrec = float(np.sum(unrec[granted_g]))
+    items.append(("Unrecognised cost at end", total_unrec))
+    items.append(("Weighted-average remaining recognition period (years)",
+                  _wavg(m.remaining_years[granted_g], unrec[granted_g]) if total_unrec > 0 else 0.0))
+    grants = pd.DataFrame({"item": [i for i, _ in items], "value": [v for _, v in items]})
+    return Disclosure(options, rsus, grants, option_tie, rsu_tie, start, through, share_price)

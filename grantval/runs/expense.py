@@ -1,0 +1,167 @@
+"""``expense``: stock-compensation expense by period, with its workbook and CSV tables."""
+
+from __future__ import annotations
+
+import pathlib
+from dataclasses import dataclass
+
+import numpy as np
+
+from grantval.attribution.inputs import ExpenseInputs, build_inputs
+from grantval.attribution.periods import ExpenseSchedule, compute_schedule
+from grantval.io.csv import write_csv
+from grantval.io.files import refuse_overwriting_inputs
+from grantval.io.xlsx.write import write_workbook
+from grantval.ledger import Ledger, load_ledger
+from grantval.measurement.fairvalue import FairValues, compute_fair_values
+from grantval.policy import Policy, resolve_policy
+from grantval.progress import stage
+from grantval.reporting import expense_tables as T
+from grantval.runs.common import as_day, csv_paths, ledger_inputs, reconcile
+
+#: the CSV tables of an expense run, in the order written
+CSV_NAMES = ["expense.csv", "expense_by_group.csv", "tranches.csv", "forecast.csv", "unrecognized.csv"]
+
+
+@dataclass
+class ExpenseRun:
+    """An expense run: ledger, policy, fair values and the schedule by period."""
+
+    ledger: Ledger
+    policy: Policy
+    fair_values: FairValues
+    inputs: ExpenseInputs
+    schedule: ExpenseSchedule
+    through: str
+    start: str
+    forecast_through: str | None
+
+
+@dataclass
+class ExpenseOutputs:
+    """Paths a run wrote and its tie-out checks."""
+
+    paths: list[pathlib.Path]
+    checks: list
+
+    @property
+    def failed(self) -> list:
+        return [c for c in self.checks if not c.tool_pass]
+
+
+def expense(location, *, through, start=None, forecast_through=None, period=None, standard=None,
+            attribution=None, forfeitures=None, fiscal_year_end_month=None) -> ExpenseRun:
+    """Load, check, value and expense a ledger.
+
+    Parameters
+    ----------
+    location : path
+        Ledger folder or workbook.
+    through : date or ISO text
+        Last day of the run.
+    start, forecast_through : date or ISO text, optional
+        First day of the first period (default: start of the first period
+        with a grant); last day of the forecast.
+    period, standard, attribution, forfeitures, fiscal_year_end_month : optional
+        Override the ledger's policy table.
+    """
+    through_d, start_d = as_day(through, "through"), as_day(start, "start")
+    forecast_d = as_day(forecast_through, "forecast_through")
+    with stage("read+check"):
+        ledger = load_ledger(location)
+    policy = resolve_policy(ledger.policy_values, period=period, standard=standard, attribution=attribution,
+                            forfeitures=forfeitures, fiscal_year_end_month=fiscal_year_end_month)
+    with stage("value"):
+        fv = compute_fair_values(ledger, policy)
+    with stage("schedule"):
+        inp = build_inputs(ledger, fv)
+        sched = compute_schedule(inp, policy, through_d, start_d, forecast_d)
+    reconcile(ledger, fv, sched)
+    return ExpenseRun(ledger, policy, fv, inp, sched, str(sched.period_ends[-1]), str(sched.window_start),
+                      None if forecast_d is None else str(forecast_d))
+
+
+def _write_csvs(run: ExpenseRun, paths, by_group, group_sums, tranches, unrec) -> None:
+    inp, sched = run.inputs, run.schedule
+    pathlib.Path(paths[0]).parent.mkdir(parents=True, exist_ok=True)
+    write_csv(paths[0], T.long_expense(inp, sched), money=("expense", "cumulative_expense"))
+    write_csv(paths[1], T.long_by_group(sched.period_ends, by_group["group"].to_numpy(), group_sums),
+              money=("expense",))
+    write_csv(paths[2], tranches)
+    write_csv(paths[3], T.long_forecast(inp, sched), money=("expense",))
+    write_csv(paths[4], unrec, money=("recognised_to_date", "unrecognised_cost"))
+
+
+def _write_book(run: ExpenseRun, xlsx, tables: dict, disc, checks, command, timestamp, share_price) -> None:
+    from grantval.reporting import expense_book, fair_value_sheet
+    from grantval.reporting.notes import expense_notes
+    from grantval.reporting.run_sheet import RunInfo
+
+    info = RunInfo(
+        "grantval expense: stock-based compensation expense", command or "(Python API)", run.ledger.location,
+        run.ledger.files,
+        [("from", run.start), ("through", run.through), ("forecast through", run.forecast_through or "(none)"),
+         ("share price for intrinsic values", "(not given)" if share_price is None else repr(share_price))],
+        run.policy.describe(), timestamp)
+    fv_frame, _ = fair_value_sheet.fair_value_audit(run.fair_values.table)
+    sheets = expense_book.expense_sheets(run, info, fv_frame, tables["by_grant"], tables["by_group"],
+                                         tables["tranches"], tables["unrec"], tables["unrec_total"],
+                                         tables["unrec_wa"], tables["forecast"],
+                                         disc if share_price is not None else None, checks, expense_notes(run.policy))
+    write_workbook(pathlib.Path(xlsx), sheets, fixed_time=info.workbook_time())
+
+
+def _wide_tables(run: ExpenseRun) -> tuple:
+    """The by-grant expense and forecast tables of the workbook."""
+    inp, sched = run.inputs, run.schedule
+    award = run.ledger.grants["award_type"].to_numpy()
+    qty = run.ledger.grants["quantity"].to_numpy(np.int64)
+    by_grant = T.wide_by_grant(inp, award, run.fair_values.grant_value, qty, sched.period_ends, sched.expense_cents)
+    forecast = T.wide_by_grant(inp, award, run.fair_values.grant_value, qty, sched.forecast_ends,
+                               sched.forecast_cents)
+    return by_grant, forecast
+
+
+def write_expense(run: ExpenseRun, xlsx: pathlib.Path | None, csv_dir: pathlib.Path | None,
+                  command: str = "", timestamp: bool = True, share_price: float | None = None) -> ExpenseOutputs:
+    """Write the expense workbook and/or the CSV files.
+
+    The workbook carries a run sheet, the auditor's fair-value sheet with live
+    BSM formulas, expense sheets whose totals are SUM formulas, a checks sheet
+    and charts; with ``share_price`` also the disclosure sheets.
+
+    Returns
+    -------
+    ExpenseOutputs
+        The paths written and the tie-out checks (the command exits 1 when any fails).
+    """
+    from grantval.reporting import checks as C
+    from grantval.reporting.disclosure import compute_disclosure
+    from grantval.reporting.fair_value_sheet import recomputed_column
+
+    inp, sched = run.inputs, run.schedule
+    paths = csv_paths(csv_dir, CSV_NAMES)
+    outputs = paths + ([pathlib.Path(xlsx)] if xlsx is not None else [])
+    refuse_overwriting_inputs(outputs, ledger_inputs(run.ledger))
+    with stage("tables"):
+        by_group, group_sums = T.wide_by_group(inp, sched.period_ends, sched.expense_cents)
+        tranches = T.tranche_table(inp, sched, run.ledger.tranches["tranche"].to_numpy())
+        unrec, unrec_total, unrec_wa = T.unrecognised_table(inp, sched)
+        disc = compute_disclosure(run.ledger, run.fair_values, inp, run.policy, run.start, run.through, share_price)
+        by_grant, forecast = _wide_tables(run) if xlsx is not None else (None, None)
+        cells = T.money(sched.expense_cents)
+        figures = C.ExpenseFigures(
+            period_cells=cells, row_totals=by_grant["total"].to_numpy() if by_grant is not None
+            else T.money(sched.expense_cents.sum(axis=1)), group_cells=T.money(group_sums),
+            engine_total_cents=C.engine_total_cents(inp, run.policy, run.start, run.through),
+            table_rows=len(by_grant) if by_grant is not None else cells.shape[0])
+        checks = C.expense_checks(run, figures, tranches, unrec, disc, recomputed_column(run.fair_values.table))
+    with stage("write csv"):
+        if paths:
+            _write_csvs(run, paths, by_group, group_sums, tranches, unrec)
+    with stage("write workbook"):
+        if xlsx is not None:
+            tables = dict(by_grant=by_grant, by_group=by_group, tranches=tranches, unrec=unrec,
+                          unrec_total=unrec_total, unrec_wa=unrec_wa, forecast=forecast)
+            _write_book(run, xlsx, tables, disc, checks, command, timestamp, share_price)
+    return ExpenseOutputs(outputs, checks)
