@@ -362,7 +362,7 @@ class _Outputs:
 
 def _interleave(a: np.ndarray) -> np.ndarray:
     """(2, pairs, ...) -> (2 * pairs, ...) with the two members of a pair adjacent."""
-    return np.swapaxes(a, 0, 1).reshape((-1,) + a.shape[2:])
+    return np.swapaxes(a, 0, 1).reshape((2 * a.shape[1],) + a.shape[2:])
 
 
 def _simulate_block(spec: _Spec, rng, pairs: int):
