@@ -42,6 +42,7 @@ from grantval.pricing.payout import PayoutCurve, parse_payout_curve
 METRICS = ("relative_tsr", "index_tsr", "absolute_tsr", "share_price")
 MONITORING = ("end", "any_day")
 KINDS = ("unit", "option")
+_OPTIONS = {"peers", "index", "monitoring", "kind", "dividend_equivalents", "strike", "expected_term", "control_variate"}
 
 
 @dataclass(frozen=True)
@@ -238,6 +239,9 @@ def market_award_values(sim: MarketSimulation, curves, metric: str, **options) -
     only and the pair sums are gathered from a table, so a thousand awards
     cost about as much as a few; otherwise the curves are valued one by one.
     """
+    unknown = set(options) - _OPTIONS
+    if unknown:
+        raise InputError(f"unknown option(s) for market_award_values: {', '.join(sorted(unknown))}")
     curves = [_curve(c) for c in curves]
     pick = {k: options[k] for k in ("peers", "index", "monitoring") if k in options}
     x = metric_values(sim, metric, **pick)

@@ -188,7 +188,11 @@ def _asset_vector(name, value, assets, rule) -> np.ndarray:
 
 
 def _whole(name, value, low, high) -> int:
-    if isinstance(value, bool) or not float(value).is_integer() or not low <= value <= high:
+    try:
+        whole = not isinstance(value, bool) and float(value).is_integer() and low <= value <= high
+    except (TypeError, ValueError):
+        whole = False
+    if not whole:
         raise InputError(f"{name} must be a whole number from {low:,} to {high:,}; got {value!r}")
     return int(value)
 

@@ -109,3 +109,23 @@ def test_bad_inputs_are_named(kwargs, words):
     args.update(kwargs)
     with pytest.raises(InputError, match=words):
         espp_value(**args)
+
+
+from hypothesis import given, settings, strategies as st  # noqa: E402
+
+
+@settings(max_examples=100, deadline=None)
+@given(
+    st.floats(1, 500), st.floats(0.01, 3), st.floats(-0.01, 0.08), st.floats(0.01, 1.5),
+    st.floats(0, 0.06), st.floats(0, 0.3),
+)
+def test_orderings(s, t, r, vol, q, d):
+    # Properties (common practice): the look-back adds value; fixed withholding adds a put;
+    # the call is worth at most the share delivered, so fixed withholding is at most S e^{-qT} + d S e^{-rT}.
+    plain = espp_value(s, t, r, vol, q, d, lookback=False)
+    fixed = espp_value(s, t, r, vol, q, d)
+    varying = espp_value(s, t, r, vol, q, d, basis="fixed_withholding")
+    assert plain <= fixed + 1e-9 * s
+    assert fixed <= varying + 1e-9 * s
+    assert varying <= s * (np.exp(-q * t) + d * np.exp(-r * t)) * (1 + 1e-9)
+    assert espp_value(s, t, r, vol * 1.1, q, d) >= fixed - 1e-9 * s

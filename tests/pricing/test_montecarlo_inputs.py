@@ -142,3 +142,34 @@ def test_unrecorded_hurdle_is_refused():
     assert derived_service_period(sim, 12.0).probability > 0
     with pytest.raises(InputError, match="not recorded"):
         derived_service_period(sim, 13.0)
+
+
+def test_unknown_batch_option_and_text_paths_are_refused(small):
+    with pytest.raises(InputError, match="unknown option"):
+        from grantval.pricing.montecarlo import market_award_values
+
+        market_award_values(small, ["0:1"], "absolute_tsr", strik=10)
+    with pytest.raises(InputError, match="paths"):
+        simulate_market(**BASE, paths="many")
+
+
+from hypothesis import given, settings, strategies as st  # noqa: E402
+
+
+@settings(max_examples=60, deadline=None)
+@given(
+    st.lists(st.floats(-50, 150), min_size=1, max_size=6, unique=True),
+    st.lists(st.floats(0, 3), min_size=6, max_size=6),
+    st.lists(st.floats(-100, 200), min_size=2, max_size=20),
+)
+def test_payout_is_non_decreasing_and_within_the_points(xs, ys, metric):
+    # Property (common practice): a valid curve's payout is non-decreasing in the metric,
+    # 0 below the first point and between the first and last payouts from there on.
+    xs = sorted(xs)
+    ys = sorted(ys[: len(xs)])
+    curve = PayoutCurve(tuple(xs), tuple(ys))
+    m = np.sort(np.array(metric))
+    out = curve(m)
+    assert np.all(np.diff(out) >= -1e-12)
+    assert np.all(out[m < xs[0]] == 0)
+    assert np.all((out[m >= xs[0]] >= ys[0] - 1e-12) & (out[m >= xs[0]] <= ys[-1] + 1e-12))
