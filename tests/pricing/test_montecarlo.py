@@ -52,6 +52,9 @@ def test_index_outperformance_digital_closed_form():
     mc = market_award_value(sim, "0:1", "index_tsr", index=1)
     assert within(mc, outperformance_digital(s, q, vol, vol_i, rho, t), bias=1e-4 * s)
     assert mc.payout_probability == pytest.approx(0.5, abs=0.1)
+    # the opposite sign convention, N(-s_x sqrt(T)/2), is clearly rejected (the check can fail)
+    wrong = s * np.exp(-q * t) - outperformance_digital(s, q, vol, vol_i, rho, t)
+    assert not within(mc, wrong, bias=1e-4 * s)
 
 
 def test_relative_tsr_against_one_peer_is_the_outperformance_digital():
