@@ -137,8 +137,32 @@ def bench_accuracy(lines):
     shifted = h * np.exp(checks.BGK * vol * np.sqrt(1 / 252))
     row("option with daily hurdle vs QuantLib AnalyticBarrierEngine up-and-in", mc,
         checks.ql_up_and_in_call(s, k, shifted, 365, r, vol, 0.0))
+    s1, s2, v1, v2, rho = 40.0, 38.0, 0.3, 0.25, -0.3
+    sim = simulate_market([s1, s2], [v1, v2], [0.02, 0.0], 0.04, 2.0, rho)
+    end = sim.end_price.astype(float)
+    pay = np.exp(-0.04 * sim.term) * np.maximum(end[:, 0] - end[:, 1], 0).reshape(-1, 2).mean(axis=1)
+    ref = checks.ql_margrabe(s1, s2, 0.02, 0.0, v1, v2, rho, 0.04, 730)
+    se = pay.std(ddof=1) / np.sqrt(pay.size)
+    rows.append(f"  exchange option on the end prices vs QuantLib AnalyticEuropeanMargrabeEngine: MC {pay.mean():.5f} "
+                f"+- {se:.5f}, reference {ref:.5f}, diff {(pay.mean() - ref) / se:+.2f} s.e. (no control variate)")
+    rows.append(_service_period_row(checks))
     lines.append("accuracy (100,000 paths, antithetic + control variate):")
     lines.extend(rows)
+
+
+def _service_period_row(checks):
+    from scipy.optimize import brentq
+    from scipy.stats import invgauss
+
+    s, vol, r, t, h = 40.0, 0.3, 0.05, 4.0, 52.0
+    sim = simulate_market([s], [vol], [0.0], r, t, daily=True, hurdles=[h])
+    got = derived_service_period(sim, h)
+    nu = r - 0.5 * vol**2
+    b = np.log(h * np.exp(checks.BGK * vol * np.sqrt(1 / 252)) / s)
+    law = invgauss(mu=(b / nu) / (b**2 / vol**2), scale=b**2 / vol**2)
+    median = brentq(lambda u: law.cdf(u) - law.cdf(sim.term) / 2, 1e-6, sim.term)
+    return (f"  derived service period vs inverse-Gaussian median (BGK-shifted hurdle): {got.years:.4f} "
+            f"+- {got.standard_error:.4f} years, reference {median:.4f}, diff {(got.years - median) * 252:+.2f} trading days")
 
 
 def bench_espp(lines):
@@ -146,7 +170,19 @@ def bench_espp(lines):
     n = 1_000_000
     args = (rng.uniform(5, 200, n), rng.choice([0.5, 1.0, 2.0], n), rng.uniform(0, 0.06, n), rng.uniform(0.1, 0.9, n))
     sec, _ = _best(lambda: espp_value(*args, basis="fixed_withholding"))
-    lines.append(f"ESPP look-back, fixed withholding, 1,000,000 rights in one call: {sec * 1e9 / n:.0f} ns per right")
+    from tests.pricing.test_espp import ql_black
+
+    m = 2000
+    ours = espp_value(*(a[:m] for a in args), basis="fixed_withholding")
+    theirs = np.array([
+        0.15 * s + 0.85 * ql_black("call", s, s, t, r, v, 0.0) + 0.15 * ql_black("put", s, s, t, r, v, 0.0)
+        for s, t, r, v in zip(*(a[:m] for a in args))
+    ])
+    lines.append(
+        f"ESPP look-back, fixed withholding, 1,000,000 rights in one call: {sec * 1e9 / n:.0f} ns per right; "
+        f"max relative difference from the components priced with QuantLib blackFormula (2,000 rights): "
+        f"{np.max(np.abs(ours / theirs - 1)):.1e}"
+    )
 
 
 def main() -> None:
