@@ -235,9 +235,10 @@ def market_award_values(sim: MarketSimulation, curves, metric: str, **options) -
     Notes
     -----
     When the metric takes few distinct values (``relative_tsr`` with ``P``
-    peers takes ``P + 1``), each curve is evaluated on the distinct values
-    only and the pair sums are gathered from a table, so a thousand awards
-    cost about as much as a few; otherwise the curves are valued one by one.
+    peers takes ``P + 1``; up to 512), each curve is evaluated on the distinct
+    values only, and its mean and standard error follow from sums over the
+    path pairs computed once (a quadratic form on the levels), so a thousand
+    awards cost about as much as one; otherwise the curves are valued one by one.
     """
     unknown = set(options) - _OPTIONS
     if unknown:
@@ -249,24 +250,58 @@ def market_award_values(sim: MarketSimulation, curves, metric: str, **options) -
     if codes is None or not curves:
         return [market_award_value(sim, c, metric, **options) for c in curves]
     levels, negative, code = codes
-    per_share = _settlement(sim, options.get("kind", "unit"), options.get("dividend_equivalents", False),
-                            options.get("strike"), options.get("expected_term"))
-    weight = (0.5 * np.exp(-sim.rate * sim.term) * per_share).reshape(-1, 2)
-    members = code.reshape(-1, 2)
+    settle = (options.get("kind", "unit"), options.get("dividend_equivalents", False),
+              options.get("strike"), options.get("expected_term"))
+    moments = _pair_moments(sim, code, levels.size, _settlement(sim, *settle), options.get("control_variate", True))
     counts = np.bincount(code, minlength=levels.size) / sim.paths
     out = []
-    for first in range(0, len(curves), 128):
-        group = curves[first : first + 128]
+    for first in range(0, len(curves), 256):
+        group = curves[first : first + 256]
         table = np.stack([c(levels, np.where(negative, -1.0, 1.0)) for c in group], axis=1)  # (levels, curves)
-        pairs = weight[:, :1] * table[members[:, 0]] + weight[:, 1:] * table[members[:, 1]]
-        values, errors = _estimate_columns(sim, pairs, options.get("control_variate", True))
+        values, errors = _estimate_from_moments(moments, table)
         prob = counts @ (table > 0)
         mean = counts @ table
         out.extend(MarketValue(float(v), float(e), float(p), float(m)) for v, e, p, m in zip(values, errors, prob, mean))
     return out
 
 
-def _level_codes(sim, x, key, most=4096):
+def _pair_moments(sim, code, size, per_share, control_variate):
+    """Sums over path pairs from which every curve's estimate follows (see :func:`_estimate_columns`).
+
+    A pair's value is ``Y = v . f`` with ``f`` the curve's payout on each
+    level and ``v`` the pair's weights on its members' levels, so
+    ``sum Y = g . f``, ``sum Y^2 = f . G f`` and ``sum dev Y = h . f``.
+    """
+    weight = (0.5 * np.exp(-sim.rate * sim.term) * per_share).reshape(-1, 2)
+    a, b = code.reshape(-1, 2).T
+    wa, wb = weight.T
+    g = np.bincount(a, wa, size) + np.bincount(b, wb, size)
+    flat = np.concatenate([a * size + a, b * size + b, a * size + b, b * size + a])
+    big = np.bincount(flat, np.concatenate([wa * wa, wb * wb, wa * wb, wa * wb]), size * size).reshape(size, size)
+    control = None
+    if control_variate:
+        dev, offset = _control(sim)
+        if dev @ dev > 0:
+            h = np.bincount(a, wa * dev, size) + np.bincount(b, wb * dev, size)
+            control = (h, float(dev @ dev), offset)
+    return g, big, control, a.size
+
+
+def _estimate_from_moments(moments, table):
+    """Means and standard errors of the pair values of each column of ``table`` (levels x curves)."""
+    g, big, control, n = moments
+    means = g @ table / n
+    syy = np.einsum("uk,uk->k", table, big @ table) - n * means**2
+    if control is not None:
+        h, scc, offset = control
+        syc = h @ table
+        beta = syc / scc
+        means = means - beta * offset
+        syy = syy - syc**2 / scc
+    return means, np.sqrt(np.maximum(syy, 0.0) / (n - 1) / n)
+
+
+def _level_codes(sim, x, key, most=512):
     """Distinct (metric, company TSR < 0) levels and each path's code, or None when too many."""
     ckey = ("levels",) + key
     if ckey not in sim.cache:
@@ -322,13 +357,7 @@ def _estimate_columns(sim: MarketSimulation, pairs: np.ndarray, control_variate:
     centred = pairs - pairs.mean(axis=0)
     means = pairs.mean(axis=0)
     if control_variate:
-        key = ("control",)
-        if key not in sim.cache:
-            c = np.exp(-sim.rate * sim.term) * sim.end_price[:, 0].astype(float)
-            c = c.reshape(-1, 2).mean(axis=1)
-            known = sim.share_price[0] * np.exp(-sim.dividend_yield[0] * sim.term)
-            sim.cache[key] = (c - c.mean(), c.mean() - known)
-        dev, offset = sim.cache[key]
+        dev, offset = _control(sim)
         var = float(dev @ dev)
         if var > 0:
             beta = (dev @ centred) / var
@@ -338,6 +367,17 @@ def _estimate_columns(sim: MarketSimulation, pairs: np.ndarray, control_variate:
         return means, np.full(means.shape, np.nan)
     errors = np.sqrt((centred * centred).sum(axis=0) / (n - 1) / n)
     return means, errors
+
+
+def _control(sim: MarketSimulation):
+    """Centred pair means of ``e^{-rT} S_T`` and their mean's excess over ``S_0 e^{-qT}`` (cached)."""
+    key = ("control",)
+    if key not in sim.cache:
+        c = np.exp(-sim.rate * sim.term) * sim.end_price[:, 0].astype(float)
+        c = c.reshape(-1, 2).mean(axis=1)
+        known = sim.share_price[0] * np.exp(-sim.dividend_yield[0] * sim.term)
+        sim.cache[key] = (c - c.mean(), c.mean() - known)
+    return sim.cache[key]
 
 
 def derived_service_period(sim: MarketSimulation, hurdle: float) -> ServicePeriod:
