@@ -1,0 +1,105 @@
+"""Fair value of employee share purchase plan (ESPP) purchase rights.
+
+The components follow ASC 718-50-55 (the illustrations carried over from FASB
+Technical Bulletin 97-1): a purchase right with a look-back is a share at a
+discount plus an at-the-money call on the rest of a share (plus a put when the
+number of shares varies).  The derivation is in ``docs/purchase-plans.md``.
+
+"Per share" throughout: per share the employee's withholdings buy at the
+offering-start purchase price ``(1 - d) S_0``, i.e. per ``(1 - d) S_0`` of
+withholdings.  An offering with several purchase dates, each looking back to
+the offering start, is one option per purchase date: call this function with
+``term`` set to each purchase date and weight by the share of the
+withholdings each purchase uses.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from grantval.errors import InputError
+from grantval.pricing._inputs import FINITE, NON_NEGATIVE, finish, prepare
+from grantval.pricing.bsm import _bsm
+
+BASES = ("fixed_shares", "fixed_withholding")
+
+
+def espp_value(
+    share_price,
+    term,
+    rate,
+    volatility,
+    dividend_yield=0.0,
+    discount=0.15,
+    lookback=True,
+    basis="fixed_shares",
+):
+    """Fair value of an ESPP purchase right, per share purchasable at the start price.
+
+    Parameters
+    ----------
+    share_price : array_like
+        Share price at the offering (grant) date ``S_0``, currency, >= 0.
+    term : array_like
+        Years from the offering date to the purchase date, >= 0.
+    rate : array_like
+        Risk-free rate, continuously compounded decimal per year.
+    volatility : array_like
+        Volatility of the share's log return, decimal per square-root year, >= 0.
+    dividend_yield : array_like, optional
+        Continuous dividend yield, decimal per year, >= 0.
+    discount : array_like, optional
+        Purchase discount ``d`` as a decimal (0.15 = the purchase price is 85%
+        of the reference price), from 0 up to but excluding 1.
+    lookback : bool, optional
+        True: the purchase price is ``(1 - d) min(S_0, S_T)``.  False: it is
+        ``(1 - d) S_T`` (no look-back).
+    basis : {"fixed_shares", "fixed_withholding"}
+        ``"fixed_shares"``: the number of shares is fixed at the offering
+        date (ASC 718-50-55-2, Type A, maximum number of shares);
+        ``"fixed_withholding"``: the employee buys as many shares as the
+        withholdings allow at the purchase date (Type B, variable number).
+
+    Returns
+    -------
+    float or ndarray
+        Value per share purchasable at ``(1 - d) S_0``, currency.
+
+    Notes
+    -----
+    With ``c`` and ``p`` the Black-Scholes-Merton call and put struck at
+    ``S_0`` expiring at ``T``:
+
+    - look-back, fixed shares: ``d S_0 e^{-qT} + (1 - d) c``;
+    - look-back, fixed withholding: ``d S_0 e^{-qT} + (1 - d) c + d p``
+      (equal to ``c + d S_0 e^{-rT}``);
+    - no look-back, fixed shares: ``d S_0 e^{-qT}``;
+    - no look-back, fixed withholding: ``d S_0 e^{-rT}`` (a known cash
+      amount, ``d / (1 - d)`` of the withholdings, at the purchase date).
+    """
+    if basis not in BASES:
+        raise InputError(f"basis must be 'fixed_shares' or 'fixed_withholding'; got {basis!r}")
+    if not isinstance(lookback, (bool, np.bool_)):
+        raise InputError(f"lookback must be True or False; got {lookback!r}")
+    (s, t, r, sigma, q, d), scalar = prepare(
+        share_price=(share_price, (NON_NEGATIVE,)),
+        term=(term, (NON_NEGATIVE,)),
+        rate=(rate, (FINITE,)),
+        volatility=(volatility, (NON_NEGATIVE,)),
+        dividend_yield=(dividend_yield, (NON_NEGATIVE,)),
+        discount=(discount, ((lambda a: (a >= 0) & (a < 1), "from 0 up to but excluding 1"),)),
+    )
+    return finish(_espp(s, t, r, sigma, q, d, bool(lookback), basis == "fixed_shares"), scalar)
+
+
+def _espp(s, t, r, sigma, q, d, lookback, fixed_shares):
+    """The component formulas on broadcast float arrays (no checks)."""
+    share_part = d * s * np.exp(-q * t)
+    if not lookback:
+        return share_part if fixed_shares else d * s * np.exp(-r * t)
+    strike = np.where(s > 0, s, 1.0)
+    call = np.where(s > 0, _bsm(s, strike, t, r, sigma, q, True), 0.0)
+    value = share_part + (1.0 - d) * call
+    if not fixed_shares:
+        value = value + d * np.where(s > 0, _bsm(s, strike, t, r, sigma, q, False), 0.0)
+    return value

@@ -1,0 +1,131 @@
+"""ESPP purchase rights: ASC 718-50-55 components against QuantLib and against the plan's own mechanics."""
+
+import numpy as np
+import pytest
+import QuantLib as ql
+
+from grantval.errors import InputError
+from grantval.pricing.espp import espp_value
+
+
+def ql_black(kind, s, k, t, r, vol, q):
+    """QuantLib blackFormula on the forward S e^{(r-q)T}, discounted at e^{-rT}."""
+    kind = ql.Option.Call if kind == "call" else ql.Option.Put
+    return ql.blackFormula(kind, k, s * np.exp((r - q) * t), vol * np.sqrt(t), np.exp(-r * t))
+
+
+CASES = [
+    # share price, term, rate, volatility, dividend yield, discount
+    (50.0, 0.5, 0.045, 0.30, 0.0, 0.15),
+    (50.0, 1.0, 0.065, 0.30, 0.025, 0.15),
+    (12.0, 2.0, 0.01, 0.80, 0.0, 0.10),
+    (140.0, 0.25, 0.05, 0.20, 0.03, 0.05),
+]
+
+
+@pytest.mark.parametrize("s, t, r, vol, q, d", CASES)
+def test_fixed_shares_is_discounted_share_plus_call(s, t, r, vol, q, d):
+    # ASC 718-50-55-2 Type A (maximum number of shares), Example 1 Case A (718-50-55-10):
+    # d of a share plus a call on (1 - d) of a share struck at the offering-date price.
+    # Reference: QuantLib blackFormula.
+    ref = d * s * np.exp(-q * t) + (1 - d) * ql_black("call", s, s, t, r, vol, q)
+    assert espp_value(s, t, r, vol, q, d) == pytest.approx(ref, rel=1e-10)
+
+
+@pytest.mark.parametrize("s, t, r, vol, q, d", CASES)
+def test_fixed_withholding_adds_a_put_on_the_discount(s, t, r, vol, q, d):
+    # ASC 718-50-55-2 Type B (variable number of shares): plus a put on d of a share at the start price.
+    # Reference: QuantLib blackFormula.
+    ref = (
+        d * s * np.exp(-q * t)
+        + (1 - d) * ql_black("call", s, s, t, r, vol, q)
+        + d * ql_black("put", s, s, t, r, vol, q)
+    )
+    assert espp_value(s, t, r, vol, q, d, basis="fixed_withholding") == pytest.approx(ref, rel=1e-10)
+
+
+def test_two_purchase_offering_is_two_options():
+    # A 2-year offering with purchases at 1 and 2 years, each looking back to the offering start
+    # (ASC 718-50-55, multiple purchase periods valued as separate options; from memory).
+    # Reference: QuantLib blackFormula for each purchase date.
+    s, r, vol, q, d = 30.0, 0.04, 0.45, 0.01, 0.15
+    got = espp_value(s, np.array([1.0, 2.0]), r, vol, q, d)
+    ref = [d * s * np.exp(-q * t) + (1 - d) * ql_black("call", s, s, t, r, vol, q) for t in (1.0, 2.0)]
+    np.testing.assert_allclose(got, ref, rtol=1e-10)
+    assert got[1] > got[0]
+
+
+@pytest.mark.parametrize("basis, expected", [("fixed_shares", "q"), ("fixed_withholding", "r")])
+def test_no_look_back_is_only_the_discount(basis, expected):
+    # Purchase at (1 - d) S_T: fixed shares earn d S_T (worth d S e^{-qT}); fixed withholdings
+    # earn d/(1-d) of the withholdings in cash at T (worth d S e^{-rT} per share at the start price).
+    # Reference: docs/purchase-plans.md derivation (common practice).
+    s, t, r, vol, q, d = 40.0, 0.5, 0.05, 0.35, 0.02, 0.15
+    rate = q if expected == "q" else r
+    got = espp_value(s, t, r, vol, q, d, lookback=False, basis=basis)
+    assert got == pytest.approx(d * s * np.exp(-rate * t), rel=1e-12)
+
+
+@pytest.mark.parametrize("basis", ["fixed_shares", "fixed_withholding"])
+def test_components_match_the_plan_mechanics_by_simulation(basis):
+    # Independent of the decomposition: simulate S_T (exact lognormal), buy shares as the plan does
+    # with withholdings W = (1 - d) S_0, value the gain at T and discount. 3 standard errors (common practice).
+    s, t, r, vol, q, d = 25.0, 1.0, 0.04, 0.5, 0.015, 0.15
+    z = np.random.default_rng(11).standard_normal(500_000)
+    z = np.concatenate([z, -z])
+    st = s * np.exp((r - q - 0.5 * vol**2) * t + vol * np.sqrt(t) * z)
+    price = (1 - d) * np.minimum(s, st)
+    withheld = (1 - d) * s
+    shares = 1.0 if basis == "fixed_shares" else withheld / price
+    gain = np.exp(-r * t) * shares * (st - price)  # a share bought at T is worth S_T
+    pairs = gain.reshape(2, -1).mean(axis=0)
+    se = pairs.std(ddof=1) / np.sqrt(pairs.size)
+    assert abs(pairs.mean() - espp_value(s, t, r, vol, q, d, basis=basis)) <= 3 * se
+
+
+def test_vectorised_and_scalar():
+    got = espp_value(np.array([10.0, 20.0]), 1.0, 0.03, 0.3, 0.0, 0.15)
+    assert got.shape == (2,)
+    assert got[1] == pytest.approx(2 * got[0])  # homogeneous of degree one in the price
+    assert isinstance(espp_value(10.0, 1.0, 0.03, 0.3), float)
+    assert espp_value(0.0, 1.0, 0.03, 0.3) == 0.0
+    # term 0: only the discount on today's share
+    assert espp_value(10.0, 0.0, 0.03, 0.3, 0.0, 0.15) == pytest.approx(1.5)
+
+
+@pytest.mark.parametrize(
+    "kwargs, words",
+    [
+        ({"discount": 1.0}, "discount"),
+        ({"discount": -0.1}, "discount"),
+        ({"basis": "shares"}, "basis"),
+        ({"lookback": "yes"}, "lookback"),
+        ({"volatility": -0.2}, "volatility"),
+        ({"term": np.nan}, "term"),
+    ],
+)
+def test_bad_inputs_are_named(kwargs, words):
+    args = {"share_price": 10.0, "term": 1.0, "rate": 0.03, "volatility": 0.3}
+    args.update(kwargs)
+    with pytest.raises(InputError, match=words):
+        espp_value(**args)
+
+
+from hypothesis import given, settings, strategies as st  # noqa: E402
+
+
+@settings(max_examples=100, deadline=None)
+@given(
+    st.floats(1, 500), st.floats(0.01, 3), st.floats(-0.01, 0.08), st.floats(0.01, 1.5),
+    st.floats(0, 0.06), st.floats(0, 0.3),
+)
+def test_orderings(s, t, r, vol, q, d):
+    # Properties (common practice): the look-back adds value; fixed withholding adds a put;
+    # the call is worth at most the share delivered, so fixed withholding is at most S e^{-qT} + d S e^{-rT}.
+    plain = espp_value(s, t, r, vol, q, d, lookback=False)
+    fixed = espp_value(s, t, r, vol, q, d)
+    varying = espp_value(s, t, r, vol, q, d, basis="fixed_withholding")
+    assert plain <= fixed + 1e-9 * s
+    assert fixed <= varying + 1e-9 * s
+    assert varying <= s * (np.exp(-q * t) + d * np.exp(-r * t)) * (1 + 1e-9)
+    assert espp_value(s, t, r, vol * 1.1, q, d) >= fixed - 1e-9 * s
