@@ -242,9 +242,12 @@ def _plain(value, where: str):
     raise InputError(f"{where} holds a {type(value).__name__}, which the register cannot store; use text, numbers, dates, lists or dicts")
 
 
+_ENCODER = json.JSONEncoder(sort_keys=True, separators=(",", ":"), ensure_ascii=False, allow_nan=False)
+
+
 def _canonical(value) -> str:
     """The canonical JSON text of a plain value (sorted keys, no spaces, UTF-8)."""
-    return json.dumps(value, sort_keys=True, separators=(",", ":"), ensure_ascii=False, allow_nan=False)
+    return _ENCODER.encode(value)
 
 
 def _sha(text: str) -> str:
@@ -474,25 +477,33 @@ def _genesis(register_id: str) -> str:
     return _sha(_canonical([APPLICATION, "genesis", register_id]))
 
 
+def _plain_cursor(con: sqlite3.Connection, sql: str, args: tuple = ()) -> sqlite3.Cursor:
+    """A cursor yielding plain tuples (much faster than sqlite3.Row for bulk reads)."""
+    cur = con.cursor()
+    cur.row_factory = None
+    return cur.execute(sql, args)
+
+
 def _stream_digest(cursor) -> tuple[str, int]:
     """SHA-256 over the canonical JSON lines of a query's rows, and the row count."""
     h = hashlib.sha256()
     n = 0
-    for row in cursor:
-        h.update(_canonical(list(row)).encode("utf-8") + b"\n")
-        n += 1
+    encode = _ENCODER.encode
+    while batch := cursor.fetchmany(10_000):
+        h.update("".join([encode(list(row)) + "\n" for row in batch]).encode("utf-8"))
+        n += len(batch)
     return h.hexdigest(), n
 
 
 def _rows_digest(con: sqlite3.Connection, close_id: int) -> tuple[str, int]:
-    return _stream_digest(con.execute(
-        'SELECT grant_id, "group", period_end, booked_cents, catch_up_cents FROM booked '
+    return _stream_digest(_plain_cursor(
+        con, 'SELECT grant_id, "group", period_end, booked_cents, catch_up_cents FROM booked '
         "WHERE close_id = ? ORDER BY period_end, grant_id", (close_id,)))
 
 
 def _journal_digest(con: sqlite3.Connection, close_id: int) -> tuple[str, int]:
-    return _stream_digest(con.execute(
-        'SELECT line_no, period_end, account, "group", debit_cents, credit_cents, description FROM journal '
+    return _stream_digest(_plain_cursor(
+        con, 'SELECT line_no, period_end, account, "group", debit_cents, credit_cents, description FROM journal '
         "WHERE close_id = ? ORDER BY line_no", (close_id,)))
 
 
@@ -830,7 +841,7 @@ class Register:
             sql += " AND period_end <= ?"
             args = (_day(through, "through"),)
         with self._snapshot() as con:
-            rows = con.execute(sql + " ORDER BY period_end, grant_id", args).fetchall()
+            rows = _plain_cursor(con, sql + " ORDER BY period_end, grant_id", args).fetchall()
         return _table(rows, ("close_id", "grant_id", "group", "period_end", "booked_cents", "catch_up_cents"))
 
     def cumulative_booked(self, through=None) -> pd.DataFrame:
@@ -843,15 +854,16 @@ class Register:
             booked_cents, catch_up_cents (int64 sums, cents); periods (rows
             summed); last_period_end (datetime64).
         """
-        b = self.booked(through)
-        b = b.sort_values(["grant_id", "period_end"], kind="stable")
-        sums = b.groupby("grant_id", sort=True).agg(
-            booked_cents=("booked_cents", "sum"), catch_up_cents=("catch_up_cents", "sum"),
-            periods=("period_end", "size"), last_period_end=("period_end", "max"))
-        latest = b.drop_duplicates("grant_id", keep="last").set_index("grant_id")["group"]
-        out = sums.join(latest).reset_index()
-        out = out[["grant_id", "group", "booked_cents", "catch_up_cents", "periods", "last_period_end"]]
-        return out.astype({"booked_cents": np.int64, "catch_up_cents": np.int64, "periods": np.int64})
+        # SQLite: with exactly one max() aggregate, the bare column "group" comes from the row holding the max
+        sql = ('SELECT grant_id, "group", SUM(booked_cents), SUM(catch_up_cents), COUNT(*), MAX(period_end) '
+               "FROM booked WHERE close_id NOT IN (SELECT close_id FROM reopens)")
+        args: tuple = ()
+        if through is not None:
+            sql += " AND period_end <= ?"
+            args = (_day(through, "through"),)
+        with self._snapshot() as con:
+            rows = _plain_cursor(con, sql + " GROUP BY grant_id ORDER BY grant_id", args).fetchall()
+        return _table(rows, ("grant_id", "group", "booked_cents", "catch_up_cents", "periods", "last_period_end"))
 
     def journal(self, close_id: int | None = None) -> pd.DataFrame:
         """Journal lines of the active closes, or of one close (active or superseded).
@@ -866,11 +878,11 @@ class Register:
                "FROM journal WHERE ")
         with self._snapshot() as con:
             if close_id is None:
-                rows = con.execute(sql + "close_id NOT IN (SELECT close_id FROM reopens) ORDER BY close_id, line_no").fetchall()
+                rows = _plain_cursor(con, sql + "close_id NOT IN (SELECT close_id FROM reopens) ORDER BY close_id, line_no").fetchall()
             else:
                 if con.execute("SELECT 1 FROM closes WHERE close_id = ?", (int(close_id),)).fetchone() is None:
                     raise RegisterError(f"the close register {self.path} has no close {close_id}")
-                rows = con.execute(sql + "close_id = ? ORDER BY line_no", (int(close_id),)).fetchall()
+                rows = _plain_cursor(con, sql + "close_id = ? ORDER BY line_no", (int(close_id),)).fetchall()
         return _table(rows, ("close_id", "line_no", "period_end", "account", "group", "debit_cents", "credit_cents", "description"))
 
     # -- writing
@@ -1103,7 +1115,7 @@ def _close_of(r: sqlite3.Row) -> Close:
         status="booked" if reopen is None else "superseded", reopen=reopen)
 
 
-_INT_COLUMNS = {"close_id", "line_no", "booked_cents", "catch_up_cents", "debit_cents", "credit_cents"}
+_INT_COLUMNS = {"close_id", "line_no", "booked_cents", "catch_up_cents", "debit_cents", "credit_cents", "periods"}
 
 
 def _table(rows: list, columns: Sequence[str]) -> pd.DataFrame:
@@ -1113,7 +1125,7 @@ def _table(rows: list, columns: Sequence[str]) -> pd.DataFrame:
     for name, col in zip(columns, values):
         if name in _INT_COLUMNS:
             data[name] = np.array(col, dtype=np.int64)
-        elif name == "period_end":
+        elif name in ("period_end", "last_period_end"):
             data[name] = np.array(col, dtype="datetime64[D]")
         else:
             data[name] = pd.Series(list(col), dtype="object" if not col else None)
@@ -1224,8 +1236,8 @@ def _export_query(con: sqlite3.Connection, name: str, version: int) -> tuple[lis
     if name == "meta":
         rows = sorted([tuple(r) for r in con.execute("SELECT key, value FROM meta")] + [("schema_version", str(version))])
         return ["key", "value"], rows
-    cur = con.execute(_EXPORT_SQL[name].format(status=_STATUS_SQL))
-    return [d[0] for d in cur.description], [tuple(r) for r in cur.fetchall()]
+    cur = _plain_cursor(con, _EXPORT_SQL[name].format(status=_STATUS_SQL))
+    return [d[0] for d in cur.description], cur.fetchall()
 
 
 def _csv_bytes(header: Sequence[str], rows: list[tuple]) -> bytes:

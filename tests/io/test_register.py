@@ -185,6 +185,15 @@ def test_cumulative_booked_over_two_closes_and_through(reg):
     assert upto["booked_cents"].tolist() == reg.booked(through=Q2).groupby("grant_id")["booked_cents"].sum().tolist()
 
 
+def test_cumulative_group_is_that_of_the_latest_period(reg):
+    rows = make_rows(Q1, n=1).assign(group="staff")
+    reg.book(make_record(Q1), rows, make_journal(rows))
+    rows = make_rows(Q2, n=1).assign(group="exec")
+    reg.book(make_record(Q2), rows, make_journal(rows))
+    assert reg.cumulative_booked()["group"].tolist() == ["exec"]
+    assert reg.cumulative_booked(through=Q1)["group"].tolist() == ["staff"]
+
+
 def test_user_comes_from_the_environment(reg, monkeypatch):
     for key in ("USER", "LOGNAME", "USERNAME"):
         monkeypatch.delenv(key, raising=False)
@@ -280,6 +289,9 @@ def test_reopen_keeps_rows_marks_them_superseded_and_allows_booking_again(reg):
     assert reg.last_close().close_id == 1
     assert set(reg.booked()["close_id"]) == {1}
     assert reg.journal(close_id=2)["line_no"].tolist() == [1, 2]  # superseded lines are still readable
+    assert set(reg.journal()["close_id"]) == {1}
+    with pytest.raises(R.RegisterError, match="has no close 9"):
+        reg.journal(close_id=9)
     n = raw(reg.path).execute("SELECT COUNT(*) FROM booked WHERE close_id = 2").fetchone()[0]
     assert n == 3  # never deleted
     # booking Q2 again works; the new close gets a new id
