@@ -87,6 +87,15 @@ def raw(path) -> sqlite3.Connection:
     return sqlite3.connect(path, isolation_level=None)
 
 
+def scalar(path, sql):
+    """One value from a plain sqlite3 connection, closed afterwards."""
+    c = raw(path)
+    try:
+        return c.execute(sql).fetchone()[0]
+    finally:
+        c.close()
+
+
 # ------------------------------------------------------------ create / open
 
 
@@ -100,9 +109,8 @@ def test_create_then_open_existing(tmp_path):
         assert [c.close_id for c in reg.closes()] == [1]
     with R.open_register(p, create=True) as reg:  # create never replaces an existing register
         assert [c.close_id for c in reg.closes()] == [1]
-    c = raw(p)
-    assert c.execute("PRAGMA user_version").fetchone()[0] == R.SCHEMA_VERSION
-    assert c.execute("PRAGMA application_id").fetchone()[0] == R.APPLICATION_ID
+    assert scalar(p, "PRAGMA user_version") == R.SCHEMA_VERSION
+    assert scalar(p, "PRAGMA application_id") == R.APPLICATION_ID
     assert not [f for f in os.listdir(tmp_path) if f.startswith(".")]  # no temporary file left behind
 
 
@@ -292,7 +300,7 @@ def test_reopen_keeps_rows_marks_them_superseded_and_allows_booking_again(reg):
     assert set(reg.journal()["close_id"]) == {1}
     with pytest.raises(R.RegisterError, match="has no close 9"):
         reg.journal(close_id=9)
-    n = raw(reg.path).execute("SELECT COUNT(*) FROM booked WHERE close_id = 2").fetchone()[0]
+    n = scalar(reg.path, "SELECT COUNT(*) FROM booked WHERE close_id = 2")
     assert n == 3  # never deleted
     # booking Q2 again works; the new close gets a new id
     assert book(reg, Q2, user="carol") == 3
@@ -371,6 +379,7 @@ def wait_for(marker: pathlib.Path, proc: subprocess.Popen, limit: float = 60.0) 
             pytest.fail(f"child ended early: {proc.stdout.read()} {proc.stderr.read()}")
         if time.monotonic() > end:
             proc.kill()
+            proc.communicate()
             pytest.fail("child never reached its hook")
         time.sleep(0.02)
 
@@ -391,7 +400,7 @@ def test_killed_close_leaves_the_register_as_it_was(tmp_path, stage, at):
     wait_for(marker, proc)
     assert pathlib.Path(str(path) + "-journal").exists()  # the close was under way, with pages changed
     proc.send_signal(signal.SIGKILL)
-    proc.wait(timeout=30)
+    proc.communicate(timeout=30)
     assert proc.returncode == -signal.SIGKILL
     with R.open_register(path) as reg:  # the hot journal is rolled back on opening
         assert reg.closes() == before_closes
@@ -497,6 +506,7 @@ def test_append_only_guards_stop_plain_edits(reg):
         c.execute("UPDATE booked SET booked_cents = 1")
     with pytest.raises(sqlite3.IntegrityError, match="append-only"):
         c.execute("DELETE FROM journal")
+    c.close()
     assert reg.verify() == []
 
 
@@ -533,6 +543,7 @@ def test_verify_reports_an_altered_close_record_and_a_rewritten_digest(reg):
                                 c.execute("SELECT * FROM closes WHERE close_id = 1").fetchone())}
     new = R._close_digest(row, row["rows_digest"], row["journal_digest"], row["prev_digest"])
     c.execute("UPDATE closes SET digest = ? WHERE close_id = 1", (new,))
+    c.close()
     problems = reg.verify()
     assert not any(p.startswith("close 1 ") for p in problems)
     assert any(p.startswith("close 2 (through 2026-06-30): its link to the previous event does not match") for p in problems)
@@ -562,7 +573,7 @@ def test_rows_digest_follows_the_documented_serialisation(reg):
     """docs/close-register.md, 'Digests': recomputed here with hashlib and json only."""
     rows = make_rows(Q1).iloc[::-1]  # order given does not matter
     reg.book(make_record(Q1), rows, make_journal(rows))
-    stored = raw(reg.path).execute("SELECT rows_digest FROM closes").fetchone()[0]
+    stored = scalar(reg.path, "SELECT rows_digest FROM closes")
     h = hashlib.sha256()
     for r in sorted(rows.itertuples(index=False), key=lambda r: (r.period_end, r.grant_id)):
         line = [r.grant_id, None if pd.isna(r.group) else r.group, r.period_end, int(r.booked_cents), int(r.catch_up_cents)]
@@ -613,7 +624,7 @@ def test_older_schema_is_upgraded_or_refused(tmp_path, reg, monkeypatch):
         R.open_register(reg.path, readonly=True)
     with R.open_register(reg.path) as up:
         assert up.schema_version == 2 and len(up.booked()) == 3
-    assert raw(reg.path).execute("PRAGMA user_version").fetchone()[0] == 2
+    assert scalar(reg.path, "PRAGMA user_version") == 2
 
 
 # ------------------------------------------------------- non-register files
