@@ -47,6 +47,11 @@ from grantval import __version__
 from grantval.errors import GrantvalError, InputError, OutputError
 from grantval.io.write import csv_text
 
+__all__ = [
+    "SCHEMA_VERSION", "ROW_COLUMNS", "JOURNAL_COLUMNS", "RegisterError", "PeriodClosedError",
+    "CloseRecord", "Close", "Reopen", "Register", "open_register", "current_user",
+]
+
 #: schema version this grantval writes (stored as ``PRAGMA user_version``)
 SCHEMA_VERSION = 1
 #: ``PRAGMA application_id`` of a register: the bytes "GVCL"
@@ -757,7 +762,7 @@ class Register:
         text = str(err)
         name = getattr(err, "sqlite_errorname", "")
         if "locked" in text or "busy" in text or name.startswith("SQLITE_BUSY"):
-            return RegisterError(f"the close register {self.path} is busy: another grantval process is writing to it; "
+            return RegisterError(f"the close register {self.path} is busy: another process is writing to it (or reading it); "
                                  f"nothing was {what}; try again when it has finished")
         if "full" in text or name.startswith("SQLITE_FULL"):
             return RegisterError(f"the close register {self.path} could not be written: the disk is full; "
@@ -820,13 +825,15 @@ class Register:
             row = _head_row(con)
         return None if row is None else row["digest"]
 
-    def booked(self, through=None) -> pd.DataFrame:
-        """Booked rows of the active closes, by period end then grant.
+    def booked(self, through=None, close_id: int | None = None) -> pd.DataFrame:
+        """Booked rows of the active closes (or of one close), by period end then grant.
 
         Parameters
         ----------
         through : date-like, optional
             Only periods ending on or before this date.
+        close_id : int, optional
+            Only this close's rows, whether active or superseded.
 
         Returns
         -------
@@ -834,13 +841,19 @@ class Register:
             close_id (int64), grant_id, group (text, missing as NA),
             period_end (datetime64), booked_cents, catch_up_cents (int64, cents).
         """
-        sql = ('SELECT close_id, grant_id, "group", period_end, booked_cents, catch_up_cents FROM booked '
-               "WHERE close_id NOT IN (SELECT close_id FROM reopens)")
-        args: tuple = ()
+        sql = 'SELECT close_id, grant_id, "group", period_end, booked_cents, catch_up_cents FROM booked WHERE '
+        if close_id is None:
+            sql += "close_id NOT IN (SELECT close_id FROM reopens)"
+            args: tuple = ()
+        else:
+            sql += "close_id = ?"
+            args = (int(close_id),)
         if through is not None:
             sql += " AND period_end <= ?"
-            args = (_day(through, "through"),)
+            args += (_day(through, "through"),)
         with self._snapshot() as con:
+            if close_id is not None:
+                self._require_close(con, close_id)
             rows = _plain_cursor(con, sql + " ORDER BY period_end, grant_id", args).fetchall()
         return _table(rows, ("close_id", "grant_id", "group", "period_end", "booked_cents", "catch_up_cents"))
 
@@ -880,10 +893,13 @@ class Register:
             if close_id is None:
                 rows = _plain_cursor(con, sql + "close_id NOT IN (SELECT close_id FROM reopens) ORDER BY close_id, line_no").fetchall()
             else:
-                if con.execute("SELECT 1 FROM closes WHERE close_id = ?", (int(close_id),)).fetchone() is None:
-                    raise RegisterError(f"the close register {self.path} has no close {close_id}")
+                self._require_close(con, close_id)
                 rows = _plain_cursor(con, sql + "close_id = ? ORDER BY line_no", (int(close_id),)).fetchall()
         return _table(rows, ("close_id", "line_no", "period_end", "account", "group", "debit_cents", "credit_cents", "description"))
+
+    def _require_close(self, con: sqlite3.Connection, close_id: int) -> None:
+        if con.execute("SELECT 1 FROM closes WHERE close_id = ?", (int(close_id),)).fetchone() is None:
+            raise RegisterError(f"the close register {self.path} has no close {close_id}")
 
     # -- writing
 
@@ -1141,7 +1157,7 @@ def _check_storage(con: sqlite3.Connection, meta: Mapping[str, str], version: in
     for key in ("application", "register_id", "event_count", "reader_min_schema", "writer_min_schema"):
         if key not in meta:
             out.append(f"the register's meta table has lost its {key!r} entry")
-    if version == SCHEMA_VERSION:
+    if version == SCHEMA_VERSION:  # a future migration must keep a migrated file's schema text equal to a fresh one
         found = {name: sql for name, sql in con.execute("SELECT name, sql FROM sqlite_master WHERE sql IS NOT NULL")}
         for name, sql in _expected_schema().items():
             what = "append-only guard" if name in _TRIGGERS else "schema object"

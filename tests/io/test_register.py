@@ -298,6 +298,9 @@ def test_reopen_keeps_rows_marks_them_superseded_and_allows_booking_again(reg):
     assert set(reg.booked()["close_id"]) == {1}
     assert reg.journal(close_id=2)["line_no"].tolist() == [1, 2]  # superseded lines are still readable
     assert set(reg.journal()["close_id"]) == {1}
+    assert reg.booked(close_id=2)["booked_cents"].tolist() == make_rows(Q2)["booked_cents"].tolist()
+    with pytest.raises(R.RegisterError, match="has no close 9"):
+        reg.booked(close_id=9)
     with pytest.raises(R.RegisterError, match="has no close 9"):
         reg.journal(close_id=9)
     n = scalar(reg.path, "SELECT COUNT(*) FROM booked WHERE close_id = 2")
