@@ -11,6 +11,17 @@ from grantval.pricing._inputs import FINITE, NON_NEGATIVE, POSITIVE, finish, pre
 KINDS = ("call", "put")
 
 
+def d1_d2(s, k, t, r, sigma, q):
+    """The Black-Scholes-Merton ``d1`` and ``d2`` on plain arrays (no checks; needs ``sigma sqrt(t) > 0``, ``s > 0``).
+
+    ``d1 = (ln(S/K) + (r - q) T) / (sigma sqrt T) + sigma sqrt(T) / 2``, ``d2 = d1 - sigma sqrt T``.
+    Shared by the values (:func:`bsm_value`) and the sensitivities (:mod:`grantval.pricing.greeks`).
+    """
+    total_vol = sigma * np.sqrt(t)
+    d1 = (np.log(s / k) + (r - q) * t) / total_vol + 0.5 * total_vol
+    return d1, d1 - total_vol
+
+
 def _bsm(s, k, t, r, sigma, q, is_call):
     """Black-Scholes-Merton formula on broadcast float arrays (no checks).
 
@@ -24,10 +35,10 @@ def _bsm(s, k, t, r, sigma, q, is_call):
     sign = np.where(is_call, 1.0, -1.0)
     total_vol = sigma * np.sqrt(t)
     regular = (total_vol > 0) & (s > 0)
-    safe_vol = np.where(regular, total_vol, 1.0)
     safe_s = np.where(regular, s, 1.0)
-    d1 = (np.log(safe_s / k) + (r - q) * t) / safe_vol + 0.5 * safe_vol
-    d2 = d1 - safe_vol
+    safe_sigma = np.where(regular, sigma, 1.0)
+    safe_t = np.where(regular, t, 1.0)
+    d1, d2 = d1_d2(safe_s, k, safe_t, r, safe_sigma, q)
     value = sign * (fwd_s * ndtr(sign * d1) - pv_k * ndtr(sign * d2))
     degenerate = np.maximum(sign * (fwd_s - pv_k), 0.0)
     # rounding can give a value a hair below zero far out of the money

@@ -5,6 +5,7 @@ from __future__ import annotations
 import numpy as np
 from scipy.special import ndtr
 
+from grantval.pricing.bsm import d1_d2
 from grantval.pricing._inputs import FINITE, NON_NEGATIVE, POSITIVE, finish, prepare
 
 _INV_SQRT_2PI = 1.0 / np.sqrt(2.0 * np.pi)
@@ -50,9 +51,7 @@ def bsm_sensitivities(share_price, strike, term, rate, volatility, dividend_yiel
         dividend_yield=(dividend_yield, (NON_NEGATIVE,)),
     )
     sq = np.sqrt(t)
-    vs = sigma * sq
-    d1 = (np.log(s / k) + (r - q) * t) / vs + 0.5 * vs
-    d2 = d1 - vs
+    d1, d2 = d1_d2(s, k, t, r, sigma, q)
     fs = s * np.exp(-q * t)
     pk = k * np.exp(-r * t)
     pdf = _INV_SQRT_2PI * np.exp(-0.5 * d1 * d1)
