@@ -22,6 +22,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
+from grantval.awards.registry import flag
 from grantval.errors import Problem
 
 #: tranche-change kinds, in the order they are written
@@ -55,93 +56,106 @@ def apply_events(grants: pd.DataFrame, tranches: pd.DataFrame, events: pd.DataFr
     problems : list of Problem
     """
     problems: list[Problem] = []
-    out_t, out_e, out_d, out_k, out_q = [], [], [], [], []
+    out: list[tuple] = []
     if events.empty:
-        return _frame(out_t, out_e, out_d, out_k, out_q), problems
+        return _frame(out), problems
     t_grant = tranches["grant_idx"].to_numpy()
-    t_start = np.searchsorted(t_grant, np.arange(len(grants)), side="left")
-    t_end = np.searchsorted(t_grant, np.arange(len(grants)), side="right")
+    g = _GrantFacts(grants, t_grant)
     vest = tranches["vest_date"].to_numpy("datetime64[D]")
     remaining = tranches["quantity"].to_numpy(np.int64).copy()
-    award = grants["award_type"].to_numpy()
-    gdate = grants["grant_date"].to_numpy("datetime64[D]")
-    edate = grants["expiration_date"].to_numpy("datetime64[D]")
-    gid = grants["grant_id"].to_numpy()
     dates = events["event_date"].to_numpy("datetime64[D]")
     kinds = events["event_type"].to_numpy()
     qtys = events["quantity"].to_numpy(float)
     rows = events["_row"].to_numpy()
-    order = np.lexsort((np.arange(len(events)), dates, grant_pos))
-    for e in order:
-        g = grant_pos[e]
-        kind = kinds[e]
-        d = dates[e]
-        if g < 0 or kind is None or np.isnat(d):
+    for e in np.lexsort((np.arange(len(events)), dates, grant_pos)):
+        gp, kind, d = grant_pos[e], kinds[e], dates[e]
+        if gp < 0 or kind is None or np.isnat(d):
             continue
-        r = rows[e]
-        if d < gdate[g]:
-            problems.append(Problem(source, r, "event_date",
-                                    f"{d} is before the grant date {gdate[g]} of grant {gid[g]}"))
-            continue
-        if award[g] == "rsu" and kind in ("exercise", "expire"):
-            problems.append(Problem(source, r, "event_type",
-                                    f"grant {gid[g]} is an RSU award; RSUs are not exercised and do not expire"))
-            continue
-        if not np.isnat(edate[g]) and d > edate[g]:
-            problems.append(Problem(source, r, "event_date",
-                                    f"{kind} on {d} is after the expiration date {edate[g]} of grant {gid[g]}; "
-                                    "options still outstanding then expire on that date by themselves"))
-            continue
-        lo, hi = t_start[g], t_end[g]
-        idx = np.arange(lo, hi)
-        vested = vest[lo:hi] <= d
-        rem = remaining[lo:hi]
-        qty = qtys[e]
-        if kind == "forfeit":
-            pool = idx[~vested][::-1]
-        elif kind == "cancel":
-            # vested RSUs are settled, so only unvested units can be cancelled
-            pool = idx[~vested][::-1] if award[g] == "rsu" else idx[::-1]
-        else:
-            pool = idx[vested]
-        avail = int(remaining[pool].sum())
-        if np.isnan(qty):
-            if kind == "exercise":
-                problems.append(Problem(source, r, "quantity", "is required for an exercise"))
-                continue
-            qty = avail
-        qty = int(qty)
-        if qty <= 0 and not (np.isnan(qtys[e]) and avail == 0):
-            problems.append(Problem(source, r, "quantity", f"must be a positive whole number; got {qty}"))
-            continue
-        if qty > avail:
-            what = {
-                "forfeit": (f"forfeits {qty} but only {avail} of grant {gid[g]} are unvested and outstanding on {d}; "
-                            f"vested options cannot be forfeited ({int(rem[vested].sum())} vested: use expire or exercise)"),
-                "cancel": f"cancels {qty} but only {avail} of grant {gid[g]} are outstanding on {d}",
-                "exercise": f"exercises {qty} but only {avail} of grant {gid[g]} are vested and outstanding on {d}",
-                "expire": f"expires {qty} but only {avail} of grant {gid[g]} are vested and outstanding on {d}",
-            }[kind]
-            problems.append(Problem(source, r, "quantity", what))
-            continue
-        left = qty
-        for t in pool:
-            if left == 0:
-                break
-            take = min(left, int(remaining[t]))
-            if take == 0:
-                continue
+        problem = _event_problem(g, gp, kind, d)
+        if problem is None:
+            idx = np.arange(g.t_start[gp], g.t_end[gp])
+            pool = _pool(kind, idx, vest[idx] <= d, g.exercisable[gp])
+            problem = _allocate(out, remaining, pool, e, d, kind, qtys[e], g.ids[gp], vest[idx] <= d, idx)
+        if problem is not None:
+            problems.append(Problem(source, rows[e], *problem))
+    return _frame(out), problems
+
+
+class _GrantFacts:
+    """Per-grant arrays the allocation needs."""
+
+    def __init__(self, grants: pd.DataFrame, t_grant: np.ndarray):
+        n = np.arange(len(grants))
+        self.t_start = np.searchsorted(t_grant, n, side="left")
+        self.t_end = np.searchsorted(t_grant, n, side="right")
+        self.award = grants["award_type"].to_numpy()
+        self.exercisable = flag(self.award, "exercisable")
+        self.gdate = grants["grant_date"].to_numpy("datetime64[D]")
+        self.edate = grants["expiration_date"].to_numpy("datetime64[D]")
+        self.ids = grants["grant_id"].to_numpy()
+
+
+def _event_problem(g: _GrantFacts, gp: int, kind: str, d) -> tuple[str, str] | None:
+    """(column, message) when the event cannot apply to its grant at all, else None."""
+    if d < g.gdate[gp]:
+        return "event_date", f"{d} is before the grant date {g.gdate[gp]} of grant {g.ids[gp]}"
+    if not g.exercisable[gp] and kind in ("exercise", "expire"):
+        kind_name = str(g.award[gp]).upper()
+        return ("event_type", f"grant {g.ids[gp]} is an {kind_name} award; {kind_name}s are not exercised "
+                "and do not expire")
+    if not np.isnat(g.edate[gp]) and d > g.edate[gp]:
+        return ("event_date", f"{kind} on {d} is after the expiration date {g.edate[gp]} of grant {g.ids[gp]}; "
+                "options still outstanding then expire on that date by themselves")
+    return None
+
+
+def _pool(kind: str, idx: np.ndarray, vested: np.ndarray, exercisable: bool) -> np.ndarray:
+    """Tranches an event draws on, in the order it takes from them."""
+    if kind == "forfeit":
+        return idx[~vested][::-1]
+    if kind == "cancel":
+        # vested units are settled, so only unvested units can be cancelled
+        return idx[~vested][::-1] if not exercisable else idx[::-1]
+    return idx[vested]
+
+
+def _shortfall(kind: str, qty: int, avail: int, gid, d, vested_left: int) -> str:
+    return {
+        "forfeit": (f"forfeits {qty} but only {avail} of grant {gid} are unvested and outstanding on {d}; "
+                    f"vested options cannot be forfeited ({vested_left} vested: use expire or exercise)"),
+        "cancel": f"cancels {qty} but only {avail} of grant {gid} are outstanding on {d}",
+        "exercise": f"exercises {qty} but only {avail} of grant {gid} are vested and outstanding on {d}",
+        "expire": f"expires {qty} but only {avail} of grant {gid} are vested and outstanding on {d}",
+    }[kind]
+
+
+def _allocate(out: list, remaining: np.ndarray, pool, e, d, kind, given_qty, gid, vested, idx):
+    """Take the event's quantity from ``pool`` (appending allocations to ``out``); (column, message) on a problem."""
+    avail = int(remaining[pool].sum())
+    if np.isnan(given_qty):
+        if kind == "exercise":
+            return "quantity", "is required for an exercise"
+        qty = avail
+    else:
+        qty = int(given_qty)
+    if qty <= 0 and not (np.isnan(given_qty) and avail == 0):
+        return "quantity", f"must be a positive whole number; got {qty}"
+    if qty > avail:
+        return "quantity", _shortfall(kind, qty, avail, gid, d, int(remaining[idx][vested].sum()))
+    left = qty
+    for t in pool:
+        if left == 0:
+            break
+        take = min(left, int(remaining[t]))
+        if take:
             remaining[t] -= take
             left -= take
-            out_t.append(t)
-            out_e.append(e)
-            out_d.append(d)
-            out_k.append(kind)
-            out_q.append(take)
-    return _frame(out_t, out_e, out_d, out_k, out_q), problems
+            out.append((t, e, d, kind, take))
+    return None
 
 
-def _frame(t, e, d, k, q) -> pd.DataFrame:
+def _frame(out: list[tuple]) -> pd.DataFrame:
+    t, e, d, k, q = (list(c) for c in zip(*out)) if out else ([], [], [], [], [])
     return pd.DataFrame({
         "tranche_idx": np.asarray(t, dtype=np.int64),
         "event_idx": np.asarray(e, dtype=np.int64),

@@ -11,7 +11,7 @@ import pandas as pd
 from grantval.errors import LedgerError, Problem
 from grantval.io.ledger_files import read_ledger_files
 from grantval.io.tables import RawTable
-from grantval.ledger import validate as v
+import grantval.ledger.validate as v
 from grantval.ledger.events import apply_events
 from grantval.ledger.model import Ledger
 from grantval.ledger.parse import parse_table

@@ -18,6 +18,7 @@ from grantval.attribution.inputs import ExpenseInputs
 from grantval.measurement.fairvalue import FairValues
 from grantval.ledger.model import Ledger
 from grantval.policy import Policy
+from grantval.awards.registry import in_group
 
 
 @dataclass
@@ -41,7 +42,7 @@ class _Tranches:
         g, tr, ch = ledger.grants, ledger.tranches, ledger.changes
         gi = tr["grant_idx"].to_numpy()
         self.gi = gi
-        self.option = (g["award_type"].to_numpy() == "option")[gi]
+        self.option = in_group(g["award_type"].to_numpy(), "options")[gi]
         self.qty = tr["quantity"].to_numpy(np.int64)
         self.vest = tr["vest_date"].to_numpy("datetime64[D]")
         self.grant_date = g["grant_date"].to_numpy("datetime64[D]")[gi]
@@ -85,22 +86,16 @@ def _wavg(values, weights) -> float:
     return float(np.sum(np.asarray(values, float) * w) / total) if total > 0 else float("nan")
 
 
-def compute_disclosure(ledger: Ledger, fv: FairValues, inp: ExpenseInputs, policy: Policy, start, through,
-                       share_price: float | None = None) -> Disclosure:
-    """Option and RSU activity from ``start`` through ``through`` and the window's grant figures."""
-    start = np.datetime64(start, "D")
-    through = np.datetime64(through, "D")
+def _option_activity(T: _Tranches, m, start, through, share_price):
+    """Option roll-forward lines, the end-balance tie, and the per-tranche flows the other tables reuse."""
     before = start - DAY
-    T = _Tranches(ledger, fv)
-    opt, rsu = T.option, ~T.option
+    opt = T.option
     out0, out1 = T.outstanding(before), T.outstanding(through)
     granted = np.where((T.grant_date >= start) & (T.grant_date <= through), T.qty, 0)
     exercised = T.moved(("exercise",), start, through)
     forfeited = T.moved(("forfeit", "cancel"), start, through)
     expired = T.moved(("expire",), start, through)
     exercisable = np.where(T.vest <= through, out1, 0)
-
-    m = measure(inp, through, attribution=policy.attribution, forfeitures=policy.forfeitures)
     ratio = np.where(m.outstanding > 0, m.n_expensed / np.where(m.outstanding > 0, m.outstanding, 1), 0.0)
     expected = np.where(T.vest <= through, out1, out1 * np.minimum(ratio, 1.0))
 
@@ -113,51 +108,56 @@ def compute_disclosure(ledger: Ledger, fv: FairValues, inp: ExpenseInputs, polic
             return float("nan")
         return float(np.sum(q[opt] * np.maximum(share_price - T.strike[opt], 0.0)))
 
-    k = T.strike
+    nan = float("nan")
     lines = [
-        ("Outstanding at start", out0, term(before, out0), float("nan")),
-        ("Granted", granted, float("nan"), float("nan")),
-        ("Exercised", exercised, float("nan"), float("nan")),
-        ("Forfeited or cancelled", forfeited, float("nan"), float("nan")),
-        ("Expired", expired, float("nan"), float("nan")),
-        ("Outstanding at end", out1, term(through, out1), intrinsic(out1)),
+        ("Outstanding at start", out0, term(before, out0), nan), ("Granted", granted, nan, nan),
+        ("Exercised", exercised, nan, nan), ("Forfeited or cancelled", forfeited, nan, nan),
+        ("Expired", expired, nan, nan), ("Outstanding at end", out1, term(through, out1), intrinsic(out1)),
         ("Exercisable at end", exercisable, term(through, exercisable), intrinsic(exercisable)),
         ("Vested and expected to vest at end", expected, term(through, expected), intrinsic(expected)),
     ]
-    options = pd.DataFrame({
+    frame = pd.DataFrame({
         "line": [x[0] for x in lines],
         "number": [float(np.sum(x[1][opt])) for x in lines],
-        "weighted_average_exercise_price": [_wavg(k[opt], x[1][opt]) for x in lines],
+        "weighted_average_exercise_price": [_wavg(T.strike[opt], x[1][opt]) for x in lines],
         "weighted_average_remaining_term_years": [x[2] for x in lines],
         "aggregate_intrinsic_value": [x[3] for x in lines],
     })
-    option_tie = (int(np.sum((out0 + granted - exercised - forfeited - expired)[opt])), int(np.sum(out1[opt])))
+    tie = (int(np.sum((out0 + granted - exercised - forfeited - expired)[opt])), int(np.sum(out1[opt])))
+    return frame, tie, granted, forfeited
 
-    # RSUs: nonvested units
+
+def _unit_activity(T: _Tranches, granted, forfeited, start, through):
+    """Nonvested-unit roll-forward, its tie, and the units vested in the window per tranche."""
+    units = ~T.option
+
     def nonvested(d):
         removed = T.moved(("forfeit", "cancel"), np.datetime64("1900-01-01"), d)
         return np.where((T.grant_date <= d) & (T.vest > d), T.qty - removed, 0)
 
-    nv0, nv1 = nonvested(before), nonvested(through)
+    nv0, nv1 = nonvested(start - DAY), nonvested(through)
     vest_in = (T.vest >= start) & (T.vest <= through) & (T.grant_date <= through)
     vested_q = np.where(vest_in, T.qty - T.removed_before_vest(), 0)
-    rlines = [("Nonvested at start", nv0), ("Granted", granted), ("Vested", vested_q),
-              ("Forfeited", forfeited), ("Nonvested at end", nv1)]
-    rsus = pd.DataFrame({
-        "line": [x[0] for x in rlines],
-        "number": [float(np.sum(x[1][rsu])) for x in rlines],
-        "weighted_average_grant_date_fair_value": [_wavg(T.fv[rsu], x[1][rsu]) for x in rlines],
+    lines = [("Nonvested at start", nv0), ("Granted", granted), ("Vested", vested_q),
+             ("Forfeited", forfeited), ("Nonvested at end", nv1)]
+    frame = pd.DataFrame({
+        "line": [x[0] for x in lines],
+        "number": [float(np.sum(x[1][units])) for x in lines],
+        "weighted_average_grant_date_fair_value": [_wavg(T.fv[units], x[1][units]) for x in lines],
     })
-    rsu_tie = (int(np.sum((nv0 + granted - vested_q - forfeited)[rsu])), int(np.sum(nv1[rsu])))
+    tie = (int(np.sum((nv0 + granted - vested_q - forfeited)[units])), int(np.sum(nv1[units])))
+    return frame, tie, vested_q
 
-    # awards granted in the window
+
+def _granted_figures(ledger: Ledger, fv: FairValues, start, through) -> list[tuple[str, float]]:
+    """Number and weighted-average values of the awards granted in the window, and BSM assumption ranges."""
     g = ledger.grants
     award = g["award_type"].to_numpy()
     gq = g["quantity"].to_numpy(float)
     gd = g["grant_date"].to_numpy("datetime64[D]")
     g_in = (gd >= start) & (gd <= through)
     items: list[tuple[str, float]] = []
-    for label, mask in (("options", (award == "option") & g_in), ("RSUs", (award == "rsu") & g_in)):
+    for label, mask in (("options", in_group(award, "options") & g_in), ("RSUs", in_group(award, "units") & g_in)):
         items.append((f"{label} granted: number", float(gq[mask].sum())))
         items.append((f"{label} granted: weighted-average grant-date fair value",
                       _wavg(fv.grant_value[mask], gq[mask])))
@@ -171,21 +171,41 @@ def compute_disclosure(ledger: Ledger, fv: FairValues, inp: ExpenseInputs, polic
         items.append((f"BSM options granted: weighted-average {name}", _wavg(vals, w)))
         items.append((f"BSM options granted: lowest {name}", float(np.min(vals)) if vals.size else float("nan")))
         items.append((f"BSM options granted: highest {name}", float(np.max(vals)) if vals.size else float("nan")))
+    return items
+
+
+def _window_figures(ledger: Ledger, T: _Tranches, inp: ExpenseInputs, m, vested_q, start, through):
+    """Intrinsic value of exercises, fair value vested and unrecognised cost."""
     ev = ledger.events
     ex = (T.c_kind == "exercise") & (T.c_date >= start) & (T.c_date <= through)
     ev_price = ev["share_price"].to_numpy(float)[T.c_event[ex]] if len(ev) else np.zeros(0)
     gain = (ev_price - T.strike[T.c_t[ex]]) * T.c_qty[ex]
-    items.append(("Total intrinsic value of options exercised", float(np.nansum(np.maximum(gain, 0.0)))))
-    items.append(("Options exercised without an event share price (not in the intrinsic value)",
-                  float(np.sum(T.c_qty[ex][np.isnan(ev_price)]))))
     vest_value = vested_q * T.fv
-    items.append(("Total grant-date fair value of options vested", float(np.sum(vest_value[opt]))))
-    items.append(("Total grant-date fair value of RSUs vested", float(np.sum(vest_value[rsu]))))
     unrec = m.unrecognised
     granted_g = inp.grant_date <= through
     total_unrec = float(np.sum(unrec[granted_g]))
-    items.append(("Unrecognised cost at end", total_unrec))
-    items.append(("Weighted-average remaining recognition period (years)",
-                  _wavg(m.remaining_years[granted_g], unrec[granted_g]) if total_unrec > 0 else 0.0))
+    return [
+        ("Total intrinsic value of options exercised", float(np.nansum(np.maximum(gain, 0.0)))),
+        ("Options exercised without an event share price (not in the intrinsic value)",
+         float(np.sum(T.c_qty[ex][np.isnan(ev_price)]))),
+        ("Total grant-date fair value of options vested", float(np.sum(vest_value[T.option]))),
+        ("Total grant-date fair value of RSUs vested", float(np.sum(vest_value[~T.option]))),
+        ("Unrecognised cost at end", total_unrec),
+        ("Weighted-average remaining recognition period (years)",
+         _wavg(m.remaining_years[granted_g], unrec[granted_g]) if total_unrec > 0 else 0.0),
+    ]
+
+
+def compute_disclosure(ledger: Ledger, fv: FairValues, inp: ExpenseInputs, policy: Policy, start, through,
+                       share_price: float | None = None) -> Disclosure:
+    """Option and RSU activity from ``start`` through ``through`` and the window's grant figures."""
+    start = np.datetime64(start, "D")
+    through = np.datetime64(through, "D")
+    T = _Tranches(ledger, fv)
+    m = measure(inp, through, attribution=policy.attribution, forfeitures=policy.forfeitures)
+    options, option_tie, granted, forfeited = _option_activity(T, m, start, through, share_price)
+    rsus, rsu_tie, vested_q = _unit_activity(T, granted, forfeited, start, through)
+    items = _granted_figures(ledger, fv, start, through) + _window_figures(ledger, T, inp, m, vested_q, start,
+                                                                             through)
     grants = pd.DataFrame({"item": [i for i, _ in items], "value": [v for _, v in items]})
     return Disclosure(options, rsus, grants, option_tie, rsu_tie, start, through, share_price)
