@@ -69,8 +69,8 @@ def apply_events(grants: pd.DataFrame, tranches: pd.DataFrame, events: pd.DataFr
     rows = events["_row"].to_numpy()
     for e in np.lexsort((np.arange(len(events)), dates, grant_pos)):
         gp, kind, d = grant_pos[e], kinds[e], dates[e]
-        if gp < 0 or kind is None or np.isnat(d):
-            continue
+        if gp < 0 or kind not in KINDS or np.isnat(d):
+            continue  # unknown grants are reported elsewhere; extension events are handled by their feature
         problem = _event_problem(g, gp, kind, d)
         if problem is None:
             idx = np.arange(g.t_start[gp], g.t_end[gp])

@@ -13,6 +13,7 @@ from grantval.io.ledger_files import read_ledger_files
 from grantval.io.tables import RawTable
 import grantval.ledger.validate as v
 from grantval.ledger.events import apply_events
+from grantval.ledger.extensions import LedgerParts, check_extensions
 from grantval.ledger.model import Ledger
 from grantval.ledger.parse import parse_table
 from grantval.ledger.schedule import combine_schedules, generate_tranches
@@ -140,6 +141,7 @@ def read_ledger(location, planned=None) -> tuple[Ledger | None, list[Problem]]:
 
     est = frames["estimates"]
     problems += v.check_estimates(est, g, sources["estimates"])
+    problems += check_extensions(LedgerParts(g, frames, sources, tranches, ok))
 
     pol = frames["policy"]
     policy_values, probs = policy_from_rows(list(zip(pol["_row"], pol["key"], pol["value"])), sources["policy"])
@@ -150,7 +152,7 @@ def read_ledger(location, planned=None) -> tuple[Ledger | None, list[Problem]]:
     ledger = Ledger(
         location=str(location), files=raw.files, grants=g, assumptions=a, grant_assumption=pos,
         tranches=tranches, events=ev, changes=changes, estimates=est, policy_values=policy_values,
-        sources=sources, warnings=[p for p in problems if p.severity == "warning"],
+        sources=sources, warnings=[p for p in problems if p.severity == "warning"], tables=frames,
     )
     return ledger, problems
 

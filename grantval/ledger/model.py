@@ -38,6 +38,9 @@ class Ledger:
     policy_values : dict
         Policies set in the ledger's ``policy`` table.
     warnings : list of Problem
+    tables : dict of str to DataFrame
+        Every table of the format, typed (empty when absent), including the
+        tables of the ledger extensions (:mod:`grantval.ledger.extensions`).
     """
 
     location: str
@@ -52,6 +55,7 @@ class Ledger:
     policy_values: dict
     sources: dict[str, str] = field(default_factory=dict)
     warnings: list[Problem] = field(default_factory=list)
+    tables: dict[str, pd.DataFrame] = field(default_factory=dict)
 
     @property
     def n_grants(self) -> int:

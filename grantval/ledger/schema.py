@@ -5,26 +5,9 @@ This module is the contract documented in ``docs/ledger-format.md``.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
-
 from grantval.awards.registry import AWARD_TYPES
-
-
-@dataclass(frozen=True)
-class Column:
-    """One column of a ledger table.
-
-    ``kind`` is ``text``, ``date``, ``number``, ``integer`` or ``choice``.
-    ``required`` means the column must exist and every row must fill it;
-    conditional requirements (for options only, for example) are checked in
-    :mod:`grantval.ledger.validate`.
-    """
-
-    name: str
-    kind: str
-    required: bool = False
-    choices: tuple[str, ...] = ()
-    default: object = None
+from grantval.ledger.columns import Column
+from grantval.ledger.extensions import extensions
 
 
 GRANTS = (
@@ -41,7 +24,7 @@ GRANTS = (
     Column("vest_every_months", "integer", required=True),
     Column("cliff_months", "integer", default=0),
     Column("assumption_set", "text"),
-)
+) + tuple(c for ext in extensions() for c in ext.grant_columns)
 
 ASSUMPTIONS = (
     Column("assumption_set", "text"),
@@ -63,7 +46,7 @@ TRANCHES = (
     Column("quantity", "integer", required=True),
 )
 
-EVENT_TYPES = ("exercise", "forfeit", "expire", "cancel")
+EVENT_TYPES = ("exercise", "forfeit", "expire", "cancel") + tuple(t for ext in extensions() for t in ext.event_types)
 
 EVENTS = (
     Column("grant_id", "text", required=True),
@@ -93,6 +76,8 @@ TABLES: dict[str, tuple[Column, ...]] = {
     "estimates": ESTIMATES,
     "policy": POLICY,
 }
+for _ext in extensions():
+    TABLES.update(_ext.tables)
 
 REQUIRED_TABLES = ("grants", "assumptions")
 TABLE_NAMES = tuple(TABLES)
@@ -102,4 +87,5 @@ VOLATILITY_MAX = 5.0
 RATE_MIN, RATE_MAX = -0.05, 0.50
 
 #: identifier and free-text columns: kept as text when a CSV ledger is turned into a workbook
-TEXT_COLUMNS = frozenset({"grant_id", "holder_id", "group", "assumption_set", "applies_to", "key", "value"})
+TEXT_COLUMNS = frozenset({"grant_id", "holder_id", "group", "assumption_set", "applies_to", "key", "value"}).union(
+    *(ext.text_columns for ext in extensions()))

@@ -1,0 +1,1 @@
+"""Ledger extensions of the award features (see :mod:`grantval.ledger.extensions`)."""
