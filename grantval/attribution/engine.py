@@ -113,9 +113,14 @@ class _Quantities:
     years_left_g: np.ndarray
 
 
-def _quantities(inp: ExpenseInputs, dn: int, forfeitures: str, cut: int) -> _Quantities:
-    """Everything at day number ``dn`` that does not depend on fair values."""
-    key = (dn, forfeitures, cut, inp.estimate_label)
+def _quantities(inp: ExpenseInputs, dn: int, forfeitures: str, cut: int, est_day: int | None = None) -> _Quantities:
+    """Everything at day number ``dn`` that does not depend on fair values.
+
+    Events dated after day ``cut`` are ignored; the estimates are those in force on day
+    ``est_day`` (default ``dn``).
+    """
+    est_day = dn if est_day is None else est_day
+    key = (dn, forfeitures, cut, est_day, inp.estimate_label)
     if inp.memo is not None and key in inp.memo:
         return inp.memo[key]
     pre = inp.prepared()
@@ -129,7 +134,7 @@ def _quantities(inp: ExpenseInputs, dn: int, forfeitures: str, cut: int) -> _Qua
     outstanding = inp.t_qty - forfeited - cancelled
     vested = (pre.t_vest <= dn) & granted_by
     if forfeitures == "estimate":
-        rate, frac = estimates_at(inp, np.datetime64(dn, "D"))
+        rate, frac = estimates_at(inp, np.datetime64(est_day, "D"))
         r_t, f_t = rate[inp.t_grant], frac[inp.t_grant]
         remaining = (pre.t_vest - (dn + 1)) / RATE_YEAR_DAYS
         by_rate = outstanding * np.power(1.0 - np.nan_to_num(r_t), np.maximum(remaining, 0.0))
@@ -153,7 +158,18 @@ def _quantities(inp: ExpenseInputs, dn: int, forfeitures: str, cut: int) -> _Qua
     return q
 
 
-def measure(inp: ExpenseInputs, d, *, attribution: str, forfeitures: str, events_through=None) -> Measurement:
+def _apply_hooks(inp: ExpenseInputs, Q: _Quantities, dn: int, attribution: str, cost, expected_total, unrec,
+                 remaining) -> None:
+    """Replace the cost of the grants a cost hook owns by the hook's own figures (in place)."""
+    for hook in inp.cost_hooks:
+        h = hook.cost(inp, Q, dn, attribution)
+        m = hook.grants
+        cost[m], expected_total[m] = h.grant_cost[m], h.expected_total[m]
+        unrec[m], remaining[m] = h.unrecognised[m], h.remaining_years[m]
+
+
+def measure(inp: ExpenseInputs, d, *, attribution: str, forfeitures: str, events_through=None,
+            estimates_as_of=None) -> Measurement:
     """Cumulative cost of every grant through ``d``.
 
     Parameters
@@ -165,10 +181,14 @@ def measure(inp: ExpenseInputs, d, *, attribution: str, forfeitures: str, events
     forfeitures : {"as-occur", "estimate"}
     events_through : datetime64[D], optional
         Ignore events after this date (forecasts assume no further events).
+    estimates_as_of : datetime64[D], optional
+        Use the forfeiture estimates in force on this date instead of those in force
+        on ``d`` (the bridge separates changes of estimate this way).
     """
     dn = int(np.datetime64(d, "D").astype(np.int64))
     cut = dn if events_through is None else min(dn, int(np.datetime64(events_through, "D").astype(np.int64)))
-    Q = _quantities(inp, dn, forfeitures, cut)
+    est_day = None if estimates_as_of is None else int(np.datetime64(estimates_as_of, "D").astype(np.int64))
+    Q = _quantities(inp, dn, forfeitures, cut, est_day)
     pre = inp.prepared()
     lg, lt = pre.l_grant, pre.l_tranche
     n_g = inp.n_grants
@@ -193,9 +213,12 @@ def measure(inp: ExpenseInputs, d, *, attribution: str, forfeitures: str, events
     remaining = np.where(unrec > 0, remaining, 0.0)
     expected_total = np.bincount(lg, weights=np.where(Q.granted_by[lt] & started, value, 0.0),
                                  minlength=n_g) + cancel_cost
+    cost = cost + cancel_cost
+    if inp.cost_hooks:
+        _apply_hooks(inp, Q, dn, attribution, cost, expected_total, unrec, remaining)
     n_t = len(inp.t_qty)
     return Measurement(
         n_expensed=Q.n_exp, outstanding=Q.outstanding, cancelled=Q.cancelled, elapsed=Q.elapsed[:n_t],
-        vested=Q.vested, grant_cost=cost + cancel_cost, expected_total=expected_total, unrecognised=unrec,
+        vested=Q.vested, grant_cost=cost, expected_total=expected_total, unrecognised=unrec,
         remaining_years=remaining,
     )

@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Callable
 
 import numpy as np
@@ -48,6 +48,9 @@ class ExpenseInputs:
     estimate_label: str = ""
     #: shared across runs that differ only in fair values (what-if scenarios): quantities by date
     memo: dict | None = None
+    #: award features whose cost is not the layers' (liabilities remeasured at each date, payouts in
+    #: force at each date ...): each :class:`CostHook` computes the cumulative cost of its grants
+    cost_hooks: list = field(default_factory=list)
     _prep: object = None
 
     def __post_init__(self):
@@ -64,6 +67,25 @@ class ExpenseInputs:
         if self._prep is None:
             self._prep = Prepared(self)
         return self._prep
+
+
+@dataclass
+class CostHook:
+    """A feature's own cumulative-cost rule for some grants, replacing the cost of their layers.
+
+    Attributes
+    ----------
+    grants : ndarray of bool
+        Per grant: the hook owns its cost.
+    cost : callable
+        ``cost(inputs, quantities, day_number, attribution) -> Measurement-like`` with per-grant
+        ``grant_cost``, ``expected_total``, ``unrecognised`` and ``remaining_years`` arrays (all grants;
+        only the owned entries are used).  ``quantities`` holds the engine's per-tranche quantities
+        at the date (``n_exp``, ``outstanding``, ``vested``, ...; see :mod:`grantval.attribution.engine`).
+    """
+
+    grants: np.ndarray
+    cost: Callable
 
 
 def _days(a) -> np.ndarray:

@@ -68,6 +68,9 @@ class AwardKind:
     value : callable
         ``value(context, grants) -> KindValues``: fair value per unit of the
         grants in the boolean mask ``grants`` (none of them supplied).
+    settlement : str
+        ``shares`` (equity-classified: cost credited to equity) or ``cash``
+        (liability-classified: remeasured until settled).
     """
 
     name: str
@@ -76,3 +79,4 @@ class AwardKind:
     exercisable: bool
     disclosure_group: str
     value: Callable[["ValuationContext", np.ndarray], KindValues]
+    settlement: str = "shares"
