@@ -136,11 +136,12 @@ def _quantities(inp: ExpenseInputs, dn: int, forfeitures: str, cut: int, est_day
     if forfeitures == "estimate":
         rate, frac = estimates_at(inp, np.datetime64(est_day, "D"))
         r_t, f_t = rate[inp.t_grant], frac[inp.t_grant]
-        remaining = (pre.t_vest - (dn + 1)) / RATE_YEAR_DAYS
+        remaining = (pre.t_end - (dn + 1)) / RATE_YEAR_DAYS
         by_rate = outstanding * np.power(1.0 - np.nan_to_num(r_t), np.maximum(remaining, 0.0))
         by_frac = np.minimum(f_t * inp.t_qty, outstanding)
         expected = np.where(~np.isnan(f_t), by_frac, by_rate)
-        n_exp = np.where(vested, outstanding, expected)
+        # no forfeiture is expected once the requisite service is complete (vested, or retirement eligible)
+        n_exp = np.where(vested | ((pre.t_end <= dn) & granted_by), outstanding, expected)
     else:
         n_exp = outstanding.astype(float)
     granted_g = pre.grant <= dn
@@ -159,13 +160,17 @@ def _quantities(inp: ExpenseInputs, dn: int, forfeitures: str, cut: int, est_day
 
 
 def _apply_hooks(inp: ExpenseInputs, Q: _Quantities, dn: int, attribution: str, cost, expected_total, unrec,
-                 remaining) -> None:
+                 remaining, n_expensed) -> None:
     """Replace the cost of the grants a cost hook owns by the hook's own figures (in place)."""
     for hook in inp.cost_hooks:
         h = hook.cost(inp, Q, dn, attribution)
         m = hook.grants
         cost[m], expected_total[m] = h.grant_cost[m], h.expected_total[m]
         unrec[m], remaining[m] = h.unrecognised[m], h.remaining_years[m]
+        per_tranche = getattr(h, "n_expensed", None)
+        if per_tranche is not None:
+            mt = m[inp.t_grant]
+            n_expensed[mt] = per_tranche[mt]
 
 
 def measure(inp: ExpenseInputs, d, *, attribution: str, forfeitures: str, events_through=None,
@@ -214,11 +219,13 @@ def measure(inp: ExpenseInputs, d, *, attribution: str, forfeitures: str, events
     expected_total = np.bincount(lg, weights=np.where(Q.granted_by[lt] & started, value, 0.0),
                                  minlength=n_g) + cancel_cost
     cost = cost + cancel_cost
+    n_expensed = Q.n_exp
     if inp.cost_hooks:
-        _apply_hooks(inp, Q, dn, attribution, cost, expected_total, unrec, remaining)
+        n_expensed = Q.n_exp.copy()
+        _apply_hooks(inp, Q, dn, attribution, cost, expected_total, unrec, remaining, n_expensed)
     n_t = len(inp.t_qty)
     return Measurement(
-        n_expensed=Q.n_exp, outstanding=Q.outstanding, cancelled=Q.cancelled, elapsed=Q.elapsed[:n_t],
+        n_expensed=n_expensed, outstanding=Q.outstanding, cancelled=Q.cancelled, elapsed=Q.elapsed[:n_t],
         vested=Q.vested, grant_cost=cost, expected_total=expected_total, unrecognised=unrec,
         remaining_years=remaining,
     )

@@ -39,6 +39,9 @@ class ExpenseInputs:
     est_effective: np.ndarray
     est_rate: np.ndarray
     est_fraction: np.ndarray
+    #: per tranche: last day of the requisite service (default: the vest date); earlier where a
+    #: holder becomes retirement eligible before the tranche vests
+    t_service_end: np.ndarray | None = None
     #: cost layers of every tranche; default: one grant-date layer per tranche carrying ``t_fv``
     layers: CostLayers | None = None
     #: a scenario's change to the estimates in force: ``(rate, fraction) -> (rate, fraction)``
@@ -54,6 +57,8 @@ class ExpenseInputs:
     _prep: object = None
 
     def __post_init__(self):
+        if self.t_service_end is None:
+            self.t_service_end = np.asarray(self.t_vest, dtype="datetime64[D]")
         if self.layers is None:
             gdate = np.asarray(self.grant_date, dtype="datetime64[D]")
             self.layers = grant_date_layers(self.t_fv, gdate[np.asarray(self.t_grant, dtype=np.int64)])
@@ -88,6 +93,13 @@ class CostHook:
     cost: Callable
 
 
+def _last_per_grant(t_end: np.ndarray, t_grant: np.ndarray, n_grants: int) -> np.ndarray:
+    """Per grant: the last day of service over its tranches (int64 day numbers; minimum int where none)."""
+    out = np.full(n_grants, np.iinfo(np.int64).min, dtype=np.int64)
+    np.maximum.at(out, t_grant, t_end)
+    return out
+
+
 def _days(a) -> np.ndarray:
     """Dates as int64 day numbers."""
     return np.asarray(a, dtype="datetime64[D]").astype(np.int64)
@@ -99,10 +111,11 @@ class Prepared:
     def __init__(self, inp: ExpenseInputs):
         day = _days
         self.grant = day(inp.grant_date)
-        self.last = day(inp.last_vest)
         self.t_gdate = self.grant[inp.t_grant]
         self.t_vest = day(inp.t_vest)
-        self.t_len = self.t_vest - self.t_gdate
+        self.t_end = day(inp.t_service_end)
+        self.last = _last_per_grant(self.t_end, inp.t_grant, len(self.grant)) if len(self.t_end) else day(inp.last_vest)
+        self.t_len = self.t_end - self.t_gdate
         self.g_len = self.last - self.grant
         self.c_date = day(inp.c_date)
         self.c_forfeit = inp.c_kind == "forfeit"
@@ -126,7 +139,7 @@ class Prepared:
         self.l_tranche = lay.tranche
         self.l_grant = inp.t_grant[lay.tranche]
         self.l_start = _days(lay.start)
-        self.l_len = self.t_vest[lay.tranche] - self.l_start
+        self.l_len = self.t_end[lay.tranche] - self.l_start
         keys = self.l_grant * (int(lay.set_id.max(initial=0)) + 1) + lay.set_id
         uniq, self.l_set = np.unique(keys, return_inverse=True)
         self.l_set = self.l_set.ravel()
@@ -137,15 +150,24 @@ class Prepared:
         self.set_len = self.last[self.set_grant] - self.set_start
 
 
+def hook_builders() -> list[Callable]:
+    """Builders of the features' cost hooks: ``builder(ledger, fair_values, inputs) -> CostHook | None``."""
+    from grantval.attribution import performance
+
+    return [performance.build_hook]
+
+
 def build_inputs(ledger: Ledger, fair_values: "FairValues") -> ExpenseInputs:
-    """Collect the engine's arrays from a ledger and its fair values."""
+    """Collect the engine's arrays from a ledger and its fair values, with the features' cost hooks."""
+    from grantval.attribution.service import service_end
+
     g, tr, ch, est = ledger.grants, ledger.tranches, ledger.changes, ledger.estimates
     t_grant = tr["grant_idx"].to_numpy(np.int64)
     t_vest = tr["vest_date"].to_numpy("datetime64[D]")
     last = pd.Series(t_vest).groupby(t_grant).max()
     last_vest = np.full(len(g), np.datetime64("NaT"), dtype="datetime64[D]")
     last_vest[last.index.to_numpy()] = last.to_numpy("datetime64[D]")
-    return ExpenseInputs(
+    inp = ExpenseInputs(
         grant_id=g["grant_id"].to_numpy(dtype=object),
         group=g["group"].to_numpy(dtype=object),
         grant_date=g["grant_date"].to_numpy("datetime64[D]"),
@@ -162,4 +184,7 @@ def build_inputs(ledger: Ledger, fair_values: "FairValues") -> ExpenseInputs:
         est_effective=est["effective_date"].to_numpy("datetime64[D]"),
         est_rate=est["annual_forfeiture_rate"].to_numpy(float),
         est_fraction=est["expected_vest_fraction"].to_numpy(float),
+        t_service_end=service_end(ledger, t_vest),
     )
+    inp.cost_hooks = [h for h in (b(ledger, fair_values, inp) for b in hook_builders()) if h is not None]
+    return inp

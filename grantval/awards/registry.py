@@ -17,6 +17,7 @@ from grantval.awards.base import AwardKind
 MODULES = {
     "option": "grantval.awards.option",
     "rsu": "grantval.awards.rsu",
+    "psu": "grantval.awards.psu",
 }
 
 #: the award types accepted in the grants table, in the order documented

@@ -66,7 +66,7 @@ def fair_value_table(ctx, model, term_method, award_term, t_term, tranche_value,
     else:
         rows = dict(base)
         rows["quantity"] = ctx.ledger.grants["quantity"].to_numpy(np.int64)
-        rows["expected_term_years"] = np.where(np.isin(model, ("bsm", "rsu")), award_term, np.nan)
+        rows["expected_term_years"] = np.where(np.isin(model, ("bsm", "rsu", "psu")), award_term, np.nan)
         rows["fair_value_per_unit"] = grant_value
         order = ["grant_id"]
     rows["grant_date_fair_value"] = rows["quantity"] * rows["fair_value_per_unit"]

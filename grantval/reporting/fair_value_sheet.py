@@ -49,11 +49,13 @@ def fair_value_audit(table: pd.DataFrame) -> tuple[pd.DataFrame, dict]:
             diff.append(None)
     frame["recomputed_fair_value_per_unit"] = recomputed
     frame["difference"] = diff
-    frame["fair_value_source"] = np.where(
-        table["model"].to_numpy() == "supplied", "supplied by outside valuation",
-        np.where(table["model"].to_numpy() == "lattice", "tool (lattice; inputs and steps shown)",
-                 np.where(table["model"].to_numpy() == "rsu", "tool (RSU: share price less dividends forgone)",
-                          "tool (BSM; recomputed by formula)")))
+    model = table["model"].to_numpy()
+    frame["fair_value_source"] = np.select(
+        [model == "supplied", model == "lattice", model == "rsu", model == "psu"],
+        ["supplied by outside valuation", "tool (lattice; inputs and steps shown)",
+         "tool (RSU: share price less dividends forgone)",
+         "tool (performance unit: share price less dividends forgone; payout applied in expense)"],
+        "tool (BSM; recomputed by formula)")
     assert pos["recomputed_fair_value_per_unit"] == recomputed_column(table)
     info = {"recomputed": pos["recomputed_fair_value_per_unit"], "rows": len(frame), "bsm_rows": int(bsm.sum()),
             "bsm_total": float(table["fair_value_per_unit"].to_numpy()[bsm].sum())}
