@@ -162,8 +162,10 @@ def _hidden_problems(table: RawTable, found: _SheetRead) -> list[Problem]:
     data = set(table.rows)
     rows = [r for r in found.hidden_rows if r in data]
     if rows:
-        problems.append(Problem(table.source, None, None, f"rows {_ranges(rows)} are hidden or filtered out; their "
-                                "data was read and is used like the visible rows", "warning"))
+        many = len(rows) > 1
+        problems.append(Problem(table.source, None, None, f"row{'s' if many else ''} {_ranges(rows)} "
+                                f"{'are' if many else 'is'} hidden or filtered out; the data was read and is used "
+                                "like that of the visible rows", "warning"))
     elif found.rows_hidden_by_default and data:
         problems.append(Problem(table.source, None, None, "the sheet hides rows by default (zero row height); every "
                                 "row was read", "warning"))
