@@ -50,12 +50,12 @@ def _longest_line(data: bytes) -> int:
 
 
 class _Records:
-    """``(line, cells)`` of each CSV record; a record spread over several lines (a quoted field holding
-    line breaks) is kept aside, since no ledger cell may hold a line break: it marks a stray quote."""
+    """``(line, cells)`` of each CSV record, noting the records spread over several lines (a quoted
+    field holding line breaks): ``spans`` holds (first line, last line, cells) of each."""
 
     def __init__(self, text: str):
         self.reader = csv.reader(io.StringIO(text, newline=""))
-        self.spans: list[tuple[int, int]] = []
+        self.spans: list[tuple[int, int, list[str]]] = []
         self.error: tuple[int, str] | None = None
 
     def __iter__(self):
@@ -64,19 +64,35 @@ class _Records:
             for row in self.reader:
                 start, last = last + 1, self.reader.line_num
                 if last > start and any("\n" in c or "\r" in c for c in row):
-                    self.spans.append((start, last))
-                    continue
+                    self.spans.append((start, last, row))
                 yield start, row
         except csv.Error as exc:
             self.error = (last + 1, str(exc))
+
+
+def _stray_quote(spans, table: RawTable, known: frozenset) -> tuple[int, int] | None:
+    """(first, last line) of the first multi-line record that marks an unbalanced quote, else None.
+
+    A quoted line break is accepted only in a column grantval ignores, in a
+    record with as many cells as the header; anywhere else no cell may hold
+    one, so the quote that opened it is a stray one.
+    """
+    width = len(table.headers)
+    for first, last, row in spans:
+        cols = [j for j, c in enumerate(row) if "\n" in c or "\r" in c]
+        if len(row) != width or not known or any(j >= width or table.headers[j] in known for j in cols):
+            return first, last
+    return None
 
 
 def read_csv_table(path: pathlib.Path, name: str, known: frozenset = frozenset()) -> RawTable:
     """Read one CSV file (UTF-8, with or without byte-order mark, comma-delimited).
 
     Files over the size limit, undecodable files, files holding NUL bytes and
-    files with a quoted field spanning lines (a stray quote) are refused with
-    one problem naming the file and line; the table is then marked ``fatal``.
+    files with a quoted field spanning lines in a column of ``known`` (or in a
+    record whose cell count differs from the header's: a stray quote) are
+    refused with one problem naming the file and line; the table is then
+    marked ``fatal``.
     """
     source = path.name
     size = path.stat().st_size
@@ -92,12 +108,11 @@ def read_csv_table(path: pathlib.Path, name: str, known: frozenset = frozenset()
     table = _table_from_rows(name, source, records, known, check_long=_longest_line(data) > limits.MAX_CELL_CHARS)
     if records.error is not None:
         return _refused(name, source, records.error[0], f"the file cannot be read as CSV ({records.error[1]})")
-    if records.spans:
-        first, last = records.spans[0]
-        return _refused(name, source, first,
-                        f"a quoted field opens on this line and runs to line {last}: a quote (\") is unbalanced; "
-                        "remove the stray quote or close it on the same line (no cell may hold a line break)"
-                        + (f"; {len(records.spans) - 1} more such record(s) follow" if len(records.spans) > 1 else ""))
+    stray = _stray_quote(records.spans, table, known) if records.spans else None
+    if stray is not None:
+        return _refused(name, source, stray[0],
+                        f"a quoted field opens on this line and runs to line {stray[1]}: a quote (\") is unbalanced; "
+                        "remove the stray quote or close it on the same line (no ledger cell may hold a line break)")
     if table.headers and len(table.headers) == 1 and ";" in table.original_headers[0]:
         table.problems.append(Problem(
             source, 1, None, "the file seems to use ';' as its delimiter; grantval reads comma-separated files",

@@ -39,14 +39,23 @@ def test_stray_quote_is_reported_once_at_the_row_it_opens(tmp_path, capsys):
     assert code == 1, text
     errors = [ln for ln in text.splitlines() if ln.startswith("grants.csv")]
     assert errors == ['grants.csv, row 4: a quoted field opens on this line and runs to line 63: a quote (") is '
-                      "unbalanced; remove the stray quote or close it on the same line (no cell may hold a line break)"]
+                      "unbalanced; remove the stray quote or close it on the same line (no ledger cell may hold a line break)"]
 
 
 def test_quote_left_open_to_the_end_of_the_file(tmp_path):
     path = tmp_path / "grants.csv"
     path.write_text('grant_id,holder_id\nG1,H1\nG2,"H2\nG3,H3\n')
-    t = read_csv_table(path, "grants")
+    t = read_csv_table(path, "grants", frozenset({"grant_id", "holder_id"}))
     assert t.fatal and [(p.row, "runs to line 4" in p.message) for p in t.problems] == [(3, True)]
+
+
+def test_line_break_in_an_ignored_column_is_not_a_stray_quote(tmp_path):
+    path = tmp_path / "grants.csv"
+    path.write_text('grant_id,notes,holder_id\nG1,"two\nlines",H1\nG2,,H2\n')
+    t = read_csv_table(path, "grants", frozenset({"grant_id", "holder_id"}))
+    assert not t.fatal and t.problems == [] and t.rows == [2, 4] and t.cells[0] == ["G1", "two\nlines", "H1"]
+    t = read_csv_table(path, "grants", frozenset({"grant_id", "notes", "holder_id"}))
+    assert t.fatal and t.problems[0].row == 2
 
 
 def test_quoted_commas_on_one_line_are_still_read(tmp_path):
