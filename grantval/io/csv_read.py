@@ -27,7 +27,8 @@ def _decode(data: bytes, name: str, source: str) -> str | RawTable:
     if nul >= 0:
         line = data[:nul].count(b"\n") + 1
         sample = data[:4096]
-        utf16 = len(sample) >= 4 and (sample[1::2].count(0) > len(sample) // 4 or sample[0::2].count(0) > len(sample) // 4)
+        quarter = len(sample) // 4
+        utf16 = len(sample) >= 4 and (sample[1::2].count(0) > quarter or sample[0::2].count(0) > quarter)
         what = ("it looks like UTF-16 text without a byte-order mark; save it as CSV UTF-8" if utf16
                 else "it may be a binary file, or damaged")
         return _refused(name, source, line, f"the file is not a CSV text file: it holds a NUL byte (byte {nul + 1}); "

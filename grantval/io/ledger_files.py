@@ -12,7 +12,7 @@ from grantval.io.xlsx.read import read_xlsx
 
 
 def table_key(name: str) -> str:
-    """The table a file stem or sheet name stands for: case and surrounding spaces ignored (``' Grants '`` is grants)."""
+    """The table a file stem or sheet name stands for, case and surrounding spaces ignored (``' Grants '``: grants)."""
     return normalise_header(name)
 
 
@@ -43,7 +43,7 @@ def missing_table(raw: RawLedger, name: str) -> Problem:
 
 
 def _stop_if_unreadable(raw: RawLedger) -> RawLedger:
-    """Raise when a table could not be read at all: every check after reading would be about a table that is not there."""
+    """Raise when a table could not be read at all: every later check would be about a table that is not there."""
     tables = list(raw.tables.values())
     problems = list(raw.problems) + [p for t in tables for p in t.problems]
     if any(t.fatal for t in tables) or (not raw.tables and any(p.severity == "error" for p in raw.problems)):

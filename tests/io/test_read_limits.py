@@ -92,7 +92,8 @@ def test_market_files_are_size_checked(tmp_path, monkeypatch):
     with pytest.raises(LedgerError) as info:
         derive_assumptions(prices, MARKET / "curve.csv", dates=["2026-05-15"],
                            options=MarketOptions(ticker="CRVN", lookback=2.0, expected_term=6.0))
-    assert any(p.source == "prices.csv" and "larger than the limit of 1.0 MiB" in p.message for p in info.value.problems)
+    assert any(p.source == "prices.csv" and "larger than the limit of 1.0 MiB" in p.message
+               for p in info.value.problems)
 
 
 def test_market_field_over_the_csv_field_limit_is_located(tmp_path):

@@ -14,6 +14,7 @@ import pytest
 import grantval.io.xlsx.read as R
 from grantval import api
 from grantval.cli import main
+from grantval.errors import LedgerError
 from grantval.io import limits
 from grantval.io.convert import csv_folder_to_workbook
 from grantval.io.ledger_files import missing_table, read_ledger_files
@@ -148,8 +149,8 @@ def test_array_formula_with_saved_value_is_used_with_a_warning(tmp_path):
     report = api.check(path)
     assert report.ok, report.errors
     assert [str(p) for p in report.warnings] == [
-        "sheet assumptions, row 2, dividend_yield: warning: the cell holds a formula (array formula {=0.008}); its "
-        "saved value 0.008 was used"]
+        ("sheet assumptions, row 2, dividend_yield: warning: the cell holds a formula (array formula {=0.008}); its "
+        "saved value 0.008 was used")]
     assert report.ledger.assumptions["dividend_yield"].iloc[0] == 0.008
 
 
@@ -180,8 +181,8 @@ def test_hidden_and_filtered_rows_are_named_in_a_warning(tmp_path):
     report = api.check(path)
     assert report.ok, report.errors
     assert [str(p) for p in report.warnings] == [
-        "sheet grants: warning: rows 3-4 are hidden or filtered out; the data was read and is used like that of "
-        "the visible rows"]
+        ("sheet grants: warning: rows 3-4 are hidden or filtered out; the data was read and is used like that of "
+        "the visible rows")]
     assert report.ledger.n_grants == 3
 
 
@@ -257,13 +258,10 @@ def test_unused_shared_strings_are_refused_before_loading(tmp_path, monkeypatch)
     # small-scale form of the workbook with 8 million unused shared strings (115 s, 1.35 GB before)
     monkeypatch.setattr(limits, "SHARED_STRING_SLACK", 50)
     path = _shared_strings(book(tmp_path), 500)
-    report_error = None
-    try:
+    with pytest.raises(LedgerError) as info:
         api.check(path)
-    except Exception as exc:  # LedgerError
-        report_error = exc
-    assert report_error is not None and "the workbook's shared-string table holds 501 strings but its sheets have " \
-        "only" in str(report_error)
+    assert "ledger.xlsx: the workbook's shared-string table holds 501 strings but its sheets have only" in \
+        str(info.value)
 
 
 def test_used_shared_strings_are_read(tmp_path, monkeypatch):

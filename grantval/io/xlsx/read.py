@@ -141,8 +141,8 @@ def _sheet_problems(table: RawTable, found: _SheetRead) -> list[Problem]:
         name = table.headers[col - 1] if col - 1 < len(table.headers) and table.headers[col - 1] else \
             get_column_letter(col)
         if saved is None or number < first_data:
-            problems.append(Problem(src, number, name, f"the cell holds a formula ({formula[:40]}) with no saved value; "
-                                    "enter the value itself, or open and save the workbook in Excel first"))
+            problems.append(Problem(src, number, name, f"the cell holds a formula ({formula[:40]}) with no saved "
+                                    "value; enter the value itself, or open and save the workbook in Excel first"))
         else:
             problems.append(Problem(src, number, name, f"the cell holds a formula ({formula[:40]}); its saved value "
                                     f"{saved!r} was used", "warning"))
@@ -252,7 +252,7 @@ def _read_xlsx(path: pathlib.Path, names, known: dict):
     tables: dict[str, RawTable] = {}
     try:
         wb = openpyxl.load_workbook(path, read_only=True, data_only=True)
-    except Exception as exc:  # openpyxl raises many types for damaged files
+    except Exception as exc:  # noqa: BLE001 - openpyxl raises many types for damaged files
         return {}, [Problem(path.name, None, None, f"the workbook cannot be read ({type(exc).__name__}: {exc})")], found
     try:
         for ws in wb.worksheets:
@@ -264,7 +264,7 @@ def _read_xlsx(path: pathlib.Path, names, known: dict):
             if not table.fatal:
                 table.problems += _sheet_problems(table, sheet)
             tables[key] = table
-    except Exception as exc:  # damaged or refused sheet XML (defusedxml raises on entities)
+    except Exception as exc:  # noqa: BLE001 - damaged or refused sheet XML (defusedxml raises on entities)
         return {}, [Problem(path.name, None, None, f"the workbook cannot be read ({type(exc).__name__}: {exc})")], found
     finally:
         wb.close()
