@@ -385,6 +385,16 @@ def _long_grant_id(n: int = 40_000) -> bytes:
     return _rezip(workbook(base()), edit)
 
 
+def _escaped_form_feed() -> bytes:
+    """Grant id G1 written as Excel writes a form feed in it (_x000C_; openpyxl refuses to write the character)."""
+    def edit(parts):
+        sheet = "xl/worksheets/sheet1.xml"
+        parts[sheet] = parts[sheet].replace(b"<t>G1</t>", b"<t>G_x000C_1</t>", 1)
+    return _rezip(workbook(base()), edit)
+
+
+XLSX_CASES["xlsx_escaped_form_feed_in_grant_id"] = (_escaped_form_feed(), "holds control or invisible characters",
+                                                    "sheet grants", 2, "grant_id")
 XLSX_CASES["xlsx_grant_id_longer_than_a_cell"] = (_long_grant_id(), "characters long, more than 32,767",
                                                   "sheet grants", 2, "grant_id")
 

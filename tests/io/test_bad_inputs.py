@@ -42,10 +42,10 @@ COMMANDS = {
 
 
 def test_corpus_size():
-    # README ("Robustness"): 110 rejected ledgers (87 CSV, 23 xlsx) and 7 accepted ones; an
+    # README ("Robustness"): 111 rejected ledgers (87 CSV, 24 xlsx) and 7 accepted ones; an
     # empty ACCEPTED list would otherwise leave the parametrized test below with no cases
-    assert len(REJECTED) == 110
-    assert sum((p / "ledger.xlsx").exists() for p in REJECTED) == 23
+    assert len(REJECTED) == 111
+    assert sum((p / "ledger.xlsx").exists() for p in REJECTED) == 24
     assert len(ACCEPTED) == 7
 
 

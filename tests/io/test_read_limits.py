@@ -112,3 +112,13 @@ def test_market_field_over_the_csv_field_limit_is_located(tmp_path):
                            options=MarketOptions(ticker="CRVN", lookback=2.0, expected_term=6.0))
     hits = [p for p in info.value.problems if "140,000 characters long" in p.message]
     assert [(p.source, p.row, p.column) for p in hits] == [("prices.csv", 6, "ticker")]
+
+
+def test_row_limit_is_read_when_the_ledger_is_read(tmp_path, monkeypatch, capsys):
+    # before: the limit was read once at import, so setting GRANTVAL_MAX_ROWS later had no effect
+    folder = write_ledger(tmp_path / "l", tables())
+    monkeypatch.setenv("GRANTVAL_MAX_ROWS", "2")
+    code, text = run(["check", folder], capsys)
+    assert code == 1
+    assert "grants.csv, row 4: the table has more than 2 data rows, the limit (environment variable " \
+        "GRANTVAL_MAX_ROWS); nothing beyond was read" in text

@@ -281,3 +281,14 @@ def test_oversized_workbook_message_shows_real_sizes(tmp_path, monkeypatch, caps
     code, text = run(["check", path], capsys)
     assert code == 1
     assert f"ledger.xlsx: the file is 1.5 MiB ({size:,} bytes), larger than the limit of 1.0 MiB" in text, text
+
+
+@pytest.mark.parametrize("written, read", [("G_x000C_1", "G\f1"), ("G_x005F_x000C_1", "G_x000C_1"), ("G_x1", "G_x1")])
+def test_office_escapes_are_decoded(tmp_path, written, read):
+    # ECMA-376 Part 1, 22.9.2.19 (ST_Xstring): _xHHHH_ stands for the character U+HHHH; before, the escape was
+    # read literally, so a form feed Excel wrote in an id passed every check
+    path = book(tmp_path, events=False)
+    part = sheet_part(path, "grants")
+    rezip(path, lambda parts: parts.update({part: parts[part].replace(b"<t>G1</t>", f"<t>{written}</t>".encode())}))
+    tables, problems = R.read_xlsx(path, ("grants",))
+    assert tables["grants"].cells[0][0] == read

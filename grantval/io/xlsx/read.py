@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import datetime as _dt
 import pathlib
+import re
 import zipfile
 from dataclasses import dataclass, field
 
@@ -20,7 +21,14 @@ from grantval.io.tables import RawTable, _table_from_rows, normalise_header
 from grantval.io.xlsx.safety import inspect_xlsx
 
 
+_ESCAPE = re.compile(r"_x([0-9A-Fa-f]{4})_")
+
+
 def _xlsx_cell(value):
+    if isinstance(value, str) and "_x" in value:
+        # Office's escape of characters XML cannot hold (ECMA-376 Part 1, 22.9.2.19 ST_Xstring): Excel writes
+        # a form feed as _x000C_ and a literal "_x" as _x005F_x; decoded, the ledger checks see the real text
+        return _ESCAPE.sub(lambda m: chr(int(m.group(1), 16)), value)
     if isinstance(value, _dt.datetime):
         if value.time() == _dt.time(0):
             return value.date()
