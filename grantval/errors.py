@@ -74,13 +74,25 @@ class Problem:
     severity: str = "error"
 
     def __str__(self) -> str:
-        parts = [self.source]
+        parts = [visible(self.source)]
         if self.row is not None:
             parts.append(f"row {self.row}")
         if self.column is not None:
-            parts.append(self.column)
+            parts.append(visible(self.column))
         prefix = "warning: " if self.severity == "warning" else ""
-        return f"{', '.join(parts)}: {prefix}{self.message}"
+        return f"{', '.join(parts)}: {prefix}{visible(self.message)}"
+
+
+def visible(text: str) -> str:
+    """``text`` with every character that does not print (controls, escape sequences, zero-width and
+    direction marks, spaces other than the plain one) written as a ``\\x..``/``\\u....`` escape,
+    so that a file name or cell quoted in a message cannot drive the terminal it is printed to."""
+    text = str(text)
+    if text.isprintable():
+        return text
+    return "".join(c if c.isprintable() else (f"\\x{ord(c):02x}" if ord(c) < 0x100 else
+                                              f"\\u{ord(c):04x}" if ord(c) < 0x10000 else f"\\U{ord(c):08x}")
+                   for c in text)
 
 
 class LedgerError(GrantvalError):
@@ -90,7 +102,7 @@ class LedgerError(GrantvalError):
         self.problems = list(problems)
         self.ledger = ledger
         errors = [p for p in self.problems if p.severity == "error"]
-        head = f"{ledger}: {len(errors)} problem(s) found"
+        head = f"{visible(ledger)}: {len(errors)} problem(s) found"
         super().__init__("\n".join([head] + [str(p) for p in errors]))
 
 

@@ -19,6 +19,10 @@ from grantval.ledger.schema import Column
 
 _ISO = re.compile(r"^\d{4}-\d{2}-\d{2}$")
 _NUMBER = re.compile(r"^[+-]?(\d+(\.\d*)?|\.\d+)([eE][+-]?\d+)?$")
+#: characters no cell may hold: C0 controls (tab and line breaks included), DEL, C1 controls, and the
+#: invisible format characters that make two equal-looking ids differ (zero-width space,
+#: direction marks and overrides, word joiner and invisible operators, byte-order mark)
+_FORBIDDEN = re.compile("[\x00-\x1f\x7f-\x9f\u200b\u200e\u200f\u202a-\u202e\u2060-\u2064\u2066-\u2069\ufeff]")
 
 
 def _blank(v) -> bool:
@@ -31,6 +35,20 @@ def _text(v) -> str:
     if isinstance(v, (_dt.date, _dt.datetime)):
         return v.isoformat()
     return str(v).strip()
+
+
+def _forbidden(v) -> str | None:
+    """The error words for a text cell holding control or invisible characters, else None."""
+    if not isinstance(v, str):
+        return None
+    m = _FORBIDDEN.search(v)
+    if m is None:
+        return None
+    from grantval.io.tables import invisible_characters
+
+    chars = invisible_characters("".join(dict.fromkeys(_FORBIDDEN.findall(v))))
+    return (f"holds control or invisible characters ({', '.join(chars)}; first at character {m.start() + 1}); "
+            "remove them (no cell may hold a tab, line break, escape or zero-width character)")
 
 
 def _number(v):
@@ -94,9 +112,10 @@ def _type_uniques(col: Column, uniques, blank_u) -> tuple[list, list]:
     typed, errors = [], []
     for u, is_blank in zip(uniques, blank_u):
         u = u.value if isinstance(u, _Bool) else u
-        if is_blank:
+        bad = _forbidden(u)
+        if is_blank or bad:
             typed.append(None if col.kind in ("text", "choice") else (np.nan if col.kind != "date" else np.datetime64("NaT")))
-            errors.append(None)
+            errors.append(bad)
             continue
         if col.kind == "text":
             typed.append(_text(u))

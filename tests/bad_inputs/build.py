@@ -161,6 +161,59 @@ case("utf16_encoding", t, "is not UTF-8 text", "grants.csv", None, None)
 t = base(); t["grants"] = b"\x89PNG\r\n\x1a\n\x00\x00\x00\rIHDR" + bytes(range(256))
 case("binary_file", t, "not", "grants.csv", None, None)
 
+# readers: whole files that cannot be read, while other tables (events) have rows
+def _with_events(grants):
+    t = base(events=[dict(EV)])
+    t["grants"] = grants
+    return t
+
+
+GRANTS_CSV = csv_bytes(BASE["grants"])
+t = base(events=[dict(EV)])
+t["grants"] = [["Corvane grant export"], []] + [list(t["grants"][0])] + [list(r.values()) for r in t["grants"]]
+case("header_not_first_row_with_events", t, "the header must be the first row", "grants.csv", None, None)
+t = base(); t["Grants"] = copy.deepcopy(BASE["grants"])
+case("two_files_same_table", t, "are named like the table 'grants'", None, None, None)
+lines = GRANTS_CSV.split(b"\n")
+case("nul_byte_with_events", _with_events(b"\n".join(lines[:2] + [lines[2].replace(b"H2", b"H\x002")] + lines[3:])),
+     "holds a NUL byte", "grants.csv", 3, None)
+case("cp1252_with_events", _with_events(GRANTS_CSV.replace(b"H2", "H\u20192".encode("cp1252"))),
+     "is not UTF-8 text", "grants.csv", 3, None)
+case("utf16_without_bom_with_events", _with_events(GRANTS_CSV.decode().encode("utf-16-le")),
+     "UTF-16 text without a byte-order mark", "grants.csv", 1, None)
+case("empty_grants_with_events", _with_events(b""), "the table is empty", "grants.csv", None, None)
+# control and invisible characters in text cells
+case("form_feed_in_grant_id", cell(base(), "grants", 0, "grant_id", "G\f1"), "holds control or invisible characters",
+     "grants.csv", 2, "grant_id")
+case("vertical_tab_in_holder_id", cell(base(), "grants", 1, "holder_id", "H\v2"), "holds control or invisible characters",
+     "grants.csv", 3, "holder_id")
+case("escape_sequence_in_group", cell(base(), "grants", 2, "group", "\x1b[2Jeng"), "holds control or invisible characters",
+     "grants.csv", 4, "group")
+case("tab_after_assumption_set", cell(base(), "grants", 2, "assumption_set", "lat\t"),
+     "holds control or invisible characters", "grants.csv", 4, "assumption_set")
+case("delete_in_grant_id", cell(base(), "grants", 1, "grant_id", "G2\x7f"), "holds control or invisible characters",
+     "grants.csv", 3, "grant_id")
+case("zero_width_space_in_event_grant_id", base(events=[dict(EV, grant_id="G1\u200b")]),
+     "holds control or invisible characters", "events.csv", 2, "grant_id")
+case("byte_order_mark_inside_grant_id", cell(base(), "grants", 2, "grant_id", "\ufeffG3"),
+     "holds control or invisible characters", "grants.csv", 4, "grant_id")
+# long cells: over the csv module's default field limit (131,072) and over a spreadsheet cell (32,767)
+case("field_over_csv_field_limit", cell(base(events=[dict(EV)]), "grants", 0, "holder_id", "H" * 140_000),
+     "characters long, more than 32,767", "grants.csv", 2, "holder_id")
+case("grant_id_longer_than_a_cell", cell(base(), "grants", 0, "grant_id", "G" * 40_000),
+     "characters long, more than 32,767", "grants.csv", 2, "grant_id")
+# a stray quote on row 4 of a longer table
+t = base()
+t["grants"] += [dict(r, grant_id=f"G{i + 4}") for i, r in enumerate(copy.deepcopy(BASE["grants"]))]
+data = csv_bytes(t["grants"]).split(b"\n")
+data[3] = data[3].replace(b",eng,", b',"eng,', 1)
+t["grants"] = b"\n".join(data)
+case("stray_quote", t, "a quote (\") is unbalanced", "grants.csv", 4, None)
+case("zero_width_space_in_header", base(grants=GRANTS_CSV.replace(b"grant_id", "grant\u200b_id".encode(), 1)),
+     "holds invisible characters", "grants.csv", 1, None)
+case("second_byte_order_mark", base(grants=b"\xef\xbb\xbf\xef\xbb\xbf" + GRANTS_CSV), "holds invisible characters",
+     "grants.csv", 1, None)
+
 
 def write_csv_case(folder: pathlib.Path, tables: dict) -> None:
     folder.mkdir(parents=True)
@@ -258,6 +311,94 @@ XLSX_CASES = {
 }
 
 
+def _title_row(merge: bool):
+    def edit(wb):
+        ws = wb["grants"]
+        ws.insert_rows(1)
+        ws["A1"] = "Corvane grant export"
+        if merge:
+            ws.merge_cells("A1:F1")
+    return edit
+
+
+def _array_formula(wb):
+    from openpyxl.worksheet.formula import ArrayFormula
+
+    wb["assumptions"]["F2"] = ArrayFormula("F2", "=0.008")  # written with no saved value
+
+
+def _value_in_xfd(wb):
+    wb["grants"]["XFD2"] = "stray"
+
+
+WITH_EVENTS = base(events=[dict(EV)])
+XLSX_CASES.update({
+    "xlsx_header_not_first_row_with_events": (workbook(WITH_EVENTS, _title_row(False)),
+                                              "the header must be the first row", "sheet grants", None, None),
+    "xlsx_merged_title_cell": (workbook(WITH_EVENTS, _title_row(True)), "merged cells (A1:F1)", "sheet grants",
+                               None, None),
+    "xlsx_array_formula_without_saved_value": (workbook(base(), _array_formula), "array formula", "sheet assumptions",
+                                               2, "dividend_yield"),
+    "xlsx_zero_width_space_in_grant_id": (workbook(base(), _set("grants", "A2", "G1\u200b")),
+                                          "holds control or invisible characters", "sheet grants", 2, "grant_id"),
+    "xlsx_value_in_column_xfd": (workbook(base(), _value_in_xfd), "cells beyond column", "sheet grants", None, None),
+})
+
+
+def _rezip(data: bytes, edit) -> bytes:
+    """A workbook's zip rebuilt with ``edit(parts)`` applied to its ``{name: bytes}`` parts (fixed timestamps)."""
+    src = zipfile.ZipFile(io.BytesIO(data))
+    parts = {i.filename: src.read(i.filename) for i in src.infolist()}
+    edit(parts)
+    out = io.BytesIO()
+    with zipfile.ZipFile(out, "w", zipfile.ZIP_DEFLATED) as dst:
+        for name, part in parts.items():
+            dst.writestr(zipfile.ZipInfo(name, date_time=(1980, 1, 1, 0, 0, 0)), part, zipfile.ZIP_DEFLATED)
+    return out.getvalue()
+
+
+def _unused_shared_strings(n: int = 70_000) -> bytes:
+    """The clean workbook with a shared-string table: cell A2 of grants uses its first string, ``n`` empty ones
+    are used by no cell (openpyxl itself writes inline strings)."""
+    def edit(parts):
+        sheet = "xl/worksheets/sheet1.xml"
+        parts[sheet] = parts[sheet].replace(b'<c r="A2" t="inlineStr"><is><t>G1</t></is></c>',
+                                            b'<c r="A2" t="s"><v>0</v></c>', 1)
+        parts["xl/sharedStrings.xml"] = (
+            b'<sst xmlns="http://schemas.openxmlformats.org/spreadsheetml/2006/main"><si><t>G1</t></si>'
+            + b"<si><t></t></si>" * n + b"</sst>")
+        parts["[Content_Types].xml"] = parts["[Content_Types].xml"].replace(b"</Types>", (
+            b'<Override PartName="/xl/sharedStrings.xml" ContentType="application/vnd.openxmlformats-'
+            b'officedocument.spreadsheetml.sharedStrings+xml"/></Types>'))
+        rels = "xl/_rels/workbook.xml.rels"
+        parts[rels] = parts[rels].replace(b"</Relationships>", (
+            b'<Relationship Id="rIdSst" Type="http://schemas.openxmlformats.org/officeDocument/2006/relationships/'
+            b'sharedStrings" Target="sharedStrings.xml"/></Relationships>'))
+    return _rezip(workbook(base()), edit)
+
+
+def _long_grant_id(n: int = 40_000) -> bytes:
+    """The clean workbook with grant id G1 made ``n`` characters long (openpyxl cuts what it writes at 32,767)."""
+    def edit(parts):
+        sheet = "xl/worksheets/sheet1.xml"
+        parts[sheet] = parts[sheet].replace(b"<t>G1</t>", b"<t>" + b"G" * n + b"</t>", 1)
+    return _rezip(workbook(base()), edit)
+
+
+def _escaped_form_feed() -> bytes:
+    """Grant id G1 written as Excel writes a form feed in it (_x000C_; openpyxl refuses to write the character)."""
+    def edit(parts):
+        sheet = "xl/worksheets/sheet1.xml"
+        parts[sheet] = parts[sheet].replace(b"<t>G1</t>", b"<t>G_x000C_1</t>", 1)
+    return _rezip(workbook(base()), edit)
+
+
+XLSX_CASES["xlsx_escaped_form_feed_in_grant_id"] = (_escaped_form_feed(), "holds control or invisible characters",
+                                                    "sheet grants", 2, "grant_id")
+XLSX_CASES["xlsx_grant_id_longer_than_a_cell"] = (_long_grant_id(), "characters long, more than 32,767",
+                                                  "sheet grants", 2, "grant_id")
+
+
 def _truncated() -> bytes:
     data = workbook(base())
     return data[: len(data) // 2]
@@ -283,6 +424,8 @@ def _billion_laughs() -> bytes:
 
 XLSX_CASES["xlsx_truncated_zip"] = (_truncated(), "not a complete .xlsx file", "ledger.xlsx", None, None)
 XLSX_CASES["xlsx_entity_expansion"] = (_billion_laughs(), "declares XML entities", "ledger.xlsx", None, None)
+XLSX_CASES["xlsx_unused_shared_strings"] = (_unused_shared_strings(), "shared-string table holds", "ledger.xlsx",
+                                            None, None)
 
 
 ACCEPTED = {
@@ -294,6 +437,10 @@ ACCEPTED = {
         (f / "grants.csv").read_bytes().replace(b"grant_id,holder_id", b" Grant_ID ,HOLDER_ID", 1)),
     "blank_rows_between_records": lambda f: (f / "grants.csv").write_bytes(
         (f / "grants.csv").read_bytes().replace(b"\nG2,", b"\n\n,,,\nG2,", 1)),
+    "table_file_names_in_other_case": lambda f: [(f / "grants.csv").rename(f / "Grants.csv"),
+                                                 (f / "assumptions.csv").rename(f / " ASSUMPTIONS .csv")],
+    "no_break_space_in_header": lambda f: (f / "grants.csv").write_bytes(
+        (f / "grants.csv").read_bytes().replace(b"grant_id,", "grant_id\u00a0,".encode(), 1)),
 }
 
 

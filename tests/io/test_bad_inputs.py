@@ -42,11 +42,11 @@ COMMANDS = {
 
 
 def test_corpus_size():
-    # README ("Bad input"): 85 rejected ledgers (69 CSV, 16 xlsx) and 5 accepted ones; an
+    # README ("Robustness"): 111 rejected ledgers (87 CSV, 24 xlsx) and 7 accepted ones; an
     # empty ACCEPTED list would otherwise leave the parametrized test below with no cases
-    assert len(REJECTED) == 85
-    assert sum((p / "ledger.xlsx").exists() for p in REJECTED) == 16
-    assert len(ACCEPTED) == 5
+    assert len(REJECTED) == 111
+    assert sum((p / "ledger.xlsx").exists() for p in REJECTED) == 24
+    assert len(ACCEPTED) == 7
 
 
 @pytest.mark.parametrize("case", REJECTED, ids=[p.name for p in REJECTED])

@@ -7,7 +7,7 @@ import zipfile
 from dataclasses import dataclass, field
 
 from grantval.errors import Problem
-from grantval.io.limits import MAX_UNZIPPED_BYTES
+from grantval.io import limits
 
 
 @dataclass
@@ -59,9 +59,10 @@ def inspect_xlsx(path: pathlib.Path) -> tuple[list[SheetInfo], list[Problem]]:
     with zf:
         infos = zf.infolist()
         total = sum(i.file_size for i in infos)
-        if total > MAX_UNZIPPED_BYTES:
-            return [], [Problem(src, None, None, f"the workbook unpacks to {total / 2**20:.0f} MiB, more than the limit "
-                                f"of {MAX_UNZIPPED_BYTES / 2**20:.0f} MiB")]
+        limit = limits.max_unzipped_bytes()
+        if total > limit:
+            return [], [Problem(src, None, None, f"the workbook unpacks to {limits.format_size(total)}, more than the "
+                                f"limit of {limits.format_size(limit)} (8 times GRANTVAL_MAX_FILE_MB)")]
         names = {i.filename for i in infos}
         if "xl/workbook.xml" not in names:
             return [], [Problem(src, None, None, "the file is a zip archive but not an Excel .xlsx workbook")]
@@ -72,6 +73,9 @@ def inspect_xlsx(path: pathlib.Path) -> tuple[list[SheetInfo], list[Problem]]:
                     if hit:
                         return [], [Problem(src, None, None, f"the workbook part {i.filename} declares XML entities or a "
                                             "document type; grantval refuses such files (they can expand without bound)")]
+            unused = _unused_strings(zf, infos)
+            if unused:
+                return [], [Problem(src, None, None, unused)]
             wb_xml = zf.read("xl/workbook.xml").decode("utf-8", "replace")
             rels = zf.read("xl/_rels/workbook.xml.rels").decode("utf-8", "replace") if \
                 "xl/_rels/workbook.xml.rels" in names else ""
@@ -93,6 +97,45 @@ def inspect_xlsx(path: pathlib.Path) -> tuple[list[SheetInfo], list[Problem]]:
                     info.merged = re.findall(r'<mergeCell ref="([^"]+)"', zf.read(part).decode("utf-8", "replace"))
             sheets.append(info)
     return sheets, []
+
+
+def _count_part(zf: zipfile.ZipFile, name: str, needles: tuple[bytes, ...]) -> int:
+    """How many times ``needles`` occur in one zip member, read in chunks (a needle split by a chunk end counts once)."""
+    count = 0
+    keep = max(len(n) for n in needles) - 1
+    tail = b""
+    with zf.open(name) as fh:
+        while True:
+            chunk = fh.read(_SCAN_CHUNK)
+            if not chunk:
+                break
+            data = tail + chunk
+            count += sum(data.count(n) for n in needles)
+            tail = data[-keep:] if keep else b""
+    return count
+
+
+def _unused_strings(zf: zipfile.ZipFile, infos) -> str | None:
+    """The refusal of a shared-string table far larger than the cells of the sheets could use, else None.
+
+    openpyxl loads every shared string before the first cell is read; a
+    table of millions of strings no cell refers to costs minutes and
+    gigabytes for nothing.  Counting ``<si>`` and ``<c>`` elements is one
+    streamed pass over the parts.
+    """
+    strings = [i.filename for i in infos if i.filename.lower().endswith("sharedstrings.xml")]
+    if not strings:
+        return None
+    n_strings = sum(_count_part(zf, s, (b"<si>", b"<si ")) for s in strings)
+    if n_strings <= limits.SHARED_STRING_SLACK:
+        return None
+    n_cells = sum(_count_part(zf, i.filename, (b"<c ", b"<c>")) for i in infos
+                  if i.filename.startswith("xl/worksheets/") and i.filename.endswith(".xml"))
+    if n_strings <= n_cells + limits.SHARED_STRING_SLACK:
+        return None
+    return (f"the workbook's shared-string table holds {n_strings:,} strings but its sheets have only {n_cells:,} "
+            "cells; grantval refuses such files (the unused strings cost time and memory for nothing): copy the "
+            "sheets into a new workbook and save that")
 
 
 def zlib_error():
