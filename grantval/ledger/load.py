@@ -9,7 +9,7 @@ from grantval.pricing.terms import simplified_formula
 import pandas as pd
 
 from grantval.errors import LedgerError, Problem
-from grantval.io.ledger_files import read_ledger_files
+from grantval.io.ledger_files import missing_table, read_ledger_files
 from grantval.io.tables import RawTable
 import grantval.ledger.validate as v
 from grantval.ledger.events import apply_events
@@ -79,11 +79,9 @@ def read_ledger(location, planned=None) -> tuple[Ledger | None, list[Problem]]:
     """
     raw = read_ledger_files(location, TABLE_NAMES, KNOWN_COLUMNS)
     problems: list[Problem] = list(raw.problems)
-    where = "folder" if not str(location).lower().endswith((".xlsx", ".xlsm")) else "workbook"
     for name in REQUIRED_TABLES:
         if name not in raw.tables:
-            what = f"{name}.csv" if where == "folder" else f"sheet {name}"
-            problems.append(Problem(str(location), None, None, f"the required table {what} is missing"))
+            problems.append(missing_table(raw, name))
     if any(p.severity == "error" for p in problems) and not raw.tables:
         return None, problems
 
@@ -135,7 +133,9 @@ def read_ledger(location, planned=None) -> tuple[Ledger | None, list[Problem]]:
         if k is not None:
             problems.append(Problem(sources["events"], int(r), "grant_id", f"{k!r} is not a grant in the grants table"))
     # events are only allocated for grants whose schedule is complete
-    epos = np.where((epos >= 0) & ok[np.maximum(epos, 0)], epos, -1)
+    valid = epos >= 0
+    valid[valid] = ok[epos[valid]]
+    epos = np.where(valid, epos, -1)
     changes, probs = apply_events(g, tranches, ev, epos, sources["events"])
     problems += probs
 
@@ -178,7 +178,7 @@ def read_grant_terms(location) -> tuple[list[tuple[int, float, float, bool]], li
     raw = read_ledger_files(location, ("grants", "tranches"), KNOWN_COLUMNS)
     problems = list(raw.problems)
     if "grants" not in raw.tables:
-        problems.append(Problem(str(location), None, None, "the required table grants is missing"))
+        problems.append(missing_table(raw, "grants"))
         return [], problems
     g, probs = parse_table(raw.tables["grants"], TABLES["grants"])
     problems += probs

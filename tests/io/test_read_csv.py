@@ -99,8 +99,6 @@ def test_cp1252_message_names_the_byte(tmp_path):
                                             "Windows-1252 or Latin-1 text); save it as CSV UTF-8")]
 
 
-@pytest.mark.xfail(strict=True, reason="needs the ledger/load.py fix described in the reader report: "
-                   "ok[np.maximum(epos, 0)] indexes an empty mask when the grants table has no rows")
 def test_header_only_grants_beside_events_reports_the_events(tmp_path, capsys):
     # a header-only grants table is a valid empty table (an empty ledger checks clean); with events it must
     # give "is not a grant", not an internal error (IndexError, exit 70)
@@ -110,7 +108,6 @@ def test_header_only_grants_beside_events_reports_the_events(tmp_path, capsys):
     assert code == 1 and "events.csv, row 2, grant_id: 'G1' is not a grant in the grants table" in text, text
 
 
-@pytest.mark.xfail(strict=True, reason="needs the ledger/load.py fix described in the reader report")
 def test_missing_grants_table_beside_events_lists_the_files_found(tmp_path, capsys):
     folder = write_ledger(tmp_path / "l", tables(events=EVENTS))
     (folder / "grants.csv").rename(folder / "Grant register.csv")

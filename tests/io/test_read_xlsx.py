@@ -87,7 +87,6 @@ def test_missing_grants_sheet_lists_the_sheets_found(tmp_path):
         "the required table sheet grants is missing (the sheets found: 'Grant register', 'assumptions', 'events')")
 
 
-@pytest.mark.xfail(strict=True, reason="needs the ledger/load.py fix described in the reader report")
 def test_missing_grants_sheet_beside_events_is_a_clear_error(tmp_path, capsys):
     # before: internal error (IndexError, exit 70)
     path = book(tmp_path, lambda wb: setattr(wb["grants"], "title", "Grant register"))
