@@ -156,7 +156,9 @@ def disclosure_ties(disc) -> list[CheckRow]:
         CheckRow("Option roll-forward: start + granted - exercised - forfeited - expired = end", o_a, o_b, 0,
                  o_a == o_b),
         CheckRow("RSU roll-forward: start + granted - vested - forfeited = end", r_a, r_b, 0, r_a == r_b),
-    ]
+    ] + ([CheckRow("Performance-unit roll-forward: start + granted + adjustments - vested - forfeited = end",
+                   disc.psu_tie[0], disc.psu_tie[1], 0, disc.psu_tie[0] == disc.psu_tie[1])]
+         if disc.performance_units is not None else [])
 
 
 def bsm_check(fvt, rc: str) -> CheckRow:
