@@ -43,9 +43,10 @@ class UsageError(GrantvalError):
 
     def worded(self, names: dict[str, str]) -> str:
         """The message with each named argument written as ``names`` gives it (default: its own name)."""
-        if not self.params:
-            return self.template
-        return self.template.format(**{k: names.get(k, k) for k in self.params})
+        text = self.template
+        for k in self.params:  # plain replacement: the message may quote user text holding braces
+            text = text.replace("{" + k + "}", names.get(k, k))
+        return text
 
 
 @dataclass(frozen=True)

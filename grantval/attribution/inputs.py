@@ -91,6 +91,8 @@ class CostHook:
 
     grants: np.ndarray
     cost: Callable
+    #: the feature's own data the cost depends on (a scenario may change it, e.g. the payouts in force)
+    state: object = None
 
 
 def _last_per_grant(t_end: np.ndarray, t_grant: np.ndarray, n_grants: int) -> np.ndarray:

@@ -130,4 +130,4 @@ def build_hook(ledger, fair_values, inp) -> CostHook | None:
     def cost(inp_, Q, dn, attribution):
         return _cost(inp_, A, psu, Q, dn, attribution)
 
-    return CostHook(grants=psu, cost=cost)
+    return CostHook(grants=psu, cost=cost, state=A)
