@@ -224,9 +224,13 @@ def _window_figures(ledger: Ledger, T: _Tranches, inp: ExpenseInputs, m, vested_
     ev_price = ev["share_price"].to_numpy(float)[T.c_event[ex]] if len(ev) else np.zeros(0)
     gain = (ev_price - T.strike[T.c_t[ex]]) * T.c_qty[ex]
     vest_value = vested_q * T.fv
-    unrec = m.unrecognised
+    from grantval.attribution.periods import to_cents
+
+    # the same cents as the expense run's unrecognised table: rounded expected total less rounded cost
+    unrec_cents = np.maximum(to_cents(m.expected_total) - to_cents(m.grant_cost), 0)
+    unrec = unrec_cents / 100.0
     granted_g = inp.grant_date <= through
-    total_unrec = float(np.sum(unrec[granted_g]))
+    total_unrec = float(np.sum(unrec_cents[granted_g])) / 100.0
     return [
         ("Total intrinsic value of options exercised", float(np.nansum(np.maximum(gain, 0.0)))),
         ("Options exercised without an event share price (not in the intrinsic value)",
@@ -237,6 +241,21 @@ def _window_figures(ledger: Ledger, T: _Tranches, inp: ExpenseInputs, m, vested_
         ("Weighted-average remaining recognition period (years)",
          _wavg(m.remaining_years[granted_g], unrec[granted_g]) if total_unrec > 0 else 0.0),
     ]
+
+
+def _rounded(item: str, value: float) -> float:
+    """One figure, one value: counts whole, money to cents, per-unit values to 4 places, rates to 6."""
+    if np.isnan(value):
+        return value
+    if "number" in item or item.startswith("Options exercised without"):
+        return float(np.round(value, 0))
+    if "weighted-average grant-date fair value" in item:
+        return float(np.round(value, 4))
+    if any(w in item for w in ("intrinsic value", "fair value of", "Unrecognised cost")):
+        return float(np.round(value, 2))
+    if "years" in item:
+        return float(np.round(value, 4))
+    return float(np.round(value, 6))
 
 
 def compute_disclosure(ledger: Ledger, fv: FairValues, inp: ExpenseInputs, policy: Policy, start, through,
@@ -253,5 +272,13 @@ def compute_disclosure(ledger: Ledger, fv: FairValues, inp: ExpenseInputs, polic
         start, through)
     items = _granted_figures(ledger, fv, start, through) + _window_figures(ledger, T, inp, m, vested_q, start,
                                                                              through)
-    grants = pd.DataFrame({"item": [i for i, _ in items], "value": [v for _, v in items]})
+    grants = pd.DataFrame({"item": [i for i, _ in items], "value": [_rounded(i, v) for i, v in items]})
+    options["number"] = options["number"].round(0)
+    for col, places in (("weighted_average_exercise_price", 4), ("weighted_average_remaining_term_years", 4),
+                        ("aggregate_intrinsic_value", 2)):
+        options[col] = options[col].round(places)
+    for frame in (rsus, perf):
+        if frame is not None:
+            frame["number"] = frame["number"].round(0)
+            frame["weighted_average_grant_date_fair_value"] = frame["weighted_average_grant_date_fair_value"].round(4)
     return Disclosure(options, rsus, grants, option_tie, rsu_tie, start, through, share_price, perf, psu_tie)
