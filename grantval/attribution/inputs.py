@@ -145,7 +145,7 @@ def build_inputs(ledger: Ledger, fair_values: "FairValues") -> ExpenseInputs:
     last = pd.Series(t_vest).groupby(t_grant).max()
     last_vest = np.full(len(g), np.datetime64("NaT"), dtype="datetime64[D]")
     last_vest[last.index.to_numpy()] = last.to_numpy("datetime64[D]")
-    return ExpenseInputs(
+    inp = ExpenseInputs(
         grant_id=g["grant_id"].to_numpy(dtype=object),
         group=g["group"].to_numpy(dtype=object),
         grant_date=g["grant_date"].to_numpy("datetime64[D]"),
@@ -163,3 +163,8 @@ def build_inputs(ledger: Ledger, fair_values: "FairValues") -> ExpenseInputs:
         est_rate=est["annual_forfeiture_rate"].to_numpy(float),
         est_fraction=est["expected_vest_fraction"].to_numpy(float),
     )
+    # cash-settled awards (settlement "cash"): no grant-date layer value; their cost is the liability hook's
+    from grantval.attribution.liability import install_liability_hook
+
+    install_liability_hook(inp, ledger)
+    return inp

@@ -17,6 +17,7 @@ from grantval.awards.base import AwardKind
 MODULES = {
     "option": "grantval.awards.option",
     "rsu": "grantval.awards.rsu",
+    "cash_sar": "grantval.awards.cash_sar", "cash_unit": "grantval.awards.cash_unit",
 }
 
 #: the award types accepted in the grants table, in the order documented
