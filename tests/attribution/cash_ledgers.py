@@ -82,7 +82,9 @@ def mixed_ledger(folder, **changes):
                       dividend_yield="0.01")],
         "events": [event("S1", "2031-06-30", "exercise", "300", "24"), event("U1", "2029-06-30", "forfeit", "60")],
         "liability_values": [{"applies_to": "ops", "measured_on": "2031-01-01", "fair_value": "19"},
-                             {"applies_to": "U1", "measured_on": "2030-01-01", "fair_value": "21"}],
+                             {"applies_to": "U1", "measured_on": "2030-01-01", "fair_value": "21"},
+                             {"applies_to": "eng", "measured_on": "2030-01-01", "fair_value": "6"},
+                             {"applies_to": "eng", "measured_on": "2031-01-01", "fair_value": "7"}],
     }
     data.update(changes)
     return write_ledger(folder, data)
