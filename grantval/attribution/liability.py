@@ -1,6 +1,6 @@
 """The liability engine of cash-settled awards, as a :class:`~grantval.attribution.inputs.CostHook`.
 
-Rules (IFRS 2.30-33 and IG Example 12; ASC 718-30-35-3; see docs/cash-settled.md):
+Rules (IFRS 2.30-33 and IG Example 12; ASC 718-30-35-1 to 35-3; see docs/cash-settled.md):
 
 - liability at a date d, per tranche: fair value per unit at d x units x service fraction,
   where units are those expected to vest (unvested tranches, from the estimates in force,

@@ -1,7 +1,7 @@
 """Cash-settled share appreciation rights: pay the share price less ``exercise_price`` on exercise.
 
 Terms as for options (``exercise_price``, ``expiration_date``, vesting schedule).  The
-award is a liability (IFRS 2.30-33, ASC 718-30-35-3): its fair value is remeasured at
+award is a liability (IFRS 2.30-33, ASC 718-30-35-1 to 35-3): its fair value is remeasured at
 every reporting date until it is exercised or expires (:mod:`grantval.measurement.remeasure`)
 and its cost is the liability plus the cash paid (:mod:`grantval.attribution.liability`).
 The value reported here is the grant-date fair value, on the same basis as each

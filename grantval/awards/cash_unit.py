@@ -1,6 +1,6 @@
 """Cash-settled units (phantom shares): pay the share price of the vesting date for each unit.
 
-Terms: the vesting schedule.  A liability (IFRS 2.30-33, ASC 718-30-35-3): remeasured
+Terms: the vesting schedule.  A liability (IFRS 2.30-33, ASC 718-30-35-1 to 35-3): remeasured
 at every reporting date (:mod:`grantval.measurement.remeasure`) until it settles.  Each
 tranche settles automatically on its vesting date at the share price of that date (the
 ``liability_values`` row for the date, else the ``share_price`` of the assumptions row
