@@ -109,25 +109,41 @@ class LiabilityEngine:
         k = g["exercise_price"].to_numpy(float)[self.gi[self.c_t]]
         ex = self.c_kind == "exercise"
         self.c_cash = np.where(ex, self.c_qty * np.maximum(np.nan_to_num(s) - np.nan_to_num(k), 0.0), 0.0)
+        self._price_memo: dict[int, np.ndarray] = {}
         #: forecasts: on dates after this day number, events after it are ignored and fair values held at it
         self.hold_after: int | None = None
 
     def _removed(self, cut: int, kinds: tuple[str, ...]) -> np.ndarray:
         m = np.isin(self.c_kind, kinds) & (self.c_day <= cut)
-        return np.bincount(self.c_t[m], weights=self.c_qty[m], minlength=self.n_t)
+        return np.bincount(self.c_t[m], weights=self.c_qty[m], minlength=self.n_t).astype(float)
+
+    def _prices(self, tranches: np.ndarray, days: np.ndarray) -> np.ndarray:
+        """Settlement share price of each of ``tranches`` on its day in ``days`` (looked up once per day)."""
+        out = np.empty(len(tranches))
+        for day in np.unique(days):
+            on = days == day
+            want = self.gi[tranches[on]]
+            known = self._price_memo.get(int(day))
+            if known is None or np.isnan(known[want]).any():
+                grants = np.zeros(self.n_g, dtype=bool)
+                grants[want] = True
+                got = self.values.settlement_price(np.datetime64(int(day), "D"), grants)[0]
+                known = got if known is None else np.where(np.isnan(got), known, got)
+                self._price_memo[int(day)] = known
+            out[on] = known[want]
+        return out
 
     def _cash_paid(self, dn: int, cut: int, outstanding: np.ndarray, vested: np.ndarray) -> np.ndarray:
         """Cash paid per grant through day ``dn`` (events through ``cut``)."""
         m = self.c_day <= cut
-        paid = np.bincount(self.gi[self.c_t[m]], weights=self.c_cash[m], minlength=self.n_g)
-        settled = self.unit_t & vested & (outstanding > 0)
-        for day in np.unique(self.t_vest[settled]):
-            on = settled & (self.t_vest == day)
-            price_day = int(day) if self.hold_after is None or day <= self.hold_after else self.hold_after
-            grants = np.zeros(self.n_g, dtype=bool)
-            grants[self.gi[on]] = True
-            price, _ = self.values.settlement_price(np.datetime64(price_day, "D"), grants)
-            paid += np.bincount(self.gi[on], weights=outstanding[on] * price[self.gi[on]], minlength=self.n_g)
+        paid = np.bincount(self.gi[self.c_t[m]], weights=self.c_cash[m], minlength=self.n_g).astype(float)
+        settled = np.flatnonzero(self.unit_t & vested & (outstanding > 0))
+        if settled.size:
+            days = self.t_vest[settled]
+            if self.hold_after is not None:
+                days = np.minimum(days, self.hold_after)
+            price = self._prices(settled, days)
+            paid += np.bincount(self.gi[settled], weights=outstanding[settled] * price, minlength=self.n_g)
         return paid
 
     def state(self, dn: int, n_exp, outstanding, vested, elapsed, attribution: str) -> LiabilityState:

@@ -84,6 +84,7 @@ class Remeasurer:
         self.a = a
         self.a_src = ledger.sources.get("assumptions", "assumptions")
         self._by_date = self._assumption_dates(a)
+        self._index_rows()
         self.cache: dict[int, UnitValues] = {}
 
     @staticmethod
@@ -103,17 +104,36 @@ class Remeasurer:
                     continue
         return out
 
+    def _index_rows(self) -> None:
+        """Per ``liability_values`` row: the grant, group code or ``*`` it applies to (vectorised lookups)."""
+        pos = {k: i for i, k in enumerate(self.ids)}
+        groups = sorted({k for k in self.group if k is not None})
+        gcode = {k: i for i, k in enumerate(groups)}
+        self.n_groups = len(groups)
+        self.g_code = np.array([gcode.get(k, -1) for k in self.group], dtype=np.int64)
+        self.lv_grant = np.array([pos.get(k, -1) for k in self.lv_key], dtype=np.int64)
+        self.lv_group = np.array([gcode.get(k, -1) if k not in pos else -1 for k in self.lv_key], dtype=np.int64)
+        self.lv_star = np.array([k == "*" for k in self.lv_key], dtype=bool)
+        self.lv_label = np.array([f"{self.lv_src} row {r}" for r in self.lv_row], dtype=object)
+
     def _liability_row(self, dn: int, grants: np.ndarray) -> np.ndarray:
         """Per grant: the most specific ``liability_values`` row measured on day ``dn`` (-1: none)."""
         found = np.full(len(self.ids), -1, dtype=np.int64)
         on_day = np.flatnonzero(self.lv_day == dn)
         if not on_day.size:
             return found
-        keys = {self.lv_key[j]: j for j in on_day}
-        for level in (self.ids, self.group, np.full(len(self.ids), "*", dtype=object)):
-            hit = np.array([keys.get(k, -1) for k in level], dtype=np.int64)
-            found = np.where((found < 0) & grants, hit, found)
-        return found
+        by_grant = on_day[self.lv_grant[on_day] >= 0]
+        found[self.lv_grant[by_grant]] = by_grant
+        by_group = on_day[self.lv_group[on_day] >= 0]
+        if by_group.size:
+            group_row = np.full(self.n_groups, -1, dtype=np.int64)
+            group_row[self.lv_group[by_group]] = by_group
+            hit = np.where(self.g_code >= 0, group_row[np.maximum(self.g_code, 0)], -1)
+            found = np.where(found < 0, hit, found)
+        star = on_day[self.lv_star[on_day]]
+        if star.size:
+            found = np.where(found < 0, star[-1], found)
+        return np.where(grants, found, -1)
 
     def _missing(self, dn: int, grants: np.ndarray) -> LedgerError:
         d = str(np.datetime64(dn, "D"))
@@ -147,7 +167,7 @@ class Remeasurer:
         given = row >= 0
         gt = given[self.gi]
         out.tranche_value[gt] = self.lv_value[row[self.gi][gt]]
-        out.method[given] = [f"{self.lv_src} row {self.lv_row[j]}" for j in row[given]]
+        out.method[given] = self.lv_label[row[given]]
         rest = todo & ~given
         if rest.any():
             j = self._by_date.get(dn)
@@ -214,7 +234,7 @@ class Remeasurer:
         row = self._liability_row(dn, grants)
         given = row >= 0
         price[given] = self.lv_value[row[given]]
-        method[given] = [f"{self.lv_src} row {self.lv_row[j]}" for j in row[given]]
+        method[given] = self.lv_label[row[given]]
         rest = grants & ~given
         if rest.any():
             j = self._by_date.get(dn)

@@ -205,3 +205,22 @@ def test_lattice_remeasurement_over_the_remaining_term(tmp_path):
     want = lattice_value(21, 20, left, 0.03, 0.3, 0.0, vesting=vest, exercise_multiple=2.0, exit_rate=0.05)
     assert got.tranche_value[t] == pytest.approx(want, rel=1e-12)
     assert got.method[s].startswith("lattice, remaining contractual term")
+
+
+def test_cash_units_with_no_events_at_all(tmp_path):
+    # regression: no event of any cash grant (empty allocations); liability then settlement (closed form)
+    from tests.attribution.cash_ledgers import assumption, grant
+    from tests.factory import write_ledger
+    data = {"grants": [grant(grant_id="U", award_type="cash_unit", quantity="100", vest_months="12",
+                             vest_every_months="12")],
+            "assumptions": [assumption(grant_date="2029-01-01", share_price="10"),
+                            assumption(assumption_set="2029-03-31", share_price="11"),
+                            assumption(assumption_set="2029-06-30", share_price="12"),
+                            assumption(assumption_set="2029-09-30", share_price="12.5"),
+                            assumption(assumption_set="2029-12-31", share_price="13"),
+                            assumption(assumption_set="2030-01-01", share_price="14")]}
+    run = api.expense(write_ledger(tmp_path / "l", data), through="2030-06-30", start="2029-01-01", period="quarter")
+    table = LT.liability_table(run).set_index("period_end")
+    assert table.loc[np.datetime64("2029-06-30"), "liability"] == round(100 * 12 * 181 / 365, 2)
+    assert table.loc[np.datetime64("2030-03-31"), "cash_paid"] == 1400.0
+    assert run.schedule.expense_cents.sum() == 140_000
