@@ -113,8 +113,13 @@ class LiabilityEngine:
         #: forecasts: on dates after this day number, events after it are ignored and fair values held at it
         self.hold_after: int | None = None
 
-    def _removed(self, cut: int, kinds: tuple[str, ...]) -> np.ndarray:
-        m = np.isin(self.c_kind, kinds) & (self.c_day <= cut)
+    def _removed(self, cut: int) -> np.ndarray:
+        """Vested units per tranche exercised, expired or cancelled through day ``cut``.
+
+        (The engine's ``outstanding`` already excludes forfeits and cancels of unvested units.)
+        """
+        vested_cancel = (self.c_kind == "cancel") & (self.c_day >= self.t_vest[self.c_t])
+        m = (np.isin(self.c_kind, ("exercise", "expire")) | vested_cancel) & (self.c_day <= cut)
         return np.bincount(self.c_t[m], weights=self.c_qty[m], minlength=self.n_t).astype(float)
 
     def _prices(self, tranches: np.ndarray, days: np.ndarray) -> np.ndarray:
@@ -156,7 +161,7 @@ class LiabilityEngine:
         held = self.hold_after is not None and dn > self.hold_after
         cut = self.hold_after if held else dn
         outstanding = np.asarray(outstanding, dtype=float)
-        left = outstanding - self._removed(cut, ("exercise", "expire"))
+        left = outstanding - self._removed(cut)
         live = self.cash_t & (self.grant_day[self.gi] <= dn) & (dn < self.expiry_day[self.gi])
         units = np.where(vested, np.where(self.unit_t, 0.0, left), np.asarray(n_exp, dtype=float))
         units = np.where(live, np.maximum(units, 0.0), 0.0)

@@ -20,6 +20,7 @@ date with a value (a mid-period date, say) is an error unless it is after the
 
 from __future__ import annotations
 
+import re
 from dataclasses import dataclass
 
 import numpy as np
@@ -28,6 +29,9 @@ from grantval.dates import DAYS_PER_YEAR
 from grantval.errors import LedgerError, Problem
 from grantval.ledger.model import Ledger
 from grantval.pricing import DEFAULT_STEPS, bsm_value, lattice_value, rsu_value
+
+
+_ISO = re.compile(r"^\d{4}-\d{2}-\d{2}$")
 
 
 @dataclass
@@ -94,10 +98,10 @@ class Remeasurer:
         names = a["assumption_set"].to_numpy(dtype=object)
         dates = a["grant_date"].to_numpy("datetime64[D]")
         for i, (name, d) in enumerate(zip(names, dates)):
-            if name is None and not np.isnat(d):
+            if not isinstance(name, str) and not np.isnat(d):  # blank set names may be None or NaN
                 out.setdefault(_day(d), i)
         for i, name in enumerate(names):
-            if isinstance(name, str):
+            if isinstance(name, str) and _ISO.match(name.strip()):
                 try:
                     out[_day(np.datetime64(name.strip(), "D"))] = i
                 except ValueError:

@@ -224,3 +224,14 @@ def test_cash_units_with_no_events_at_all(tmp_path):
     assert table.loc[np.datetime64("2029-06-30"), "liability"] == round(100 * 12 * 181 / 365, 2)
     assert table.loc[np.datetime64("2030-03-31"), "cash_paid"] == 1400.0
     assert run.schedule.expense_cents.sum() == 140_000
+
+
+def test_cancelling_vested_rights_releases_their_liability(tmp_path):
+    # common practice: cancelled rights without payment leave the liability (no cash is recorded)
+    events = [event("SAR", "2029-12-31", "forfeit", "3500"), event("SAR", "2030-12-31", "forfeit", "4000"),
+              event("SAR", "2031-12-31", "forfeit", "2200"), event("SAR", "2032-01-01", "exercise", "15000", "25"),
+              event("SAR", "2032-06-30", "cancel", "5300"), event("SAR", "2033-01-01", "exercise", "14000", "30")]
+    run = api.expense(ifrs_example_12(tmp_path / "l", events=events), through="2030-12-31", period="year")
+    (s, _), = _states(run, ["2033-01-01"])
+    # 25,300 rights left after the year-3 exercise, 5,300 cancelled, 14,000 exercised: 6,000 at 21.40
+    assert s.units[0] == 6_000 and s.liability[0] == pytest.approx(6_000 * 21.40)

@@ -140,3 +140,14 @@ def test_supplied_fair_value_in_a_dated_assumptions_row(tmp_path):
 def test_ifrs_example_ledger_is_clean(tmp_path):
     report = api.check(ifrs_example_12(tmp_path / "l"))
     assert report.ok and not report.warnings, [str(p) for p in report.problems]
+
+
+def test_only_iso_set_names_are_dates(tmp_path):
+    # an assumption_set named "2029" is a name, not 2029-01-01
+    from grantval.measurement.remeasure import Remeasurer
+    rows = [assumption(grant_date="2029-01-01", share_price="20", volatility="0.35", risk_free_rate="0.03"),
+            assumption(assumption_set="2029", share_price="22", volatility="0.35", risk_free_rate="0.03")]
+    from grantval.ledger import load_ledger
+    ledger = load_ledger(mixed_ledger(tmp_path / "l", assumptions=rows))
+    dates = Remeasurer(ledger)._by_date
+    assert list(dates) == [int(np.datetime64("2029-01-01").astype(np.int64))] and dates[list(dates)[0]] == 0
