@@ -235,3 +235,18 @@ def test_cancelling_vested_rights_releases_their_liability(tmp_path):
     (s, _), = _states(run, ["2033-01-01"])
     # 25,300 rights left after the year-3 exercise, 5,300 cancelled, 14,000 exercised: 6,000 at 21.40
     assert s.units[0] == 6_000 and s.liability[0] == pytest.approx(6_000 * 21.40)
+
+
+def test_sheets_write_to_a_workbook_and_csv(tmp_path):
+    import openpyxl
+
+    from grantval.io.csv import write_csv
+    from grantval.io.xlsx.write import write_workbook
+    run = api.expense(mixed_ledger(tmp_path / "l"), through="2032-12-31", period="year")
+    path = tmp_path / "out.xlsx"
+    write_workbook(path, LT.liability_sheets(run))
+    ws = openpyxl.load_workbook(path)["liability_rollforward"]
+    assert ws["F2"].value == "=B2+C2-D2"
+    write_csv(tmp_path / "liabilities.csv", LT.liability_table(run), money=("liability", "cash_paid"))
+    lines = (tmp_path / "liabilities.csv").read_text().splitlines()
+    assert lines[0] == ",".join(LT.COLUMNS) and len(lines) == 9
