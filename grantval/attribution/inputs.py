@@ -189,4 +189,8 @@ def build_inputs(ledger: Ledger, fair_values: "FairValues") -> ExpenseInputs:
         t_service_end=service_end(ledger, t_vest),
     )
     inp.cost_hooks = [h for h in (b(ledger, fair_values, inp) for b in hook_builders()) if h is not None]
+    # cash-settled awards (settlement "cash"): no grant-date layer value; their cost is the liability hook's
+    from grantval.attribution.liability import install_liability_hook
+
+    install_liability_hook(inp, ledger)
     return inp

@@ -18,6 +18,8 @@ MODULES = {
     "option": "grantval.awards.option",
     "rsu": "grantval.awards.rsu",
     "psu": "grantval.awards.psu",
+    "cash_sar": "grantval.awards.cash_sar",
+    "cash_unit": "grantval.awards.cash_unit",
 }
 
 #: the award types accepted in the grants table, in the order documented

@@ -23,6 +23,7 @@ if TYPE_CHECKING:  # pragma: no cover
 #: feature modules, each defining ``EXTENSION``
 MODULES: tuple[str, ...] = (
     "grantval.ledger.ext.performance",
+    "grantval.ledger.ext.cash",
 )
 
 
