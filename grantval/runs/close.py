@@ -453,3 +453,61 @@ def export_register(register, folder) -> list[pathlib.Path]:
     """Write the register's tables as CSV files into ``folder``."""
     with R.open_register(register, readonly=True) as reg:
         return reg.export(folder)
+
+
+# ------------------------------------------------------- expense beside the register
+
+
+@dataclass
+class RegisterComparison:
+    """The recomputed schedule beside what the register booked, per closed period.
+
+    Attributes
+    ----------
+    table : DataFrame
+        period_end, booked (catch-up included), catch_up, recomputed,
+        difference (recomputed - booked), cumulative_difference: currency, one
+        row per closed period of the schedule.
+    warnings : list of str
+        Closed periods whose recomputed amount differs from the amount booked,
+        and the catch-up the next close would book.
+    """
+
+    table: pd.DataFrame
+    warnings: list
+
+
+def compare_with_register(run: ExpenseRun, register) -> RegisterComparison:
+    """What was booked in each closed period against the recomputed schedule of ``run``.
+
+    The cumulative difference at the last closed period end is the catch-up
+    the next close books (for the grants of the run's ledger).
+    """
+    with R.open_register(register, readonly=True) as reg:
+        rows = reg.booked()
+        last = reg.last_close()
+        first_active = next((c for c in reg.closes() if c.status == "booked"), None)
+    sched = run.schedule
+    ends = np.asarray(sched.period_ends, dtype="datetime64[D]")
+    closed = ends[ends <= np.datetime64(last.through, "D")] if last is not None else ends[:0]
+    pe = rows["period_end"].to_numpy("datetime64[D]")
+    opening = sum(int(v) for v in (first_active.options.get(OPENING_KEY, {}) if first_active else {}).values())
+    recs, warnings, changed = [], [], []
+    cum_diff = int(sched.opening_cents.sum()) - opening - int(rows.loc[pe < ends[0], "booked_cents"].sum())
+    for e in closed:
+        k = int(np.flatnonzero(ends == e)[0])
+        b = int(rows.loc[pe == e, "booked_cents"].sum())
+        c = int(rows.loc[pe == e, "catch_up_cents"].sum())
+        r = int(sched.expense_cents[:, k].sum())
+        cum_diff += r - b
+        recs.append((e, b / 100.0, c / 100.0, (b - c) / 100.0, r / 100.0, (r - b + c) / 100.0, cum_diff / 100.0))
+        if r != b - c:
+            changed.append(f"the closed period ending {e} would change: recomputed {r / 100.0:,.2f}, booked for "
+                           f"the period {(b - c) / 100.0:,.2f} (difference {(r - b + c) / 100.0:,.2f})")
+    table = pd.DataFrame(recs, columns=["period_end", "booked", "catch_up", "booked_for_the_period", "recomputed",
+                                        "difference", "cumulative_difference"])
+    if len(closed) and cum_diff:  # differences already caught up by a later close are shown, not warned of
+        warnings = changed + [f"cumulative cost recomputed through {closed[-1]} differs from the cumulative amount "
+                              f"booked by {cum_diff / 100.0:,.2f}: the next close books it as a catch-up in its "
+                              f"first period (closed periods stay as booked)"]
+    return RegisterComparison(table, warnings)
