@@ -405,3 +405,31 @@ def test_concurrent_closes_of_the_same_quarter_book_it_once(tmp_path):
     assert second.returncode == 1 and "already closed: close 1" in err2
     closes, _ = C.register_closes(reg)
     assert [c.close_id for c in closes] == [1]
+
+
+def test_close_workbook_checks_recalculate_to_pass_in_a_spreadsheet(tmp_path):
+    """LibreOffice (headless) recalculates the checks sheet's live formulas: every Status is PASS and
+    figure A equals the tool's figure (same helper as tests/io/test_recalculation.py)."""
+    from tests.io.test_recalculation import ERRORS, SOFFICE, recalculate
+
+    if SOFFICE is None:
+        pytest.skip("LibreOffice is not installed")
+    reg = tmp_path / "r.gvreg"
+    C.close(SAMPLE, register=reg, through="2025-12-31")
+    led = tmp_path / "l"
+    import shutil
+
+    shutil.copytree(SAMPLE, led)
+    with open(led / "events.csv", "a") as fh:
+        fh.write("CV-0030,2025-11-20,forfeit,,\n")  # a late forfeiture: a catch-up in 2026 Q1
+    res = C.close(led, register=reg, through="2026-06-30", xlsx=tmp_path / "c.xlsx", timestamp=False)
+    book = openpyxl.load_workbook(recalculate(tmp_path / "c.xlsx", tmp_path), data_only=True)
+    rows = list(book["checks"].iter_rows(min_row=2, values_only=True))
+    assert len(rows) == len(res.checks)
+    for (name, a, b, diff, tol, status, verdict), check in zip(rows, res.checks):
+        assert not any(str(v).startswith(ERRORS) for v in (a, b, diff, status)), name
+        assert status == "PASS" and verdict == "PASS", (name, a, b)
+    bridge = list(book["bridge"].iter_rows(min_row=2, values_only=True))
+    sums = [r[2] for r in bridge if str(r[1]).startswith("Booked expense of the period")]
+    per = res.plan.rows.groupby("period_end")["booked_cents"].sum().to_numpy() / 100
+    assert np.allclose(sums, per, atol=0.005)
