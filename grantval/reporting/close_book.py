@@ -7,7 +7,6 @@ import pathlib
 import numpy as np
 import pandas as pd
 
-from grantval.io.cells import col_letter
 from grantval.io.xlsx.sheet import Formula, Sheet
 from grantval.reporting import bridge as B
 from grantval.reporting.checks import CheckRow, checks_sheet

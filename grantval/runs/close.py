@@ -321,6 +321,17 @@ def _read_back_check(reg: R.Register, close_id: int, plan: ClosePlan):
                     bool(same))
 
 
+def _policy_warnings(plan: ClosePlan) -> list[str]:
+    """A policy that differs from the previous close's: its cumulative effect is in the catch-up."""
+    if plan.previous is None:
+        return []
+    now = dataclasses.asdict(plan.run.policy)
+    return [f"the {k.replace('_', ' ')} policy is {now[k]} but close {plan.previous.close_id} used "
+            f"{plan.previous.policies.get(k)}: the cumulative effect is booked as a catch-up in this close; a change "
+            f"of accounting principle is applied retrospectively under ASC 250: review before relying on it"
+            for k in sorted(now) if k not in FIXED_POLICIES and str(plan.previous.policies.get(k)) != str(now[k])]
+
+
 def _require_output_folders(xlsx) -> None:
     if xlsx is not None:
         parent = pathlib.Path(xlsx).resolve().parent
@@ -381,7 +392,7 @@ def close(location, *, register, through, start=None, period=None, standard=None
             close_id = reg.book(plan.record, _register_rows(plan.rows), _register_journal(plan.journal))
         head = reg.head_digest()
         checks = plan.checks + [_read_back_check(reg, close_id, plan)]
-    result = CloseResult(plan, close_id, head, outputs, checks)
+    result = CloseResult(plan, close_id, head, outputs, checks, _policy_warnings(plan))
     if plan.removed is not None and len(plan.removed):
         result.warnings.append(f"{len(plan.removed)} grant(s) booked earlier are no longer in the ledger; their "
                                f"cost is reversed as a catch-up: {', '.join(map(str, plan.removed['grant_id'][:10]))}")
@@ -489,6 +500,14 @@ def compare_with_register(run: ExpenseRun, register) -> RegisterComparison:
         first_active = next((c for c in reg.closes() if c.status == "booked"), None)
     sched = run.schedule
     ends = np.asarray(sched.period_ends, dtype="datetime64[D]")
+    pol = dataclasses.asdict(run.policy)
+    if last is not None and any(str(last.policies.get(k)) != str(pol[k]) for k in FIXED_POLICIES):
+        return RegisterComparison(pd.DataFrame(columns=["period_end", "booked", "catch_up", "booked_for_the_period",
+                                                        "recomputed", "difference", "cumulative_difference"]),
+                                  [f"the schedule's periods ({run.policy.period}, fiscal year ending in month "
+                                   f"{run.policy.fiscal_year_end_month}) are not the register's "
+                                   f"({last.policies.get('period')}, month {last.policies.get('fiscal_year_end_month')}):"
+                                   " nothing to compare"])
     closed = ends[ends <= np.datetime64(last.through, "D")] if last is not None else ends[:0]
     pe = rows["period_end"].to_numpy("datetime64[D]")
     opening = sum(int(v) for v in (first_active.options.get(OPENING_KEY, {}) if first_active else {}).values())

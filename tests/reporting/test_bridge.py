@@ -68,7 +68,7 @@ def test_granted_line_takes_new_awards_whole(tmp_path):
     later = dict(RSU, grant_id="U2", grant_date="2027-04-01")
     data = tables(grants=[dict(RSU), later])
     data["assumptions"].append(dict(data["assumptions"][0], grant_date="2027-04-01"))  # share price 10 again
-    br, s = _bridge(tmp_path / "l", data)
+    br, _ = _bridge(tmp_path / "l", data)
     u2 = cents(10_000 * 91 / 366)  # 2027-04-01..06-30 = 91 days of 2027-04-01..2028-04-01 (366 days)
     assert line(br, B.GRANTED, 1) == u2
     assert br.per_grant[B.GRANTED][1, 1] == u2 and br.per_grant["Ongoing cost of earlier awards"][1, 1] == 0
