@@ -244,7 +244,7 @@ def _record(run: ExpenseRun, register, through, start, opening: dict, command: s
     return R.CloseRecord(
         through=str(run.schedule.period_ends[-1]), period_ends=[str(d) for d in run.schedule.period_ends],
         ledger_digests={p: d for p, d in run.ledger.files}, policies=dataclasses.asdict(run.policy),
-        options=options, tool_version=__version__, user=user)
+        options=options, tool_version=__version__, user=R.current_user() if user is None else user)
 
 
 # ------------------------------------------------------------------- plan

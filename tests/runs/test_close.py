@@ -75,6 +75,7 @@ def test_late_forfeiture_is_caught_up_in_the_open_quarter_closed_quarter_unchang
     first = C.close(led, register=reg, through=Q1)
     q1 = cents(10_000 * 90 / 365)  # 2027-01-01..03-31 is 90 days of 365
     assert first.plan.rows["booked_cents"].tolist() == [q1]
+    assert first.plan.record.user == "alice"
     before = booked(reg, 1)
     # a forfeiture of 400 units dated in the closed Q1 is entered late
     rsu_ledger(led, events=[{"grant_id": "U1", "event_date": "2027-02-15", "event_type": "forfeit", "quantity": "400"}])
@@ -480,3 +481,17 @@ def test_register_command_refuses_a_file_that_is_not_a_register(tmp_path):
     assert r.exit_code == 1 and "is not a grantval close register" in r.output
     r = cli("register", tmp_path / "missing.gvreg", "--verify")
     assert r.exit_code == 1 and "does not exist" in r.output
+
+
+def test_read_back_check_turns_to_fail_when_the_register_holds_other_rows(tmp_path):
+    path = tmp_path / "r.gvreg"
+    res = C.close(write_ledger(tmp_path / "l", BASE), register=path, through=Q1)
+    with R.open_register(path, readonly=True) as reg:
+        assert C._read_back_check(reg, 1, res.plan).tool_pass
+
+        class Altered:
+            def booked(self, close_id):
+                rows = reg.booked(close_id=close_id)
+                return rows.assign(booked_cents=rows["booked_cents"] + np.where(np.arange(len(rows)) == 0, 1, 0))
+
+        assert not C._read_back_check(Altered(), 1, res.plan).tool_pass
