@@ -24,6 +24,7 @@ if TYPE_CHECKING:  # pragma: no cover
 MODULES: tuple[str, ...] = (
     "grantval.ledger.ext.performance",
     "grantval.ledger.ext.cash",
+    "grantval.ledger.ext.accounts",
 )
 
 
