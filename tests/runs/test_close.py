@@ -446,32 +446,22 @@ def test_policy_change_between_closes_is_caught_up_with_a_warning(tmp_path):
     assert r.exit_code == 0 and "nothing to compare" in r.output
 
 
-def test_a_feature_contributes_journal_lines_for_cash_settled_awards(tmp_path, monkeypatch):
-    import dataclasses
-
-    import grantval.awards.rsu as rsu_kind
+def test_cash_settled_awards_are_journalised_against_the_liability(tmp_path, monkeypatch):
     from grantval.reporting import journal as J
+    from tests.attribution.cash_ledgers import mixed_ledger
 
-    monkeypatch.setattr(rsu_kind, "KIND", dataclasses.replace(rsu_kind.KIND, settlement="cash"))
-    led = write_ledger(tmp_path / "l", BASE)
-    # no contributor journalises cash-settled awards: the expense lines fall short and nothing is booked
+    led = mixed_ledger(tmp_path / "l")
+    # without the cash contributor the expense lines fall short of the amounts booked: nothing is booked
+    monkeypatch.setattr(J, "CONTRIBUTORS", [J.equity_settled_lines])
     with pytest.raises(Exception, match="expense debits less credits = amount booked"):
-        C.close(led, register=tmp_path / "r.gvreg", through=Q1)
-
-    def liability_lines(rows, accounts):
-        part = rows[rows["settlement"] == "cash"]
-        out = []
-        for pe, per in part.groupby("period_end"):
-            amt = int(per["booked_cents"].sum())
-            out += [(pe, "Stock-based compensation expense", None, max(amt, 0), max(-amt, 0), "cash-settled", "expense"),
-                    (pe, "Share-based payment liability", None, max(-amt, 0), max(amt, 0), "cash-settled", "liability")]
-        return pd.DataFrame(out, columns=list(J.LINE_COLUMNS))
-
-    monkeypatch.setattr(J, "CONTRIBUTORS", [J.equity_settled_lines, liability_lines])
-    res = C.close(led, register=tmp_path / "r.gvreg", through=Q1)
-    assert not res.failed and "Share-based payment liability" in set(res.plan.journal["account"])
-    equity = res.plan.journal[res.plan.journal["entry"] == "equity"]["credit_cents"].sum()
-    assert equity == res.plan.rows.loc[res.plan.rows["award_type"] == "option", "booked_cents"].sum()
+        C.close(led, register=tmp_path / "r.gvreg", through="2029-12-31", period="year")
+    monkeypatch.setattr(J, "CONTRIBUTORS", [J.equity_settled_lines, J.cash_settled_lines])
+    res = C.close(led, register=tmp_path / "r.gvreg", through="2029-12-31", period="year")
+    journal = res.plan.journal
+    assert not res.failed and "Share-based payment liability" in set(journal["account"])
+    liability = journal[journal["entry"] == "liability"]["credit_cents"].sum()
+    cash = res.plan.rows["settlement"] == "cash"
+    assert liability == res.plan.rows.loc[cash, "booked_cents"].sum()
 
 
 def test_register_command_refuses_a_file_that_is_not_a_register(tmp_path):
