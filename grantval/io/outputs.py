@@ -555,6 +555,7 @@ def tidy_folder(folder: pathlib.Path) -> list[str]:
     for e in (manifest or {}).get("obsolete", []):
         if _matches(folder / e["name"], e):
             (folder / e["name"]).unlink()
+            notices.append(f"removed {folder / e['name']}, left from an earlier run whose other files were replaced")
     removed = F.remove_stale_parts(folder)
     if removed:
         notices.append(f"removed {len(removed)} temporary file(s) an interrupted grantval run left in {folder}")
