@@ -237,7 +237,8 @@ def atomic_path(target: pathlib.Path) -> Iterator[pathlib.Path]:
     from grantval.io.outputs import tidy_folder
 
     with folder_lock(parent):
-        tidy_folder(parent)
+        if fcntl is not None:  # without locks another writer's temporaries may be live
+            tidy_folder(parent)
         tmp_path = temp_path(target, new_run_id())
         create_part(tmp_path)
         try:

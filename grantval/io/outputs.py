@@ -12,20 +12,31 @@ A command uses this module in two steps (see :func:`plan_outputs`):
    KeyboardInterrupt included, the temporaries are removed and the previous outputs
    are left untouched.
 
-The commit, with every output folder locked and SIGINT/SIGTERM held back until it ends:
+The commit, with every output folder locked and SIGINT/SIGTERM held back until it
+ends (they are delivered, to the usual handler, when it is complete):
 
-a. each temporary is flushed and hashed, and each folder's new manifest is written
-   as a commit record ``.grantval-manifest.json.<run>.commit`` (the decision point);
-b. the temporaries are renamed onto their targets, one atomic rename per file;
-c. each commit record is renamed onto ``grantval-manifest.json``;
-d. files left from an earlier set that this set partly replaced are deleted.
+a. each temporary is flushed (fsync) and hashed, and each folder's new manifest is
+   written and renamed to a commit record ``.grantval-manifest.json.<run>.commit``:
+   from here on the set is decided;
+b. the temporaries are renamed onto their targets, one atomic rename(2) per file;
+c. each commit record is renamed onto ``grantval-manifest.json`` (manifests last);
+d. files left from an earlier set that this set partly replaced (``forecast.csv`` of
+   an earlier run with ``--forecast-through``) are deleted if unchanged.  Earlier sets
+   of other commands in the same folder, untouched by this one, are kept and listed.
 
-Guarantee: a reader never sees a manifest that lists a file it does not match
-unless a crash (SIGKILL, power loss) fell between (a) and (c); then the old manifest
-no longer matches the renamed files (:func:`verify_manifest` reports it) and the next
-grantval run into the folder completes the interrupted commit from its commit record
-and the remaining temporaries, before it writes anything itself.  A crash before (a)
-leaves the previous set as it was (plus temporaries the next run removes).
+Guarantee.  Each rename is atomic per file, so a reader sees each file either old or
+new.  An exception or signal before (a) completes leaves every previous output as it
+was (the temporaries are removed).  Only a crash that cannot be caught (SIGKILL, power
+loss) between (a) and (c) can leave a folder whose files are partly old and partly
+new; its manifest then does not match them and there is a pending commit record, so
+:func:`verify_manifest` reports it, and the next grantval run into that folder
+completes the commit from the record and the remaining temporaries (checking each by
+its SHA-256) before it writes anything; so does a file-system error raised after (a).
+A crash between (c) and (d) leaves a file
+:func:`verify_manifest` reports as left over; the next run deletes it.  A set spread
+over two folders (a workbook and a CSV folder) is committed folder by folder: each
+folder is consistent on its own, and the manifests of one set share ``set_sha256``.
+Without ``fcntl`` (Windows) folders are not locked and temporaries are not tidied.
 """
 
 from __future__ import annotations
@@ -144,23 +155,28 @@ class OutputPlan:
         missing = [f for f in folders if not f.is_dir()]
         if missing:
             raise OutputPathError(f"the output folder {missing[0]} no longer exists")
-        with F.folder_locks(folders, self.lock_timeout):
-            out = OutputSet(self)
-            try:
-                for folder in folders:
-                    out.notices += tidy_folder(folder)
-                _check_all(self, create=False)
-                token = F.ACTIVE_SET.set(out)
+        try:
+            with F.folder_locks(folders, self.lock_timeout):
+                out = OutputSet(self)
                 try:
-                    yield out
+                    if F.fcntl is not None:  # without locks another writer's temporaries may be live
+                        for folder in folders:
+                            out.notices += tidy_folder(folder)
+                    _check_all(self, create=False)
+                    token = F.ACTIVE_SET.set(out)
+                    try:
+                        yield out
+                    finally:
+                        F.ACTIVE_SET.reset(token)
+                    out.commit()
+                except BaseException:
+                    out.abort()
+                    raise
                 finally:
-                    F.ACTIVE_SET.reset(token)
-                out.commit()
-            except BaseException:
-                out.abort()
-                raise
-            finally:
-                self.notices += out.notices
+                    self.notices += out.notices
+        except BaseException:
+            self.discard()  # folders this plan created, if still empty
+            raise
 
 
 def plan_outputs(files: Mapping[str, object] | None = None,
@@ -257,7 +273,8 @@ def _check_folder(plan: OutputPlan, fo: _Folder, ins, ledger_dirs, create: bool)
     for shown, ident in ins:
         if F.same_path(me, ident):
             if os.path.isdir(shown):
-                raise OutputPathError(f"{where} is the ledger folder {shown}; its outputs would be read as "
+                name = "" if str(fo.shown) == shown else f" {shown}"
+                raise OutputPathError(f"{where} is the ledger folder{name}; its outputs would be read as "
                                       "ledger tables by the next run: choose another folder")
             raise OutputPathError(f"{where} is the input file {shown}; choose a folder")
     if fo.shown.exists() and not fo.shown.is_dir():

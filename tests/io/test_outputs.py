@@ -361,10 +361,14 @@ def test_leftover_of_a_partly_replaced_set_is_deleted(tmp_path):
 
 @pytest.mark.parametrize("mask, mode", [(0o022, 0o644), (0o077, 0o600), (0o002, 0o664)])
 def test_files_are_created_0666_less_umask(tmp_path, mask, mode):
+    from grantval.io.xlsx.sheet import Sheet
+    from grantval.io.xlsx.write import write_workbook
+
     old = os.umask(mask)
     try:
         _write(tmp_path / "o", 1)
         write_csv(tmp_path / "alone.csv", _frame(1))  # outside a set
+        write_workbook(tmp_path / "alone.xlsx", [Sheet("s", frame=_frame(1))])
         plan = plan_outputs(files={"-o": tmp_path / "replaced.csv"})
         with plan.writing() as out:  # a writer that replaces its temporary by a private file
             part = out.path(tmp_path / "replaced.csv")
@@ -374,7 +378,7 @@ def test_files_are_created_0666_less_umask(tmp_path, mask, mode):
     finally:
         os.umask(old)
     for p in [tmp_path / "o" / n for n in ("a.csv", "b.csv", "c.csv", "grantval-manifest.json")] + \
-             [tmp_path / "alone.csv", tmp_path / "replaced.csv"]:
+             [tmp_path / "alone.csv", tmp_path / "alone.xlsx", tmp_path / "replaced.csv"]:
         assert stat.S_IMODE(p.stat().st_mode) == mode, (p, oct(p.stat().st_mode))
 
 
@@ -412,6 +416,21 @@ def test_second_writer_is_refused_after_the_timeout(tmp_path):
     assert _tree(folder) == before
     _write(folder, 2, lock_timeout=0.3)  # the lock is free again
     assert not stale.exists() and verify_manifest(folder) == []
+
+
+def test_refused_writer_removes_the_folder_it_created(tmp_path):
+    holder = _hold_lock(tmp_path, 30)  # the parent of -o is locked by another writer
+    try:
+        plan = plan_outputs(files={"-o": tmp_path / "e.csv"}, folders={"--csv-dir": (tmp_path / "new", ["a.csv"])},
+                            lock_timeout=0.2)
+        assert (tmp_path / "new").is_dir()
+        with pytest.raises(OutputError, match="another grantval run is writing into"):
+            with plan.writing():
+                pass
+    finally:
+        holder.kill()
+        holder.wait()
+    assert not (tmp_path / "new").exists() and not (tmp_path / "e.csv").exists()
 
 
 def test_second_writer_waits_for_the_first(tmp_path):
