@@ -422,9 +422,8 @@ class OutputSet:
             for folder in by_folder:
                 F.fsync_path(folder, folder=True)
             _pause("obsolete")
-            for old in self.obsolete:
-                with contextlib.suppress(FileNotFoundError):
-                    old.unlink()
+            for folder in {p.parent for p in self.obsolete}:
+                settle_obsolete(folder, self.plan.run_id)
             self.plan.created.clear()
             self.committed = True
 
@@ -552,8 +551,9 @@ def _pause(point: str) -> None:
     if os.environ.get("GRANTVAL_TEST_PAUSE_AT") != point:
         return
     note = os.environ.get("GRANTVAL_TEST_PAUSE_FILE")
-    if note:
-        pathlib.Path(note).write_text(point)
+    if note:  # written aside and renamed, so that a watcher never reads it half written
+        pathlib.Path(note + ".tmp").write_text(point)
+        os.replace(note + ".tmp", note)
     time.sleep(float(os.environ.get("GRANTVAL_TEST_PAUSE_SECONDS", "30")))
 
 
@@ -568,14 +568,36 @@ def tidy_folder(folder: pathlib.Path) -> list[str]:
     notices = []
     for record in sorted(F.stale_temporaries(folder, "commit"), key=lambda p: p.stat().st_mtime):
         notices.append(_complete(folder, record))
-    manifest = read_manifest(folder)
-    for e in (manifest or {}).get("obsolete", []):
-        if _matches(folder / e["name"], e):
-            (folder / e["name"]).unlink()
-            notices.append(f"removed {folder / e['name']}, left from an earlier run whose other files were replaced")
+    notices += settle_obsolete(folder, F.new_run_id())
     removed = F.remove_stale_parts(folder)
     if removed:
         notices.append(f"removed {len(removed)} temporary file(s) an interrupted grantval run left in {folder}")
+    return notices
+
+
+def settle_obsolete(folder: pathlib.Path, run_id: str) -> list[str]:
+    """Delete the leftovers the manifest of ``folder`` lists as obsolete, then drop that list from it.
+
+    Call only while holding the folder's lock.  Returns notices for the user.
+    """
+    manifest = read_manifest(folder)
+    if not manifest or "obsolete" not in manifest:
+        return []
+    notices = []
+    for e in manifest.pop("obsolete"):
+        if _matches(folder / e["name"], e):
+            (folder / e["name"]).unlink()
+            notices.append(f"removed {folder / e['name']}, left from an earlier run whose other files were replaced")
+    part = F.temp_path(folder / F.MANIFEST, run_id)
+    with contextlib.suppress(FileNotFoundError):
+        part.unlink()
+    F.create_part(part)
+    with open(part, "wb") as fh:
+        fh.write(manifest_bytes(manifest))
+        fh.flush()
+        os.fsync(fh.fileno())
+    os.replace(part, folder / F.MANIFEST)
+    F.fsync_path(folder, folder=True)
     return notices
 
 
