@@ -54,7 +54,7 @@ import time
 from dataclasses import dataclass, field
 from typing import Iterable, Iterator, Mapping, Sequence
 
-from grantval.errors import OutputError, OutputPathError
+from grantval.errors import InputError, OutputError, OutputPathError
 from grantval.io import files as F
 
 MANIFEST_FORMAT = 1
@@ -225,7 +225,7 @@ def plan_outputs(files: Mapping[str, object] | None = None,
     """
     given = run_id is not None
     if given and not F.TEMP_RE.match(f".x.{run_id}.part"):
-        raise OutputPathError(f"run_id {run_id!r} must be 16 lower-case hexadecimal digits")
+        raise InputError(f"run_id {run_id!r} must be 16 lower-case hexadecimal digits")
     plan = OutputPlan(
         files=[_Target(opt, pathlib.Path(p), _real(p)) for opt, p in (files or {}).items() if p is not None],
         folders=[_Folder(opt, pathlib.Path(p), _real(p), tuple(names))

@@ -25,7 +25,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from grantval.errors import GrantvalError, OutputError, OutputPathError
+from grantval.errors import GrantvalError, InputError, OutputError, OutputPathError
 from grantval.io import files as F
 from grantval.io.csv import write_csv
 from grantval.io.files import atomic_path, refuse_overwriting_inputs
@@ -256,6 +256,10 @@ def test_manifest_records_run_and_time_with_timestamp(tmp_path):
     (entry,) = read_manifest(tmp_path / "o")["sets"]
     assert entry["run_id"] == plan.run_id and len(plan.run_id) == 16
     assert entry["created"].endswith("+00:00")
+    _write(tmp_path / "p", 1, run_id="0123456789abcdef")  # a caller's identity is kept without timestamp
+    assert read_manifest(tmp_path / "p")["sets"][0]["run_id"] == "0123456789abcdef"
+    with pytest.raises(InputError, match="run_id"):
+        plan_outputs(files={"-o": tmp_path / "x.csv"}, run_id="../x")
 
 
 def test_reruns_without_timestamp_are_byte_identical(tmp_path):
