@@ -149,7 +149,9 @@ class OutputPlan:
         """Lock the output folders, tidy them, yield the :class:`OutputSet`, and commit it on success.
 
         On any exception in the block (KeyboardInterrupt too) the temporaries are
-        removed and the previous outputs stay as they were.
+        removed and the previous outputs stay as they were.  :func:`grantval.io.files.atomic_path`
+        (so ``write_csv`` and ``write_workbook``) finds the set through a context variable:
+        call writers in the thread that entered the block, or pass ``out.path(target)``.
         """
         folders = self.output_folders()
         missing = [f for f in folders if not f.is_dir()]
