@@ -109,3 +109,14 @@ class LedgerError(GrantvalError):
 
 class OutputError(GrantvalError):
     """An output file cannot be written where it was asked for."""
+
+
+class OutputPathError(OutputError, UsageError):
+    """An output location is unusable (checked before any computing): exit code 2.
+
+    Raised by :func:`grantval.io.outputs.plan_outputs` for a missing folder, a folder
+    where a file is expected (or the reverse), an output that is an input or a ledger
+    folder, an output named twice, or a folder without write permission.
+    """
+
+    exit_code = 2
