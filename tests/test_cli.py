@@ -73,17 +73,16 @@ def _digests(folder: pathlib.Path) -> dict[str, str]:
     return {p.name: hashlib.sha256(p.read_bytes()).hexdigest() for p in sorted(folder.iterdir()) if p.is_file()}
 
 
-def test_csv_dir_may_be_the_ledger_folder(tmp_path):
-    # fair_values.csv is no ledger table, so writing it beside the inputs is allowed
-    # (grantval.io.write: only an output path that is one of the inputs is refused);
-    # the inputs stay byte for byte as they were and the folder still checks clean
+def test_csv_dir_that_is_the_ledger_folder_is_refused_before_any_work(tmp_path):
+    # robustness issue, item 4: `expense --csv-dir LEDGER` wrote its own tranches.csv there and every
+    # later run failed; an output folder that is a ledger folder is refused (exit 2), nothing written
     ledger = write_ledger(tmp_path / "l", tables())
     before = _digests(ledger)
-    r = run("value", ledger, "--csv-dir", ledger, "-o", tmp_path / "x.xlsx")
-    assert r.exit_code == 0, r.output
-    after = _digests(ledger)
-    assert set(after) == set(before) | {"fair_values.csv"}
-    assert {k: after[k] for k in before} == before
+    for args in (["value", ledger, "--csv-dir", ledger], ["expense", ledger, "--through", "2028-12-31",
+                                                           "--csv-dir", ledger]):
+        r = run(*args)
+        assert r.exit_code == 2 and "is the ledger folder" in r.output, r.output
+    assert _digests(ledger) == before
     assert run("check", ledger).exit_code == 0
 
 
@@ -97,14 +96,14 @@ OVER_THE_WORKBOOK = {
 
 @pytest.mark.parametrize("command", OVER_THE_WORKBOOK)
 def test_output_that_is_an_input_is_refused(tmp_path, command):
-    # grantval.io.write: "An output path that is one of the inputs is refused": exit 1,
-    # the message names the path, and the input workbook is left as it was
+    # an output path that is one of the inputs is refused before any work (exit 2, as a usage
+    # problem): the message names the path, and the input workbook is left as it was
     wb = tmp_path / "book.xlsx"
     csv_folder_to_workbook(write_ledger(tmp_path / "l", tables()), wb, TABLE_NAMES, TEXT_COLUMNS)
     before = wb.read_bytes()
     r = run(*OVER_THE_WORKBOOK[command](wb))
-    assert r.exit_code == 1, r.output
-    assert f"the output {wb} is one of the inputs; choose another path" in r.output
+    assert r.exit_code == 2, r.output
+    assert f"the output {wb} (-o) is one of the inputs; choose another path" in r.output
     assert wb.read_bytes() == before
 
 
@@ -113,7 +112,7 @@ def test_output_that_is_the_ledger_folder_is_refused(tmp_path):
     folder = write_ledger(tmp_path / "book.xlsx", tables())
     before = _digests(folder)
     r = run("value", folder, "-o", folder)
-    assert r.exit_code == 1 and "is one of the inputs" in r.output, r.output
+    assert r.exit_code == 2 and "is one of the inputs" in r.output, r.output
     assert folder.is_dir() and _digests(folder) == before
 
 
@@ -123,7 +122,7 @@ def test_assumptions_output_that_is_a_market_input_is_refused(tmp_path):
     before = _digests(market)
     r = run("assumptions", "--prices", market / "prices.csv", "--curve", market / "curve.csv", "--dates", "2026-05-15",
             "--expected-term", "6", "--ticker", "CRVN", "--curve-fallback", "-o", market / "prices.csv")
-    assert r.exit_code == 1 and f"the output {market / 'prices.csv'} is one of the inputs" in r.output, r.output
+    assert r.exit_code == 2 and f"the output {market / 'prices.csv'} (-o) is one of the inputs" in r.output, r.output
     assert _digests(market) == before
 
 
@@ -135,7 +134,7 @@ def test_assumptions_output_over_the_ledgers_grants_is_refused(tmp_path):
             "--dividends", SAMPLE / "market" / "dividends.csv", "--ledger", ledger, "--ticker", "CRVN",
             "--curve-fallback", "-o", ledger / "grants.csv")
     assert _digests(ledger) == before
-    assert r.exit_code == 1 and "is one of the inputs" in r.output, r.output
+    assert r.exit_code == 2 and "would be read as the grants table" in r.output, r.output
 
 
 def test_whatif_csv_over_the_planned_file_is_refused(tmp_path):
@@ -146,7 +145,7 @@ def test_whatif_csv_over_the_planned_file_is_refused(tmp_path):
     r = run("whatif", ledger, "--vary", "volatility=+0.05", "--planned", planned / "scenarios.csv",
             "--csv-dir", planned)
     assert _digests(planned) == before
-    assert r.exit_code == 1 and "is one of the inputs" in r.output, r.output
+    assert r.exit_code == 2 and "is one of the inputs" in r.output, r.output
 
 
 def test_usage_errors_exit_2(tmp_path):

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import contextlib
 import sys
 
 import typer
@@ -107,3 +108,26 @@ def version_callback(value: bool) -> None:
     if value:
         typer.echo(f"grantval {__version__}")
         raise typer.Exit()
+
+
+@contextlib.contextmanager
+def output_set(files: dict, folders: dict, *, inputs=(), ledgers=(), timestamp: bool = True):
+    """Check every output location before anything is computed; yield the plan whose ``writing()``
+    writes all outputs or none (see :mod:`grantval.io.outputs`)."""
+    from grantval.io.outputs import plan_outputs
+
+    plan = plan_outputs(files, folders, inputs=[i for i in inputs if i is not None],
+                        ledgers=[x for x in ledgers if x is not None], command=command_line(), timestamp=timestamp)
+    for line in plan.notices:
+        say(line)
+    with plan:
+        yield plan
+
+
+@contextlib.contextmanager
+def writing(plan):
+    """Write inside the plan's output set; print what it tidied afterwards."""
+    with plan.writing() as out:
+        yield out
+    for line in out.notices:
+        say(line)

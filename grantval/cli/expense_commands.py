@@ -7,7 +7,7 @@ from typing import Annotated, Optional
 
 import typer
 
-from grantval.cli.app import app, check_outputs, command_line, report_outputs, say, usage
+from grantval.cli.app import app, check_outputs, command_line, output_set, report_outputs, say, usage, writing
 from grantval.cli.options import (AttributionOpt, CsvDir, ForfeituresOpt, Ledger, NoTimestamp, PeriodOpt, SharePrice,
                                   StandardOpt, Through, Workbook, choice)
 
@@ -41,19 +41,26 @@ def expense_cmd(
 
     if no_workbook and (output is not None or csv_dir is None):
         usage("--no-workbook goes with --csv-dir and without -o")
-    check_outputs(output, csv_dir)
-    run = api.expense(ledger, through=through, start=start, forecast_through=forecast_through, period=choice(period),
-                      standard=choice(standard), attribution=choice(attribution), forfeitures=choice(forfeitures))
-    result = api.write_expense(run, output, csv_dir, command=command_line(), timestamp=not no_timestamp,
-                               share_price=share_price)
-    total = run.schedule.expense_cents.sum() / 100.0
-    say(f"{run.ledger.n_grants} grants, {len(run.schedule.period_ends)} periods from {run.start} "
-        f"through {run.through} ({run.policy.standard}, {run.policy.attribution}, {run.policy.forfeitures}); "
-        f"expense {total:,.2f}")
-    if register is not None:
-        from grantval.cli.close_commands import show_comparison
+    from grantval.runs.expense import CSV_NAMES
 
-        show_comparison(run, register, csv_dir)
+    check_outputs(output, csv_dir)
+    names = CSV_NAMES + ["liabilities.csv"] + (["booked_vs_recomputed.csv"] if register is not None else [])
+    with output_set({"-o": output}, {"--csv-dir": (csv_dir, names)}, inputs=[ledger, register], ledgers=[ledger],
+                    timestamp=not no_timestamp) as plan:
+        run = api.expense(ledger, through=through, start=start, forecast_through=forecast_through,
+                          period=choice(period), standard=choice(standard), attribution=choice(attribution),
+                          forfeitures=choice(forfeitures))
+        with writing(plan):
+            result = api.write_expense(run, output, csv_dir, command=command_line(), timestamp=not no_timestamp,
+                                       share_price=share_price)
+            total = run.schedule.expense_cents.sum() / 100.0
+            say(f"{run.ledger.n_grants} grants, {len(run.schedule.period_ends)} periods from {run.start} "
+                f"through {run.through} ({run.policy.standard}, {run.policy.attribution}, "
+                f"{run.policy.forfeitures}); expense {total:,.2f}")
+            if register is not None:
+                from grantval.cli.close_commands import show_comparison
+
+                show_comparison(run, register, csv_dir)
     report_outputs(result)
 
 
@@ -70,9 +77,15 @@ def disclose_cmd(
     """Write the disclosure tables (ASC 718-10-50): award activity, grant figures, unrecognised cost."""
     from grantval import api
 
+    from grantval.runs.disclose import CSV_NAMES
+
     check_outputs(output, csv_dir)
-    run = api.disclose(ledger, start=start, through=through, share_price=share_price)
-    result = api.write_disclosure(run, output, csv_dir, command=command_line(), timestamp=not no_timestamp)
+    names = CSV_NAMES + ["performance_unit_activity.csv"]
+    with output_set({"-o": output}, {"--csv-dir": (csv_dir, names)}, inputs=[ledger], ledgers=[ledger],
+                    timestamp=not no_timestamp) as plan:
+        run = api.disclose(ledger, start=start, through=through, share_price=share_price)
+        with writing(plan):
+            result = api.write_disclosure(run, output, csv_dir, command=command_line(), timestamp=not no_timestamp)
     o = run.disclosure.options
     say(f"options outstanding at {run.disclosure.through}: {o['number'].iloc[5]:,.0f}; "
         f"RSUs nonvested: {run.disclosure.rsus['number'].iloc[4]:,.0f}")

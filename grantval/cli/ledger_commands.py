@@ -6,8 +6,8 @@ from typing import Annotated, Optional
 
 import typer
 
-from grantval.cli.app import app, check_outputs, echo_outputs, say
-from grantval.cli.options import CsvDir, Ledger, ValuationUnit, Workbook, choice
+from grantval.cli.app import app, check_outputs, echo_outputs, output_set, say, writing
+from grantval.cli.options import CsvDir, Ledger, NoTimestamp, ValuationUnit, Workbook, choice
 
 
 @app.command("check")
@@ -34,13 +34,17 @@ def value_cmd(
         "--valuation-unit", help="Value per award or per tranche (overrides the ledger's policy).")] = None,
     lattice_steps: Annotated[Optional[int], typer.Option(
         "--lattice-steps", metavar="STEPS", help="Lattice time steps (overrides the ledger's policy).")] = None,
+    no_timestamp: NoTimestamp = False,
 ) -> None:
     """Value every grant at its grant date and write the fair-value table."""
     from grantval import api
 
     check_outputs(output, csv_dir)
-    run = api.value(ledger, valuation_unit=choice(valuation_unit), lattice_steps=lattice_steps)
-    written = api.write_fair_values(run, output, csv_dir)
+    with output_set({"-o": output}, {"--csv-dir": (csv_dir, ["fair_values.csv"])}, inputs=[ledger], ledgers=[ledger],
+                    timestamp=not no_timestamp) as plan:
+        run = api.value(ledger, valuation_unit=choice(valuation_unit), lattice_steps=lattice_steps)
+        with writing(plan):
+            written = api.write_fair_values(run, output, csv_dir, timestamp=not no_timestamp)
     fv = run.fair_values
     total = float(fv.table["grant_date_fair_value"].sum())
     say(f"grants read {run.ledger.n_grants}, valued {fv.table['grant_id'].nunique()} "

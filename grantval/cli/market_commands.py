@@ -7,7 +7,7 @@ from typing import Annotated, Optional
 
 import typer
 
-from grantval.cli.app import app, command_line, echo_outputs, say, usage
+from grantval.cli.app import app, command_line, echo_outputs, output_set, say, usage, writing
 from grantval.cli.options import CurveUnits, Frequency, NoTimestamp
 
 Path = pathlib.Path
@@ -67,13 +67,25 @@ def assumptions_cmd(
 
     if (ledger is None) == (dates is None):
         usage("give either --ledger LEDGER or --dates DATE,...")
-    derived = api.assumptions(
+    plan_cm = output_set({"-o": output, "--xlsx": xlsx}, {}, inputs=[prices, curve, dividends, peers, ledger],
+                         ledgers=[ledger], timestamp=not no_timestamp)
+    with plan_cm as plan:
+        derived = _derive(api, prices, curve, ledger, dates, dividends, peers, lookback, frequency, ticker, peer_weight,
+                          max_gap_days, curve_units, curve_fallback, allow_short_history, expected_term,
+                          contractual_term)
+        inputs = [str(p) for p in (prices, curve, dividends, peers) if p is not None]
+        with writing(plan):
+            written = api.write_assumptions(derived, output, xlsx, inputs, command=command_line(),
+                                            timestamp=not no_timestamp, ledger=ledger)
+    say(f"{len(derived.table)} grant dates")
+    echo_outputs(written)
+
+
+def _derive(api, prices, curve, ledger, dates, dividends, peers, lookback, frequency, ticker, peer_weight,
+            max_gap_days, curve_units, curve_fallback, allow_short_history, expected_term, contractual_term):
+    """Call the API with the command's options."""
+    return api.assumptions(
         prices, curve, ledger=ledger, dates=None if dates is None else dates.split(","), dividends=dividends,
         peers=peers, lookback=_lookback(lookback), frequency=frequency.value, ticker=ticker, peer_weight=peer_weight,
         max_gap_days=max_gap_days, curve_units=curve_units.value, curve_fallback=curve_fallback,
         allow_short_history=allow_short_history, expected_term=expected_term, contractual_term=contractual_term)
-    inputs = [str(p) for p in (prices, curve, dividends, peers) if p is not None]
-    written = api.write_assumptions(derived, output, xlsx, inputs, command=command_line(), timestamp=not no_timestamp,
-                                    ledger=ledger)
-    say(f"{len(derived.table)} grant dates")
-    echo_outputs(written)

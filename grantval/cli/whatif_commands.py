@@ -7,7 +7,7 @@ from typing import Annotated, Optional
 
 import typer
 
-from grantval.cli.app import app, check_outputs, command_line, echo_outputs, say
+from grantval.cli.app import app, check_outputs, command_line, echo_outputs, output_set, say, writing
 from grantval.cli.options import CsvDir, ForfeituresOpt, Ledger, NoTimestamp, Workbook, choice
 
 
@@ -36,10 +36,15 @@ def whatif_cmd(
     """Re-value and re-expense under shifted assumptions; write sensitivity tables and charts."""
     from grantval import api
 
+    from grantval.runs.whatif import CSV_NAMES
+
     check_outputs(output, csv_dir)
-    run = api.whatif(ledger, vary=vary, grants_from=grants_from, grants_through=grants_through, through=through,
-                     forecast_through=forecast_through, planned=planned, forfeitures=choice(forfeitures))
-    written = api.write_whatif(run, output, csv_dir, command=command_line(), timestamp=not no_timestamp)
+    with output_set({"-o": output}, {"--csv-dir": (csv_dir, CSV_NAMES)}, inputs=[ledger, planned], ledgers=[ledger],
+                    timestamp=not no_timestamp) as plan:
+        run = api.whatif(ledger, vary=vary, grants_from=grants_from, grants_through=grants_through, through=through,
+                         forecast_through=forecast_through, planned=planned, forfeitures=choice(forfeitures))
+        with writing(plan):
+            written = api.write_whatif(run, output, csv_dir, command=command_line(), timestamp=not no_timestamp)
     revalued = int(run.window_mask.sum())
     if revalued == 0:
         typer.echo("warning: no grant is dated in the --grants-from/--grants-through window, so nothing was "

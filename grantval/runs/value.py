@@ -48,7 +48,8 @@ def value(location, *, valuation_unit: str | None = None, lattice_steps: int | N
     return ValueRun(ledger, policy, fv)
 
 
-def write_fair_values(run: ValueRun, xlsx: pathlib.Path | None, csv_dir: pathlib.Path | None) -> list[pathlib.Path]:
+def write_fair_values(run: ValueRun, xlsx: pathlib.Path | None, csv_dir: pathlib.Path | None,
+                      timestamp: bool = True) -> list[pathlib.Path]:
     """Write the fair-value table to a workbook and/or ``fair_values.csv``; returns the paths written."""
     from grantval.reporting.value_book import value_sheets
 
@@ -63,5 +64,7 @@ def write_fair_values(run: ValueRun, xlsx: pathlib.Path | None, csv_dir: pathlib
         pathlib.Path(csv_dir).mkdir(parents=True, exist_ok=True)
         write_csv(csv_path, run.fair_values.table)
     if xlsx is not None:
-        write_workbook(pathlib.Path(xlsx), value_sheets(run))
+        from grantval.io.xlsx.sheet import FIXED_TIME
+
+        write_workbook(pathlib.Path(xlsx), value_sheets(run), fixed_time=None if timestamp else FIXED_TIME)
     return outputs
