@@ -1,0 +1,137 @@
+"""Node-level pieces of the employee-option lattice (private to :mod:`grantval.pricing.lattice`).
+
+Everything here works on the fixed log-price levels of the trinomial lattice:
+the step parameters, the leaver's exercise value averaged over a node's cell,
+the expectation of the vesting-date value against the lognormal law, and the
+interpolation of the grant-date value when the share price is not a node.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from scipy.special import ndtr
+
+#: share ``pu + pd`` of the two moving branches when the drift is small (the
+#: value 1/3 also matches the fourth moment of the normal law)
+_MOVE_SHARE = 1.0 / 3.0
+
+
+def step_parameters(r, q, sigma, dt):
+    """Level spacing and branch probabilities of one lattice step.
+
+    The log price moves by ``+dx``, 0 or ``-dx``.  The spacing is chosen so that
+    ``(pu + pd) dx**2`` is the second moment of the log step, and ``pu``, ``pd``
+    are solved so that the discounted share price is exactly a martingale
+    (``pu e^dx + pm + pd e^-dx = e^{(r-q) dt}``).  When the drift dominates the
+    volatility the share of moving branches rises towards 1 so that all three
+    probabilities stay in [0, 1].
+
+    Returns
+    -------
+    dx, pu, pm, pd : ndarray
+        Log spacing and probabilities (each shaped like the inputs).
+    """
+    nu = r - q - 0.5 * sigma**2
+    second = sigma**2 * dt + (nu * dt) ** 2
+    drift_share = np.abs(nu) * dt / np.sqrt(second)
+    share = np.maximum(_MOVE_SHARE, (0.5 * (1.0 + drift_share)) ** 2)
+    dx = np.sqrt(second / share)
+    growth = np.expm1((r - q) * dt)
+    pu = (growth - share * np.expm1(-dx)) / (2.0 * np.sinh(dx))
+    pd = share - pu
+    return dx, pu, 1.0 - share, pd
+
+
+def exit_payoff(stock, k, dx):
+    """Exercise value of a leaver, ``max(S - K, 0)`` averaged over each node's cell.
+
+    The average is taken with the hat function of half-width ``dx`` in log price
+    centred on the node (closed form).  Sampling the kinked payoff at the nodes
+    instead makes the value jump as the strike moves between levels when the
+    step count changes; the cell average keeps the error smooth in the step.
+
+    Parameters
+    ----------
+    stock : ndarray (options, levels)
+        Share price at the levels, currency per share.
+    k, dx : ndarray (options, 1)
+        Strike (currency per share) and log spacing.
+    """
+    h = dx
+    kappa = np.clip(np.log(k / stock), -h, h)  # log distance to the strike, clipped to the cell
+    neg = np.minimum(kappa, 0.0)
+    pos = np.maximum(kappa, 0.0)
+    # integral of (h -+ y) (S e^y - K) over [neg, 0] and [pos, h], divided by h^2
+    left = stock * ((h - 1.0) - np.exp(neg) * (h + neg - 1.0)) + k * (h * neg + 0.5 * neg**2)
+    right = stock * (np.exp(h) - np.exp(pos) * (h - pos + 1.0)) - k * (0.5 * h**2 - h * pos + 0.5 * pos**2)
+    part = (left + right) / h**2
+    full = stock * (np.sinh(0.5 * h) / (0.5 * h)) ** 2 - k  # whole cell above the strike
+    value = np.where(kappa <= -h, full, np.where(kappa >= h, 0.0, part))
+    return np.clip(value, 0.0, stock)
+
+
+def vesting_expectation(stock, hold, after, k, optimal, mu, sd, fwd):
+    """Expected vesting-date value of options whose value is known on nodes.
+
+    The value at vesting is ``max(S - K, H(S))`` (exercise when optimal) or
+    ``S - K`` at and above the barrier and ``H(S)`` below it, where ``H`` is
+    the holding value on the nodes.  Values are interpolated linearly between
+    nodes; for optimal exercise the boundary is located exactly where the
+    holding line crosses ``S - K``, and for a barrier (which lies on a node)
+    the node values ``after`` are used as they are.  Each linear piece is
+    integrated in closed form against the lognormal law of the vesting-date
+    share price (log mean ``mu``, log standard deviation ``sd``, mean
+    ``fwd``).  Above the top node the value continues with slope one; below
+    the bottom node it is taken as zero.  Integrating across the kink exactly,
+    instead of rolling it back through a tree, removes the saw-tooth error a
+    kink at the vesting date otherwise causes.
+    """
+    opt = optimal[:, None]
+    line = np.where(opt, hold, after)
+    a, b = stock[:, :-1], stock[:, 1:]
+    ha, hb = line[:, :-1], line[:, 1:]
+    kc = k[:, None]
+    ga, gb = ha - (a - kc), hb - (b - kc)  # holding minus exercise at both ends
+    cross = (ga > 0) != (gb > 0)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        m_opt = np.where(cross, a + ga / (ga - gb) * (b - a), np.where(ga > 0, b, a))
+        slope_h = (hb - ha) / (b - a)
+    m = np.where(opt, m_opt, b)
+    left_hold = np.where(opt, ga > 0, True)
+    right_hold = np.where(opt, np.where(cross, ~(ga > 0), gb > 0), True)
+    alpha_h = ha - slope_h * a
+    alpha_l = np.where(left_hold, alpha_h, -kc)
+    beta_l = np.where(left_hold, slope_h, 1.0)
+    alpha_r = np.where(right_hold, alpha_h, -kc)
+    beta_r = np.where(right_hold, slope_h, 1.0)
+    s_, f_ = sd[:, None], fwd[:, None]
+    z = lambda x: (np.log(x) - mu[:, None]) / s_  # noqa: E731
+    za, zm, zb = z(a), z(m), z(b)
+    p_l, p_r = ndtr(zm) - ndtr(za), ndtr(zb) - ndtr(zm)
+    x_l = f_ * (ndtr(zm - s_) - ndtr(za - s_))
+    x_r = f_ * (ndtr(zb - s_) - ndtr(zm - s_))
+    total = (alpha_l * p_l + beta_l * x_l + alpha_r * p_r + beta_r * x_r).sum(axis=1)
+    top_s, top_v = stock[:, -1], after[:, -1]
+    zt = (np.log(top_s) - mu) / sd
+    return total + (top_v - top_s) * ndtr(-zt) + fwd * ndtr(sd - zt)
+
+
+def interpolate_at(values, u, top_level, centre):
+    """Cubic Lagrange interpolation of node values at fractional level ``u``.
+
+    ``values[:, centre + l]`` is the value at level ``l``; the four-node stencil
+    around ``u`` is moved down so that it never uses a level above
+    ``top_level`` (the barrier, above which the value has a kink).
+    """
+    base = np.floor(u).astype(np.int64) - 1
+    base = np.minimum(base, top_level - 3)
+    rows = np.arange(values.shape[0])
+    x = u - base
+    out = np.zeros(values.shape[0])
+    for i in range(4):
+        w = np.ones_like(x)
+        for j in range(4):
+            if j != i:
+                w *= (x - j) / (i - j)
+        out += w * values[rows, centre + base + i]
+    return out
