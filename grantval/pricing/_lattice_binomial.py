@@ -40,7 +40,7 @@ def optimal_tree(s, k, t, r, sigma, q, v, lam, n_post):
     a_up, a_down = (disc * p)[:, None], (disc * (1.0 - p))[:, None]
     exit_p = (-np.expm1(-lam * dt))[:, None]
     inv_d = np.exp(-log_d)[:, None]
-    kcol, cell = k[:, None], (2.0 * sq)[:, None]
+    kcol, cell = k[:, None], sq[:, None]  # two layers together cover levels sq apart
 
     # index of the vesting-date layer: a virtual root that many steps earlier
     vests = v > 0

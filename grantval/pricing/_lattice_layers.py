@@ -135,3 +135,29 @@ def interpolate_at(values, u, top_level, centre):
                 w *= (x - j) / (i - j)
         out += w * values[rows, centre + base + i]
     return out
+
+
+def up_and_out_call(s, k, h, tau, r, q, sigma):
+    """Up-and-out call with rebate ``h - k`` paid at the hit (Reiner and Rubinstein 1991).
+
+    Closed form for ``s < h``, ``k <= h``, ``tau > 0`` (arrays broadcast), as in
+    Haug, The Complete Guide to Option Pricing Formulas, 2nd ed., 4.17.1.  It
+    serves as a smooth guide for interpolating lattice values between levels;
+    NaN where the formula does not apply (``(mu^2 + 2 r / sigma^2) < 0``).
+    """
+    vt = sigma * np.sqrt(tau)
+    mu = (r - q - 0.5 * sigma**2) / sigma**2
+    with np.errstate(invalid="ignore", over="ignore", divide="ignore"):
+        lam = np.sqrt(mu**2 + 2.0 * r / sigma**2)
+        x1 = np.log(s / k) / vt + (1 + mu) * vt
+        x2 = np.log(s / h) / vt + (1 + mu) * vt
+        y1 = np.log(h**2 / (s * k)) / vt + (1 + mu) * vt
+        y2 = np.log(h / s) / vt + (1 + mu) * vt
+        z = np.log(h / s) / vt + lam * vt
+        fs, fk, hs = s * np.exp(-q * tau), k * np.exp(-r * tau), h / s
+        a_ = fs * ndtr(x1) - fk * ndtr(x1 - vt)
+        b_ = fs * ndtr(x2) - fk * ndtr(x2 - vt)
+        c_ = fs * hs ** (2 * (mu + 1)) * ndtr(-y1) - fk * hs ** (2 * mu) * ndtr(-y1 + vt)
+        d_ = fs * hs ** (2 * (mu + 1)) * ndtr(-y2) - fk * hs ** (2 * mu) * ndtr(-y2 + vt)
+        f_ = (h - k) * (hs ** (mu + lam) * ndtr(-z) + hs ** (mu - lam) * ndtr(-z + 2 * lam * vt))
+        return a_ - b_ + c_ - d_ + f_

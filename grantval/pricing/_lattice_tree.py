@@ -8,7 +8,8 @@ from __future__ import annotations
 
 import numpy as np
 
-from grantval.pricing._lattice_layers import exit_payoff, interpolate_at, step_parameters, vesting_expectation
+from grantval.pricing._lattice_layers import (exit_payoff, interpolate_at, step_parameters, up_and_out_call,
+                                             vesting_expectation)
 from grantval.pricing.bsm import _bsm
 
 #: half-width, in standard deviations of log price, of the vesting-date layer
@@ -92,12 +93,29 @@ def one_tree(s, k, t, r, sigma, q, v, barrier, optimal, lam, n_post):
             value[:, :w] = after
             here = width == j
             if np.any(here):
-                result[here] = _at_vesting(here, j, st, hold, after, s, k, r, sigma, q, v,
-                                           optimal, centre, dx, bar_level)
+                result[here] = _at_vesting(here, j, st, hold, after, s, k, t, r, sigma, q, v, lam,
+                                           barrier, optimal, centre, dx, bar_level)
     return result
 
 
-def _at_vesting(here, j, st, hold, after, s, k, r, sigma, q, v, optimal, centre, dx, bar_level):
+def _interpolate_grant(after, st, s, k, t, r, sigma, q, lam, barrier, u, top_level, centre):
+    """Grant-date value at a share price between levels (no vesting period, a barrier).
+
+    The lattice values are interpolated after subtracting a smooth guide, the
+    continuous up-and-out call with the barrier rebate (exits only discount),
+    so that only the small, smooth remainder is interpolated.
+    """
+    guide = lambda x: up_and_out_call(x, k[:, None], barrier[:, None], t[:, None], (r + lam)[:, None],  # noqa: E731
+                                      (q + lam)[:, None], sigma[:, None])
+    nodes = np.where(st < barrier[:, None], guide(np.minimum(st, barrier[:, None])), st - k[:, None])
+    at_s = guide(s[:, None])[:, 0]
+    usable = np.all(np.isfinite(nodes), axis=1) & np.isfinite(at_s)
+    nodes = np.where(usable[:, None], nodes, 0.0)
+    at_s = np.where(usable, at_s, 0.0)
+    return at_s + interpolate_at(after - nodes, u, top_level, centre)
+
+
+def _at_vesting(here, j, st, hold, after, s, k, t, r, sigma, q, v, lam, barrier, optimal, centre, dx, bar_level):
     """Grant-date value of the options ``here`` whose vesting layer is layer ``j``."""
     out = np.empty(int(here.sum()))
     sub = np.flatnonzero(here)
@@ -116,7 +134,8 @@ def _at_vesting(here, j, st, hold, after, s, k, r, sigma, q, v, optimal, centre,
         bar = ~optimal[g]
         if np.any(bar):
             b = g[bar]
-            u = (np.log(s[b]) - centre[b]) / dx[b]
-            direct[bar] = interpolate_at(after[b], u, np.minimum(bar_level[b], j), j)
+            direct[bar] = _interpolate_grant(after[b], st[b], s[b], k[b], t[b], r[b], sigma[b], q[b],
+                                             lam[b], barrier[b], (np.log(s[b]) - centre[b]) / dx[b],
+                                             np.minimum(bar_level[b], j), j)
         out[~vests] = direct
     return out
