@@ -76,7 +76,10 @@ def _lattice(s, k, t, r, sigma, q, v, mult, lam, lam_pre, steps):
     out = np.empty_like(s)
     optimal = np.isnan(mult)
     barrier = np.where(optimal, np.inf, mult * k)
-    european = v >= t
+    # no exercise window, or one too short for a lattice step (the value is then
+    # the European one to far below a cent per share)
+    life = t - v
+    european = (v >= t) | ((sigma * np.sqrt(life) < 1e-7) & ((np.abs(r) + q + lam) * life < 1e-7))
     if np.any(european):
         e = european
         out[e] = _bsm(s[e], k[e], t[e], r[e], sigma[e], q[e], True) * np.exp(-lam_pre[e] * t[e])
@@ -98,6 +101,17 @@ def _lattice(s, k, t, r, sigma, q, v, mult, lam, lam_pre, steps):
     # the extrapolation can step outside the bounds the true value obeys
     low = np.where((v == 0) & (optimal | at_once), np.maximum(s - k, 0.0), 0.0)
     return np.clip(out, low, s)
+
+
+def _check_steps(steps):
+    """Return ``steps`` as an int, or raise :class:`InputError`."""
+    try:
+        ok = int(steps) == steps and MIN_STEPS <= steps <= MAX_STEPS
+    except (TypeError, ValueError, OverflowError):
+        ok = False
+    if not ok:
+        raise InputError(f"steps must be a whole number from {MIN_STEPS} to {MAX_STEPS}; got {steps!r}")
+    return int(steps)
 
 
 def lattice_value(
@@ -148,17 +162,24 @@ def lattice_value(
         forfeitures belong in expense attribution, not in the fair value.
     steps : int, optional
         Total number of time steps of the finer of the two lattices that are
-        extrapolated.  Default :data:`DEFAULT_STEPS`.
+        extrapolated, from :data:`MIN_STEPS` to :data:`MAX_STEPS`.  Default
+        :data:`DEFAULT_STEPS`.  Options with a large ``volatility**2 * term``
+        get more steps, so that no step moves the log price by more than
+        :data:`MAX_LOG_STEP` on the coarser lattice.
 
     Returns
     -------
     float or ndarray
-        Value per option; a float when every input is a scalar.
+        Value per option, currency per option; a float when every input is a
+        scalar.  Always finite, between zero (the intrinsic value
+        ``max(S - K, 0)`` when there is no vesting period and exercise is
+        optimal or immediate) and the share price.
 
     Raises
     ------
     InputError
-        (a :class:`ValueError`) naming the first invalid argument.
+        (a :class:`ValueError`) naming the first invalid argument; also when
+        ``volatility * sqrt(term)`` exceeds :data:`MAX_TOTAL_VOLATILITY`.
     """
     (s, k, t, r, sigma, q, v, mult, lam, lam_pre), scalar = prepare(
         share_price=(share_price, (POSITIVE,)),
@@ -178,12 +199,15 @@ def lattice_value(
     if np.any(v > t):
         bad = np.ravel(v[v > t])[0]
         raise InputError(f"vesting must not exceed term; got vesting {float(bad)!r} beyond the term")
-    if steps is None:
-        n = DEFAULT_STEPS
-    else:
-        if int(steps) != steps or steps < MIN_STEPS:
-            raise InputError(f"steps must be a whole number of at least {MIN_STEPS}; got {steps!r}")
-        n = int(steps)
+    total_vol = sigma * np.sqrt(t)
+    if np.any(total_vol > MAX_TOTAL_VOLATILITY):
+        bad = np.flatnonzero(np.ravel(total_vol > MAX_TOTAL_VOLATILITY))[0]
+        raise InputError(
+            f"volatility * sqrt(term) must be at most {MAX_TOTAL_VOLATILITY} for the lattice (the share-price "
+            f"range it must span would overflow); got volatility {float(np.ravel(sigma)[bad])!r} "
+            f"with term {float(np.ravel(t)[bad])!r}"
+        )
+    n = DEFAULT_STEPS if steps is None else _check_steps(steps)
     shape = s.shape
     flat = [np.ravel(a) for a in (s, k, t, r, sigma, q, v, mult, lam, lam_pre)]
     return finish(_lattice(*flat, n).reshape(shape), scalar)
