@@ -8,16 +8,33 @@ options", Financial Analysts Journal 60(1)).
 
 Numerical method (all vectorised over a batch of options):
 
-- a recombining binomial tree in log price with risk-neutral probabilities
-  (the equal-jump "Jarrow-Rudd risk-neutral" tree, whose probabilities stay in
-  (0, 1) for any rate, dividend yield and volatility);
-- the time step of each option is chosen so that its vesting date falls on a
-  layer of the tree, so the exercise window opens exactly at vesting;
+- exercise when optimal: a recombining binomial tree in log price with
+  risk-neutral probabilities (the equal-jump "Jarrow-Rudd risk-neutral" tree),
+  whose nodes drift from layer to layer relative to the exercise boundary;
+- exercise at a multiple ``M``: a trinomial lattice on fixed log-price levels,
+  shifted (by under half a level) so that the barrier ``M K`` is a level.  A
+  walk that moves one level a step cannot jump over it, so the barrier is hit
+  exactly and the error falls as 1/n.  Probabilities make the discounted share
+  price a martingale and stay in [0, 1] for any drift;
+- both lattices run from the vesting date to expiry; the vesting-date layer
+  covers +-6 standard deviations of the vesting-date share price, and the
+  grant-date value is its expectation integrated in closed form against the
+  lognormal law (the exercise kink located exactly).  With no vesting period
+  the grant date is the centre level (optimal exercise) or, with a barrier,
+  the values are interpolated at the share price after subtracting the
+  closed-form up-and-out call as a guide;
+- a leaver's exercise value ``max(S - K, 0)`` is averaged over each node's
+  cell in log price, so that the strike falling between levels does not make
+  the value swing with the step count;
 - the layer before expiry uses the Black-Scholes-Merton value over the time
   left (Broadie and Detemple, 1996, "American option valuation", Review of
   Financial Studies 9(4): the "BBS" smoothing);
 - the result is Richardson-extrapolated from ``steps`` and ``steps // 2``
-  ("BBSR" in Broadie and Detemple).
+  ("BBSR" in Broadie and Detemple) and kept within the bounds the true value
+  obeys (zero or the intrinsic value, and the share price).
+
+Inputs with ``volatility * sqrt(term)`` above :data:`MAX_TOTAL_VOLATILITY` are
+refused; ``steps`` runs from :data:`MIN_STEPS` to :data:`MAX_STEPS`.
 """
 
 from __future__ import annotations
