@@ -57,17 +57,25 @@ def exit_payoff(stock, k, dx):
     k, dx : ndarray (options, 1)
         Strike (currency per share) and log spacing.
     """
-    h = dx
-    kappa = np.clip(np.log(k / stock), -h, h)  # log distance to the strike, clipped to the cell
+    ratio = (np.sinh(0.5 * dx) / (0.5 * dx)) ** 2  # hat average of e^y
+    value = np.maximum(stock * ratio - k, 0.0)  # exact for cells wholly above or below the strike
+    grow = np.exp(dx)
+    near = np.nonzero((stock * grow > k) & (stock < k * grow))
+    if near[0].size:
+        h, kk = np.broadcast_to(dx, stock.shape), np.broadcast_to(k, stock.shape)
+        value[near] = _cell_across_strike(stock[near], kk[near], h[near])
+    return np.minimum(value, stock)
+
+
+def _cell_across_strike(stock, k, h):
+    """Hat average of ``max(S e^y - K, 0)`` over ``|y| < h`` for cells the strike cuts (closed form)."""
+    kappa = np.clip(np.log(k / stock), -h, h)  # log distance to the strike
     neg = np.minimum(kappa, 0.0)
     pos = np.maximum(kappa, 0.0)
     # integral of (h -+ y) (S e^y - K) over [neg, 0] and [pos, h], divided by h^2
     left = stock * ((h - 1.0) - np.exp(neg) * (h + neg - 1.0)) + k * (h * neg + 0.5 * neg**2)
     right = stock * (np.exp(h) - np.exp(pos) * (h - pos + 1.0)) - k * (0.5 * h**2 - h * pos + 0.5 * pos**2)
-    part = (left + right) / h**2
-    full = stock * (np.sinh(0.5 * h) / (0.5 * h)) ** 2 - k  # whole cell above the strike
-    value = np.where(kappa <= -h, full, np.where(kappa >= h, 0.0, part))
-    return np.clip(value, 0.0, stock)
+    return np.maximum((left + right) / h**2, 0.0)
 
 
 def vesting_expectation(stock, hold, after, k, optimal, mu, sd, fwd):
