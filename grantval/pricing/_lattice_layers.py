@@ -145,8 +145,8 @@ def interpolate_at(values, u, top_level, centre):
     return out
 
 
-def up_and_out_call(s, k, h, tau, r, q, sigma):
-    """Up-and-out call with rebate ``h - k`` paid at the hit (Reiner and Rubinstein 1991).
+def up_and_out_call(s, k, h, tau, r, q, sigma, rebate):
+    """Up-and-out call with ``rebate`` paid at the hit (Reiner and Rubinstein 1991).
 
     Closed form for ``s < h``, ``k <= h``, ``tau > 0`` (arrays broadcast), as in
     Haug, The Complete Guide to Option Pricing Formulas, 2nd ed., 4.17.1.  It
@@ -167,5 +167,5 @@ def up_and_out_call(s, k, h, tau, r, q, sigma):
         b_ = fs * ndtr(x2) - fk * ndtr(x2 - vt)
         c_ = fs * hs ** (2 * (mu + 1)) * ndtr(-y1) - fk * hs ** (2 * mu) * ndtr(-y1 + vt)
         d_ = fs * hs ** (2 * (mu + 1)) * ndtr(-y2) - fk * hs ** (2 * mu) * ndtr(-y2 + vt)
-        f_ = (h - k) * (hs ** (mu + lam) * ndtr(-z) + hs ** (mu - lam) * ndtr(-z + 2 * lam * vt))
+        f_ = rebate * (hs ** (mu + lam) * ndtr(-z) + hs ** (mu - lam) * ndtr(-z + 2 * lam * vt))
         return a_ - b_ + c_ - d_ + f_

@@ -98,17 +98,40 @@ def one_tree(s, k, t, r, sigma, q, v, barrier, optimal, lam, n_post):
     return result
 
 
+#: Gauss-Legendre points of the leavers' integral in the interpolation guide
+_GUIDE_POINTS = 24
+
+
+def _guide(x, k, barrier, tau, r, q, sigma, lam):
+    """Continuous-barrier value below the barrier (rows of ``x``), the smooth guide of the interpolation.
+
+    An up-and-out call with rebate ``B - K`` at the hit, discounted at
+    ``r + lam`` with yield ``q + lam``, plus the leavers' integral
+    ``lam * int_0^tau UOC(u) du`` (Gauss-Legendre in ``u = tau w^2``).
+    """
+    col = lambda a: a[:, None]  # noqa: E731
+    r2, q2 = col(r + lam), col(q + lam)
+    value = up_and_out_call(x, col(k), col(barrier), col(tau), r2, q2, col(sigma), col(barrier - k))
+    if np.any(lam > 0):
+        w, wt = np.polynomial.legendre.leggauss(_GUIDE_POINTS)
+        w, wt = 0.5 * (w + 1.0), 0.5 * wt
+        for wi, wti in zip(w, wt):
+            u = col(tau) * wi**2
+            part = up_and_out_call(x, col(k), col(barrier), u, r2, q2, col(sigma), 0.0)
+            value = value + col(lam) * part * (2.0 * col(tau) * wi * wti)
+    return value
+
+
 def _interpolate_grant(after, st, s, k, t, r, sigma, q, lam, barrier, u, top_level, centre):
     """Grant-date value at a share price between levels (no vesting period, a barrier).
 
     The lattice values are interpolated after subtracting a smooth guide, the
-    continuous up-and-out call with the barrier rebate (exits only discount),
-    so that only the small, smooth remainder is interpolated.
+    continuous-barrier value of the same option (:func:`_guide`), so that only
+    the small, smooth discretisation error of the lattice is interpolated.
     """
-    guide = lambda x: up_and_out_call(x, k[:, None], barrier[:, None], t[:, None], (r + lam)[:, None],  # noqa: E731
-                                      (q + lam)[:, None], sigma[:, None])
-    nodes = np.where(st < barrier[:, None], guide(np.minimum(st, barrier[:, None])), st - k[:, None])
-    at_s = guide(s[:, None])[:, 0]
+    bcol = barrier[:, None]
+    nodes = np.where(st < bcol, _guide(np.minimum(st, bcol), k, barrier, t, r, q, sigma, lam), st - k[:, None])
+    at_s = _guide(s[:, None], k, barrier, t, r, q, sigma, lam)[:, 0]
     usable = np.all(np.isfinite(nodes), axis=1) & np.isfinite(at_s)
     nodes = np.where(usable[:, None], nodes, 0.0)
     at_s = np.where(usable, at_s, 0.0)

@@ -60,7 +60,7 @@ MAX_STEPS = 20_000
 MAX_TOTAL_VOLATILITY = 8.0
 #: largest log-price move of one step of the coarser lattice; options whose
 #: ``volatility * sqrt(step)`` would exceed it get more steps
-MAX_LOG_STEP = 0.5
+MAX_LOG_STEP = 0.3
 #: options valued per block, to keep the working arrays in cache
 _BLOCK = 512
 
