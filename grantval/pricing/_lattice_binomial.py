@@ -18,7 +18,8 @@ from grantval.pricing.bsm import _bsm
 
 #: half-width, in standard deviations of log price, of the vesting-date layer
 _COVER = 6.0
-#: share prices on the lattice are kept below this (far nodes only; avoids overflow)
+#: share prices on the lattice are kept between the inverse of this and this
+#: (far nodes only; avoids overflow and log of zero)
 _PRICE_LIMIT = 1e300
 
 
@@ -51,7 +52,11 @@ def optimal_tree(s, k, t, r, sigma, q, v, lam, n_post):
     top, stop = int(last.max()), int(vest_layer.min())
     nodes = np.arange(top + 1)
     log_top = log_root[:, None] + top * drift[:, None] + (2 * nodes - top) * sq[:, None]
-    stock = np.exp(np.minimum(log_top, np.log(_PRICE_LIMIT)))
+    log_limit = np.log(_PRICE_LIMIT)
+    # prices of a layer follow from the next layer's by one division by d; where the
+    # lattice reaches beyond the float range they are recomputed from logs each layer
+    from_logs = bool(np.abs(log_top).max() > log_limit)
+    stock = np.exp(np.clip(log_top, -log_limit, log_limit))
     value = np.zeros_like(stock)
     cont = np.zeros_like(stock)  # rows not yet started hold zeros, never garbage
     work = np.empty_like(stock)
@@ -84,7 +89,9 @@ def optimal_tree(s, k, t, r, sigma, q, v, lam, n_post):
                     st[h], hold[h], after[h], k[h], np.ones(int(h.sum()), bool), mu[h], sd, fwd
                 ) * np.exp(-r[h] * v[h])
             result[here & ~vests] = after[here & ~vests, 0]
-        if j > stop:
+        if j > stop and from_logs:
+            logs = log_root[:, None] + (j - 1) * drift[:, None] + (2 * nodes[:j] - (j - 1)) * sq[:, None]
+            stock[:, :j] = np.exp(np.clip(logs, -log_limit, log_limit))
+        elif j > stop:
             np.multiply(st, inv_d, out=st)
-            np.minimum(st, _PRICE_LIMIT, out=st)
     return result
