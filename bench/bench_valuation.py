@@ -17,6 +17,8 @@ Run from the project root::
    QuantLib's AnalyticBarrierEngine, timed against its FD barrier engine at
    growing grids; then 100 cases with vesting and exits against the
    semi-analytic continuous-barrier value (tests/pricing/barrier_reference.py).
+4. Accuracy per family (vesting window, exits with and without dividends,
+   multiple with and without exits): error / tolerance over 50 seeded cases.
 """
 
 from __future__ import annotations
@@ -192,11 +194,50 @@ def bench_multiple(lines: list[str]) -> None:
                  f"max {ratio.max():.3f}, median {np.median(ratio):.3f}")
 
 
+def bench_accuracy(lines: list[str]) -> None:
+    """Error of the default lattice per family, as a multiple of max($0.005, 0.02% of value).
+
+    50 seeded cases per family (the generator of tests/pricing/test_lattice_multiple.py;
+    a fifth without a vesting period).  References: the test-only finite-difference
+    solver (4001 x 8000) for the vesting window and for exits with dividends; the
+    semi-analytic integral of BSM values for exits without dividends; the
+    semi-analytic continuous-barrier value for the multiple.
+    """
+    from tests.pricing.barrier_reference import employee_value
+    from tests.pricing.fd_reference import fd_value
+    from tests.pricing.test_lattice_exits import _semi_analytic
+    from tests.pricing.test_lattice_multiple import _cases
+
+    s, k, t, v, r, vol, q, mult, lam = _cases(5, 50)
+    zero = np.zeros_like(lam)
+    families = {
+        "vesting window": (dict(dividend_yield=q),
+                           lambda: [fd_value(*a, None, 0.0, 4001, 8000) for a in zip(s, k, t, v, r, q, vol)]),
+        "exits, no dividends": (dict(exit_rate=lam),
+                                lambda: [_semi_analytic(*a) for a in zip(s, k, t, v, r, vol, lam)]),
+        "exits with dividends": (dict(dividend_yield=q, exit_rate=lam),
+                                 lambda: [fd_value(*a, None, x, 4001, 8000) for *a, x in zip(s, k, t, v, r, q, vol, lam)]),
+        "multiple, no exits": (dict(dividend_yield=q, exercise_multiple=mult),
+                               lambda: [employee_value(*a) for a in zip(s, k, t, v, r, q, vol, mult, zero)]),
+        "multiple with exits": (dict(dividend_yield=q, exercise_multiple=mult, exit_rate=lam),
+                                lambda: [employee_value(*a) for a in zip(s, k, t, v, r, q, vol, mult, lam)]),
+    }
+    for name, (kw, reference) in families.items():
+        t0 = time.perf_counter()
+        ours = lattice_value(s, k, t, r, vol, vesting=v, **kw)
+        el = (time.perf_counter() - t0) / s.size
+        ref = np.array(reference())
+        ratio = np.abs(ours - ref) / np.maximum(0.005, 2e-4 * np.abs(ref))
+        lines.append(f"accuracy {name} (50 cases): error / tolerance max {ratio.max():.3f}, "
+                     f"median {np.median(ratio):.3f}, over {int((ratio > 1).sum())}; {el * 1e3:.3f} ms/option")
+
+
 def main() -> None:
     lines = [f"grantval valuation benchmark, {_dt.date.today().isoformat()}", describe()]
     bench_bsm(lines)
     bench_lattice(lines)
     bench_multiple(lines)
+    bench_accuracy(lines)
     write_results(RESULTS, lines)
 
 

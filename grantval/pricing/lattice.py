@@ -55,8 +55,8 @@ MIN_STEPS = 4
 #: largest accepted explicit ``steps`` (work grows as steps squared)
 MAX_STEPS = 20_000
 #: largest accepted ``volatility * sqrt(term)``: beyond it the share-price
-#: range the lattice must span overflows floating point or the option is
-#: worth almost the share price whatever the model
+#: range the lattice must span (about +-6 of these standard deviations around
+#: a mean that drifts by ``volatility**2 * term / 2``) overflows floating point
 MAX_TOTAL_VOLATILITY = 8.0
 #: largest log-price move of one step of the coarser lattice; options whose
 #: ``volatility * sqrt(step)`` would exceed it get more steps
