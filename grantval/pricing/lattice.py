@@ -99,7 +99,7 @@ def _lattice(s, k, t, r, sigma, q, v, mult, lam, lam_pre, steps):
     european = (v >= t) | ((sigma * np.sqrt(life) < 1e-7) & ((np.abs(r) + q + lam) * life < 1e-7))
     if np.any(european):
         e = european
-        out[e] = _bsm(s[e], k[e], t[e], r[e], sigma[e], q[e], True) * np.exp(-lam_pre[e] * t[e])
+        out[e] = _bsm(s[e], k[e], t[e], r[e], sigma[e], q[e], True) * np.exp(-lam_pre[e] * v[e])
     at_once = ~european & (v == 0) & (s >= barrier)  # exercised at the grant date
     out[at_once] = s[at_once] - k[at_once]
     rows = np.flatnonzero(~european & ~at_once)
