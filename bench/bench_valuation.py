@@ -129,7 +129,8 @@ def bench_lattice(lines: list[str]) -> None:
         lines.append(f"lattice goal: >= 5x faster than QuantLib FD at equal accuracy (grid {fd_match[0]}): "
                      f"{fd_match[1] / ours_t:.1f}x: {'met' if fd_match[1] / ours_t >= 5 else 'NOT met'}")
     else:
-        lines.append("lattice goal: QuantLib FD did not reach grantval's accuracy up to 1600 x 1600 (met)")
+        lines.append(f"lattice goal: QuantLib FD did not reach grantval's accuracy up to 1600 x 1600; "
+                     f"speed-up over FD 1600 x 1600 {el / ours_t:.0f}x (met)")
     lines.append(
         f"lattice goal: default at least as accurate as CRR 1000 ({err.max():.5f} vs {crr_1000_err:.5f}: "
         f"{'met' if err.max() <= crr_1000_err else 'NOT met'}) and >= 5x faster "

@@ -1,4 +1,4 @@
-"""Backward induction on the employee-option trinomial lattice (private).
+"""Backward induction on the trinomial lattice used with an exercise multiple (private).
 
 See :mod:`grantval.pricing.lattice` for the method; this module holds the
 induction over one block of options with a given number of post-vesting steps.
@@ -8,8 +8,13 @@ from __future__ import annotations
 
 import numpy as np
 
-from grantval.pricing._lattice_layers import (exit_payoff, interpolate_at, step_parameters, up_and_out_call,
-                                             vesting_expectation)
+from grantval.pricing._lattice_layers import (
+    exit_payoff,
+    interpolate_at,
+    step_parameters,
+    up_and_out_call,
+    vesting_expectation,
+)
 from grantval.pricing.bsm import _bsm
 
 #: half-width, in standard deviations of log price, of the vesting-date layer
@@ -22,7 +27,7 @@ _STENCIL = 4
 _LOG_LIMIT = 700.0
 
 
-def _layout(s, v, sigma, q, r, barrier, optimal, dx, n_post):
+def _layout(s, v, sigma, q, r, barrier, optimal, dx):
     """Centre, barrier level and vesting-layer half-width of each option's lattice.
 
     Levels are ``centre + l * dx`` for whole ``l``.  With a barrier the centre
@@ -42,7 +47,7 @@ def _layout(s, v, sigma, q, r, barrier, optimal, dx, n_post):
     return centre, bar_level, width.astype(np.int64)
 
 
-def one_tree(s, k, t, r, sigma, q, v, barrier, optimal, lam, n_post):
+def barrier_tree(s, k, t, r, sigma, q, v, barrier, optimal, lam, n_post):
     """Grant-date value (before pre-vesting exits) on a lattice of ``n_post`` steps after vesting.
 
     1-D arrays, no checks; ``0 <= v < t``; ``barrier`` is the voluntary
@@ -53,7 +58,7 @@ def one_tree(s, k, t, r, sigma, q, v, barrier, optimal, lam, n_post):
     """
     dt = (t - v) / n_post
     dx, pu, pm, pd = step_parameters(r, q, sigma, dt)
-    centre, bar_level, width = _layout(s, v, sigma, q, r, barrier, optimal, dx, n_post)
+    centre, bar_level, width = _layout(s, v, sigma, q, r, barrier, optimal, dx)
     disc = np.exp(-r * dt)
     cu, cm, cd = ((disc * p)[:, None] for p in (pu, pm, pd))
     exit_p = (-np.expm1(-lam * dt))[:, None]

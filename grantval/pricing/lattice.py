@@ -44,7 +44,7 @@ import numpy as np
 from grantval.errors import InputError
 from grantval.pricing._inputs import FINITE, NAN_ALLOWED, NON_NEGATIVE, POSITIVE, finish, prepare
 from grantval.pricing._lattice_binomial import optimal_tree
-from grantval.pricing._lattice_tree import one_tree
+from grantval.pricing._lattice_tree import barrier_tree
 from grantval.pricing.bsm import _bsm
 
 #: total time steps used when ``steps`` is None; with Richardson extrapolation
@@ -84,7 +84,8 @@ def _tree(s, k, t, r, sigma, q, v, barrier, optimal, lam, n_post):
         out[o] = optimal_tree(s[o], k[o], t[o], r[o], sigma[o], q[o], v[o], lam[o], n_post[o])
     if not np.all(optimal):
         b = ~optimal
-        out[b] = one_tree(s[b], k[b], t[b], r[b], sigma[b], q[b], v[b], barrier[b], optimal[b], lam[b], n_post[b])
+        out[b] = barrier_tree(s[b], k[b], t[b], r[b], sigma[b], q[b], v[b], barrier[b], optimal[b], lam[b],
+                              n_post[b])
     return out
 
 

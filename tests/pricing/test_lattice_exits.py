@@ -10,7 +10,6 @@ import numpy as np
 from scipy.integrate import quad
 
 from grantval.pricing import bsm_value, lattice_value
-
 from tests.pricing.fd_reference import fd_value
 from tests.pricing.test_lattice_multiple import _cases, tolerance
 

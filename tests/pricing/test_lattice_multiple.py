@@ -13,7 +13,6 @@ import numpy as np
 import pytest
 
 from grantval.pricing import lattice_value
-
 from tests.pricing.barrier_reference import employee_value, uoc
 from tests.pricing.fd_reference import fd_value
 from tests.pricing.ql_reference import up_and_out_call
@@ -65,7 +64,7 @@ def test_multiple_matches_semi_analytic_barrier_value(with_exits):
 def test_multiple_without_vesting_period_matches_semi_analytic_value():
     # no vesting period: the grant date is not a level, so values are interpolated at
     # the share price (the weak spot before the guided interpolation: 32 of 300 over)
-    s, k, t, v, r, vol, q, mult, lam = _cases(21, 150)
+    s, k, t, _, r, vol, q, mult, lam = _cases(21, 150)
     ours = lattice_value(s, k, t, r, vol, q, exercise_multiple=mult, exit_rate=lam)
     ref = np.array([employee_value(a[0], a[1], a[2], 0.0, *a[3:]) for a in zip(s, k, t, r, q, vol, mult, lam)])
     ratio = np.abs(ours - ref) / tolerance(ref)
@@ -85,12 +84,12 @@ def test_multiple_without_vesting_period_matches_finite_differences():
 def test_multiple_converges_as_one_over_steps():
     # before extrapolation the error must fall as 1/n (the barrier lies on a level),
     # which is what makes the Richardson step work
-    from grantval.pricing._lattice_tree import one_tree
+    from grantval.pricing._lattice_tree import barrier_tree
 
     a = lambda x: np.array([x], float)  # noqa: E731
     args = (a(50), a(50), a(10), a(0.04), a(0.35), a(0.01), a(3), a(125.0), np.array([False]), a(0.08))
     ref = employee_value(50, 50, 10, 3, 0.04, 0.01, 0.35, 2.5, 0.08)
-    err = [abs(one_tree(*args, np.array([n]))[0] - ref) for n in (100, 200, 400)]
+    err = [abs(barrier_tree(*args, np.array([n]))[0] - ref) for n in (100, 200, 400)]
     assert 1.7 < err[0] / err[1] < 2.3 and 1.7 < err[1] / err[2] < 2.3, err
 
 

@@ -16,7 +16,6 @@ from hypothesis import strategies as st
 from grantval.errors import InputError
 from grantval.pricing import lattice_value
 from grantval.pricing.lattice import MAX_STEPS, MAX_TOTAL_VOLATILITY
-
 from tests.pricing.barrier_reference import employee_value
 
 domain = dict(
