@@ -69,3 +69,25 @@ def european_call_greeks(s, k, days, r, vol, q):
         "rho": option.rho(),
         "dividendRho": option.dividendRho(),
     }
+
+
+def up_and_out_call(s, k, barrier, days, r, vol, q, rebate=0.0):
+    """QuantLib AnalyticBarrierEngine value of an up-and-out call, rebate paid at the hit."""
+    proc = _process(s, r, q, vol)
+    option = ql.BarrierOption(
+        ql.Barrier.UpOut, float(barrier), float(rebate),
+        ql.PlainVanillaPayoff(ql.Option.Call, float(k)), ql.EuropeanExercise(TODAY + int(days)),
+    )
+    option.setPricingEngine(ql.AnalyticBarrierEngine(proc))
+    return option.NPV()
+
+
+def up_and_out_call_fd(s, k, barrier, days, r, vol, q, rebate=0.0, t_grid=800, x_grid=800):
+    """QuantLib FdBlackScholesBarrierEngine value of the same up-and-out call."""
+    proc = _process(s, r, q, vol)
+    option = ql.BarrierOption(
+        ql.Barrier.UpOut, float(barrier), float(rebate),
+        ql.PlainVanillaPayoff(ql.Option.Call, float(k)), ql.EuropeanExercise(TODAY + int(days)),
+    )
+    option.setPricingEngine(ql.FdBlackScholesBarrierEngine(proc, int(t_grid), int(x_grid)))
+    return option.NPV()
