@@ -21,7 +21,7 @@ if TYPE_CHECKING:  # pragma: no cover
     from grantval.ledger.columns import Column
 
 #: feature modules, each defining ``EXTENSION``
-MODULES: tuple[str, ...] = ()
+MODULES: tuple[str, ...] = ("grantval.ledger.ext.tax",)
 
 
 @dataclass
