@@ -160,7 +160,7 @@ def _in_period(n: int, s: Settlements, tx: TaxInputs, lo: int, hi: int, rate_end
     rs = np.array([tx.rate_at(int(d))[gi] for d, gi in zip(s.day[m], g)], dtype=float)
     ded, cost = q * s.deduction_per_unit[m], q * s.cost_per_unit[m]
     excess, eq = settlement_rule(rs, ded, cost)
-    add = lambda w: np.bincount(g, weights=w, minlength=n)  # noqa: E731
+    add = lambda w: np.bincount(g, weights=w, minlength=n).astype(float)  # noqa: E731
     out = dict(deduction=add(ded), current=add(rs * ded), current_to_equity=add(eq), excess=add(excess),
                reversed=add(rs * cost), remeasure=add((rs - rate_end[g]) * cost), settled=add(cost))
     md = (tx.dd_day > lo) & (tx.dd_day <= hi)

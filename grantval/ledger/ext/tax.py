@@ -51,6 +51,7 @@ def _rate_problems(rates: pd.DataFrame, src: str) -> list[Problem]:
     for r, k, d in zip(rates["_row"], rates["applies_to"], rates["effective_date"]):
         if k is None or pd.isna(d):
             continue
+        d = np.datetime64(d, "D")
         if (k, d) in seen:
             out.append(Problem(src, int(r), "effective_date", f"{k!r} already has a tax rate effective {d} "
                                                               f"(row {seen[(k, d)]})"))
@@ -65,6 +66,7 @@ def _price_problems(prices: pd.DataFrame, src: str) -> list[Problem]:
         if np.isfinite(p) and p <= 0:
             out.append(Problem(src, int(r), "share_price", f"must be positive; got {p:g}"))
         if not pd.isna(d):
+            d = np.datetime64(d, "D")
             if d in seen:
                 out.append(Problem(src, int(r), "date", f"{d} already has a share price (row {seen[d]})"))
             seen.setdefault(d, int(r))
