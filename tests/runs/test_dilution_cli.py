@@ -75,3 +75,26 @@ def test_refuses_to_overwrite_the_prices_file(tmp_path):
     r = run("dilution", loc, "--average-prices", target, "--from", "2027-01-01", "--through", "2027-12-31",
             "--csv-dir", tmp_path / "csv")
     assert r.exit_code != 0 and "Traceback" not in r.output
+
+
+def test_workbook_formulas_recalculate_to_pass(tmp_path):
+    """LibreOffice recalculates the live checks (row-by-row incremental shares) of the dilution workbook."""
+    import pytest
+
+    from tests.io.test_recalculation import SOFFICE, recalculate
+
+    if SOFFICE is None:
+        pytest.skip("LibreOffice is not installed")
+    loc, prices = _inputs(tmp_path)
+    out = tmp_path / "d.xlsx"
+    r = run("dilution", loc, "--average-prices", prices, "--from", "2027-01-01", "--through", "2027-12-31",
+            "-o", out, "--no-timestamp")
+    assert r.exit_code == 0, r.output
+    wb = openpyxl.load_workbook(recalculate(out, tmp_path), data_only=True)
+    status = [row[5] for row in wb["checks"].iter_rows(min_row=2, values_only=True)]
+    assert status and all(s == "PASS" for s in status), status
+    ws = wb["dilution_by_grant"]
+    head = [c.value for c in ws[1]]
+    i, j = head.index("Incremental shares"), head.index("Recomputed incremental shares")
+    for row in ws.iter_rows(min_row=2, values_only=True):
+        assert abs(row[i] - row[j]) < 1e-9
