@@ -153,11 +153,20 @@ def _settled_cost(inp_n: int, s: Settlements, day: int) -> np.ndarray:
     return np.bincount(s.grant[m], weights=(s.qty * s.cost_per_unit)[m], minlength=inp_n)
 
 
+def _rates_on(tx: TaxInputs, days: np.ndarray, grants: np.ndarray) -> np.ndarray:
+    """Rate in force for each (day, grant) pair, one table lookup per distinct day."""
+    out = np.zeros(len(days))
+    for d in np.unique(days):
+        m = days == d
+        out[m] = tx.rate_at(int(d))[grants[m]]
+    return out
+
+
 def _in_period(n: int, s: Settlements, tx: TaxInputs, lo: int, hi: int, rate_end: np.ndarray) -> dict:
     """Settlements and disqualifying dispositions dated in (lo, hi]: per-grant sums (currency)."""
     m = (s.day > lo) & (s.day <= hi)
     g, q = s.grant[m], s.qty[m]
-    rs = np.array([tx.rate_at(int(d))[gi] for d, gi in zip(s.day[m], g)], dtype=float)
+    rs = _rates_on(tx, s.day[m], g)
     ded, cost = q * s.deduction_per_unit[m], q * s.cost_per_unit[m]
     excess, eq = settlement_rule(rs, ded, cost)
     add = lambda w: np.bincount(g, weights=w, minlength=n).astype(float)  # noqa: E731
@@ -166,7 +175,7 @@ def _in_period(n: int, s: Settlements, tx: TaxInputs, lo: int, hi: int, rate_end
     md = (tx.dd_day > lo) & (tx.dd_day <= hi)
     if md.any():
         gd = tx.dd_grant[md]
-        rd = np.array([tx.rate_at(int(d))[gi] for d, gi in zip(tx.dd_day[md], gd)], dtype=float)
+        rd = _rates_on(tx, tx.dd_day[md], gd)
         _, eq_d = settlement_rule(rd, tx.dd_deduction[md], tx.dd_cost[md])
         addd = lambda w: np.bincount(gd, weights=w, minlength=n)  # noqa: E731
         out["deduction"] += addd(tx.dd_deduction[md])

@@ -31,22 +31,32 @@ class _Rates:
 
     def __init__(self, ledger):
         t = ledger.tables["tax_rates"]
-        self.keys = t["applies_to"].to_numpy(dtype=object)
+        keys = t["applies_to"].to_numpy(dtype=object)
         self.eff = t["effective_date"].to_numpy("datetime64[D]").astype(np.int64)
         self.rate = t["tax_rate"].to_numpy(float)
-        self.gid = ledger.grants["grant_id"].to_numpy(dtype=object)
-        self.group = ledger.grants["group"].to_numpy(dtype=object)
+        names = sorted({k for k in keys if k is not None})
+        index = {k: i for i, k in enumerate(names)}
+        self.key = np.array([index.get(k, -1) for k in keys], dtype=np.int64)
+        self.n_keys = len(names)
+        self.code_grant = np.array([index.get(k, -1) for k in ledger.grants["grant_id"]], dtype=np.int64)
+        self.code_group = np.array([index.get(k, -1) for k in ledger.grants["group"]], dtype=np.int64)
+        self.code_star = index.get("*", -1)
+        self.order = np.lexsort((np.arange(len(keys)), self.eff))
         self.cache: dict = {}
 
     def __call__(self, day: int) -> np.ndarray:
+        """Per grant: the rate in force on day number ``day`` (0 where no row applies)."""
         if day not in self.cache:
-            best: dict = {}
-            for j in np.argsort(self.eff, kind="stable"):
-                if self.eff[j] <= day:
-                    best[self.keys[j]] = self.rate[j]
-            star = best.get("*", 0.0)
-            self.cache[day] = np.array([best.get(g, best.get(gr, star) if gr is not None else star)
-                                        for g, gr in zip(self.gid, self.group)], dtype=float)
+            best = np.full(self.n_keys + 1, np.nan)  # last entry: no key
+            for j in self.order[self.eff[self.order] <= day]:
+                if self.key[j] >= 0:
+                    best[self.key[j]] = self.rate[j]
+            pick = lambda codes: np.where(codes >= 0, best[codes], np.nan)  # noqa: E731
+            r = pick(self.code_grant)
+            r = np.where(np.isnan(r), pick(self.code_group), r)
+            if self.code_star >= 0:
+                r = np.where(np.isnan(r), best[self.code_star], r)
+            self.cache[day] = np.nan_to_num(r)
         return self.cache[day]
 
 

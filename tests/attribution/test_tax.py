@@ -232,7 +232,7 @@ def test_ifrs_equity_check_turns_to_fail(tmp_path):
     run = _run(tmp_path / "l", grants=[grant("G1", strike="2")], rates=[rate("*", "2020-01-01", "0.3")],
                prices=[price("2027-12-31", 11), price("2028-12-31", 12)], policy={"standard": "ifrs2"})
     eff = tax_effects(run)
-    eff.in_equity[0, 0] = eff.dta[0, 0] + 1.0
+    eff.in_equity[0, 0] = eff.dta[0, 0] + 0.02
     d, r, j = deferred_tax_table(run.inputs, eff), tax_rollforward(eff), tax_journal(run.inputs, eff)
     assert not tax_checks(run.inputs, eff, d, r, j)[0].tool_pass
 
@@ -287,3 +287,28 @@ def test_share_price_problems(tmp_path):
     msgs = _problems(tmp_path / "l", grants=[grant("G1")], prices=[price("2028-01-01", 0), price("2028-01-01", 3)])
     assert any(m.startswith("share_prices.csv, row 2, share_price: must be positive") for m in msgs)
     assert any(m.startswith("share_prices.csv, row 3, date: 2028-01-01 already has a share price") for m in msgs)
+
+
+def test_tax_sheets_recalculate(tmp_path):
+    """The roll-forward's live closing balances and the checks recalculate (LibreOffice) to the tool's figures."""
+    import openpyxl
+
+    from grantval.io.xlsx.write import write_workbook
+    from grantval.reporting.checks import checks_sheet
+    from tests.io.test_recalculation import SOFFICE, recalculate
+
+    if SOFFICE is None:
+        pytest.skip("LibreOffice is not installed")
+    ev = [event("G1", "2028-06-30", "exercise", 600, 30)]
+    run = _run(tmp_path / "l", grants=[grant("G1")], events=ev, rates=STAR21 + [rate("*", "2028-07-01", "0.25")])
+    eff = tax_effects(run)
+    sheets, checks = tax_sheets(run.inputs, eff)
+    book = tmp_path / "tax.xlsx"
+    write_workbook(book, sheets + [checks_sheet(checks)])
+    wb = openpyxl.load_workbook(recalculate(book, tmp_path), data_only=True)
+    ws = wb["tax_rollforward"]
+    head = [c.value for c in ws[1]]
+    i, j = head.index("Closing deferred tax asset"), head.index("Closing recomputed")
+    rows = list(ws.iter_rows(min_row=2, values_only=True))
+    assert rows and all(abs(r[i] - r[j]) < 0.011 for r in rows)
+    assert all(r[5] == "PASS" for r in wb["checks"].iter_rows(min_row=2, values_only=True))

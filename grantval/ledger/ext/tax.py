@@ -77,19 +77,19 @@ def _rate_cover(parts: LedgerParts, treat: np.ndarray) -> list[Problem]:
     """Every deductible grant needs a tax rate in force on its grant date."""
     rates = parts.tables["tax_rates"]
     g = parts.grants
-    eff = rates["effective_date"].to_numpy("datetime64[D]")
-    keys = rates["applies_to"].to_numpy(dtype=object)
-    out = []
-    for r, gid, grp, gd, t in zip(g["_row"], g["grant_id"], g["group"], g["grant_date"].to_numpy("datetime64[D]"),
-                                  treat):
-        if t != "deductible" or np.isnat(gd):
-            continue
-        ok = ((keys == gid) | ((keys == grp) & (grp is not None)) | (keys == "*")) & (eff <= gd)
-        if not ok.any():
-            out.append(Problem(parts.sources["grants"], int(r), "tax_treatment",
-                               f"grant {gid} is deductible but no tax_rates row (for the grant, its group or '*') "
-                               f"is in force on its grant date {gd}"))
-    return out
+    first = pd.Series(rates["effective_date"].to_numpy("datetime64[D]"),
+                      index=rates["applies_to"].to_numpy(dtype=object)).groupby(level=0).min()
+    gd = g["grant_date"].to_numpy("datetime64[D]")
+    never = np.datetime64("9999-12-31", "D")
+    by_grant = g["grant_id"].map(first).to_numpy("datetime64[D]")
+    by_group = g["group"].map(first).to_numpy("datetime64[D]")
+    star = np.datetime64(first.get("*", never), "D")
+    earliest = np.fmin(np.fmin(by_grant, by_group), star)
+    bad = (treat == "deductible") & ~np.isnat(gd) & ~(earliest <= gd)
+    return [Problem(parts.sources["grants"], int(r), "tax_treatment",
+                    f"grant {gid} is deductible but no tax_rates row (for the grant, its group or '*') "
+                    f"is in force on its grant date {d}")
+            for r, gid, d in zip(g["_row"][bad], g["grant_id"][bad], gd[bad])]
 
 
 def _event_problems(parts: LedgerParts, treat: np.ndarray, with_rates: bool) -> list[Problem]:
