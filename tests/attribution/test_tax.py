@@ -312,3 +312,14 @@ def test_tax_sheets_recalculate(tmp_path):
     rows = list(ws.iter_rows(min_row=2, values_only=True))
     assert rows and all(abs(r[i] - r[j]) < 0.011 for r in rows)
     assert all(r[5] == "PASS" for r in wb["checks"].iter_rows(min_row=2, values_only=True))
+
+
+def test_disposition_needs_a_rate_and_unknown_keys_warn(tmp_path):
+    ev = [event("I1", "2019-03-01", "exercise", 50), event("I1", "2019-05-01", "disqualifying_disposition", 50, 20)]
+    g = [grant("I1", treatment="none", gdate="2018-01-01", expiry="2028-01-01")]
+    _, problems = read_ledger(ledger(tmp_path / "l", grants=g, events=ev,
+                                     rates=STAR21 + [rate("engg", "2020-01-01", "0.3")]))
+    msgs = [str(p) for p in problems]
+    assert any(m.startswith("events.csv, row 3, event_date: no tax_rates row (for grant I1") for m in msgs)
+    warn = [str(p) for p in problems if p.severity == "warning"]
+    assert any(m.startswith("tax_rates.csv, row 3, applies_to: warning: 'engg' is neither a grant") for m in warn)

@@ -75,21 +75,50 @@ def _price_problems(prices: pd.DataFrame, src: str) -> list[Problem]:
 
 def _rate_cover(parts: LedgerParts, treat: np.ndarray) -> list[Problem]:
     """Every deductible grant needs a tax rate in force on its grant date."""
-    rates = parts.tables["tax_rates"]
     g = parts.grants
-    first = pd.Series(rates["effective_date"].to_numpy("datetime64[D]"),
-                      index=rates["applies_to"].to_numpy(dtype=object)).groupby(level=0).min()
     gd = g["grant_date"].to_numpy("datetime64[D]")
-    never = np.datetime64("9999-12-31", "D")
-    by_grant = g["grant_id"].map(first).to_numpy("datetime64[D]")
-    by_group = g["group"].map(first).to_numpy("datetime64[D]")
-    star = np.datetime64(first.get("*", never), "D")
-    earliest = np.fmin(np.fmin(by_grant, by_group), star)
+    earliest = _earliest_rate(parts, g["grant_id"].to_numpy(dtype=object), g["group"].to_numpy(dtype=object))
     bad = (treat == "deductible") & ~np.isnat(gd) & ~(earliest <= gd)
     return [Problem(parts.sources["grants"], int(r), "tax_treatment",
                     f"grant {gid} is deductible but no tax_rates row (for the grant, its group or '*') "
                     f"is in force on its grant date {d}")
             for r, gid, d in zip(g["_row"][bad], g["grant_id"][bad], gd[bad])]
+
+
+def _earliest_rate(parts: LedgerParts, grant_ids, groups) -> np.ndarray:
+    """Per (grant id, group): the first day a tax rate applies to it (NaT when none ever does)."""
+    rates = parts.tables["tax_rates"]
+    first = pd.Series(rates["effective_date"].to_numpy("datetime64[D]"),
+                      index=rates["applies_to"].to_numpy(dtype=object)).groupby(level=0).min()
+    by_grant = pd.Series(grant_ids, dtype=object).map(first).to_numpy("datetime64[D]")
+    by_group = pd.Series(groups, dtype=object).map(first).to_numpy("datetime64[D]")
+    star = np.datetime64(first.get("*", np.datetime64("NaT")), "D")
+    return np.fmin(np.fmin(by_grant, by_group), star)
+
+
+def _key_problems(parts: LedgerParts) -> list[Problem]:
+    """Warn about ``applies_to`` values that are neither a grant, a group nor ``*`` (a typo falls back to ``*``)."""
+    rates, g = parts.tables["tax_rates"], parts.grants
+    known = set(g["grant_id"].dropna()) | set(g["group"].dropna()) | {"*"}
+    return [Problem(parts.sources["tax_rates"], int(r), "applies_to", f"{k!r} is neither a grant, a group nor '*'; "
+                    "the row applies to nothing", "warning")
+            for r, k in zip(rates["_row"], rates["applies_to"]) if k is not None and k not in known]
+
+
+def _dd_rate_problems(parts: LedgerParts) -> list[Problem]:
+    """A disqualifying disposition needs a tax rate in force on its date."""
+    ev, g = parts.tables["events"], parts.grants
+    dd = ev[(ev["event_type"] == DISQUALIFYING) & ev["grant_id"].isin(set(g["grant_id"].dropna()))]
+    if dd.empty:
+        return []
+    group = dict(zip(g["grant_id"], g["group"]))
+    first = _earliest_rate(parts, dd["grant_id"].to_numpy(dtype=object),
+                           np.array([group[k] for k in dd["grant_id"]], dtype=object))
+    day = dd["event_date"].to_numpy("datetime64[D]")
+    bad = ~np.isnat(day) & ~(first <= day)
+    return [Problem(parts.sources["events"], int(r), "event_date", f"no tax_rates row (for grant {k}, its group or "
+                    f"'*') is in force on {d}, the date of this disqualifying_disposition")
+            for r, k, d in zip(dd["_row"][bad], dd["grant_id"][bad], day[bad])]
 
 
 def _event_problems(parts: LedgerParts, treat: np.ndarray, with_rates: bool) -> list[Problem]:
@@ -150,7 +179,7 @@ def check(parts: LedgerParts) -> list[Problem]:
     out = _rate_problems(rates, parts.sources["tax_rates"]) + _price_problems(prices, parts.sources["share_prices"])
     with_rates = len(rates) > 0
     if with_rates:
-        out += _rate_cover(parts, treat)
+        out += _rate_cover(parts, treat) + _dd_rate_problems(parts) + _key_problems(parts)
     out += _event_problems(parts, treat, with_rates)
     out += _disposed_problems(parts)
     return out
