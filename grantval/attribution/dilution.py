@@ -21,8 +21,8 @@ a ledger, its expense engine inputs and the periods.
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass
-from typing import Callable
 
 import numpy as np
 
@@ -36,6 +36,7 @@ CONTINGENT_FRACTION: dict[str, Callable] = {}
 
 
 def _array(name: str, value, low: float, strict: bool = False) -> np.ndarray:
+    """``value`` as a float array, finite and >= ``low`` (> when ``strict``), else :class:`InputError`."""
     a = np.asarray(value, dtype=float)
     bad = ~np.isfinite(a) | ((a <= low) if strict else (a < low))
     if np.any(bad):
@@ -154,6 +155,7 @@ class GrantDilution:
 
 
 def _per_unit(unrec: np.ndarray, units: np.ndarray) -> np.ndarray:
+    """Unrecognised cost per unit outstanding; NaN where no unit is outstanding."""
     with np.errstate(divide="ignore", invalid="ignore"):
         return np.where(units > 0, unrec / np.where(units > 0, units, 1.0), np.nan)
 
@@ -187,7 +189,7 @@ def grant_dilution(ledger, inp, attribution: str, starts: np.ndarray, ends: np.n
     lots = outstanding_lots(ledger, inp)
     s_day = np.asarray(starts, dtype="datetime64[D]").astype(np.int64)
     e_day = np.asarray(ends, dtype="datetime64[D]").astype(np.int64)
-    kw = dict(attribution=attribution, forfeitures="as-occur")
+    kw = {"attribution": attribution, "forfeitures": "as-occur"}
     shape = (n, p)
     wu, u0, u1 = np.zeros(shape), np.zeros(shape), np.zeros(shape)
     for k in range(p):

@@ -149,6 +149,7 @@ class TaxSchedule:
 
 
 def _settled_cost(inp_n: int, s: Settlements, day: int) -> np.ndarray:
+    """Per grant: cumulative cost of the units settled for tax by day number ``day`` (currency)."""
     m = s.day <= day
     return np.bincount(s.grant[m], weights=(s.qty * s.cost_per_unit)[m], minlength=inp_n)
 
@@ -169,15 +170,15 @@ def _in_period(n: int, s: Settlements, tx: TaxInputs, lo: int, hi: int, rate_end
     rs = _rates_on(tx, s.day[m], g)
     ded, cost = q * s.deduction_per_unit[m], q * s.cost_per_unit[m]
     excess, eq = settlement_rule(rs, ded, cost)
-    add = lambda w: np.bincount(g, weights=w, minlength=n).astype(float)  # noqa: E731
-    out = dict(deduction=add(ded), current=add(rs * ded), current_to_equity=add(eq), excess=add(excess),
-               reversed=add(rs * cost), remeasure=add((rs - rate_end[g]) * cost), settled=add(cost))
+    add = lambda w: np.bincount(g, weights=w, minlength=n).astype(float)
+    out = {"deduction": add(ded), "current": add(rs * ded), "current_to_equity": add(eq), "excess": add(excess),
+               "reversed": add(rs * cost), "remeasure": add((rs - rate_end[g]) * cost), "settled": add(cost)}
     md = (tx.dd_day > lo) & (tx.dd_day <= hi)
     if md.any():
         gd = tx.dd_grant[md]
         rd = _rates_on(tx, tx.dd_day[md], gd)
         _, eq_d = settlement_rule(rd, tx.dd_deduction[md], tx.dd_cost[md])
-        addd = lambda w: np.bincount(gd, weights=w, minlength=n)  # noqa: E731
+        addd = lambda w: np.bincount(gd, weights=w, minlength=n)
         out["deduction"] += addd(tx.dd_deduction[md])
         out["current"] += addd(rd * tx.dd_deduction[md])
         out["current_to_equity"] += addd(eq_d)
@@ -229,7 +230,7 @@ def compute_tax(inp, sched, tx: TaxInputs, standard: str, attribution: str, forf
     days = np.concatenate([[np.datetime64(sched.window_start, "D").astype(np.int64) - 1],
                            np.asarray(sched.period_ends, dtype="datetime64[D]").astype(np.int64)])
     cum = np.column_stack([sched.opening_cents, sched.cumulative_cents]) / 100.0
-    z = lambda: np.zeros((n, p))  # noqa: E731
+    z = lambda: np.zeros((n, p))
     out = {k: z() for k in ("dta", "in_equity", "on_cost", "reversed", "rate_changes", "deduction", "current",
                             "current_to_equity", "excess")}
     missing: list = []

@@ -8,7 +8,15 @@ from typing import Annotated
 import typer
 
 from grantval.cli.app import app, check_outputs, command_line, report_outputs, say
-from grantval.cli.options import CsvDir, Ledger, NoTimestamp, PeriodOpt, StandardOpt, Workbook, choice
+from grantval.cli.options import (
+    CsvDir,
+    Ledger,
+    NoTimestamp,
+    PeriodOpt,
+    StandardOpt,
+    Workbook,
+    choice,
+)
 
 
 @app.command("dilution")

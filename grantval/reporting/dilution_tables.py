@@ -36,8 +36,8 @@ def dilution_by_grant(run) -> pd.DataFrame:
     g, inp = run.grants, run.inputs
     n, p = g.weighted_units.shape
     keep = (g.weighted_units > 0).ravel()
-    rep = lambda a: np.repeat(np.asarray(a), p)[keep]  # noqa: E731
-    flat = lambda a: np.asarray(a).ravel()[keep]  # noqa: E731
+    rep = lambda a: np.repeat(np.asarray(a), p)[keep]
+    flat = lambda a: np.asarray(a).ravel()[keep]
     return pd.DataFrame({
         "grant_id": rep(inp.grant_id), "group": rep(inp.group),
         "award_type": rep(run.ledger.grants["award_type"].to_numpy(dtype=object)),
@@ -88,6 +88,7 @@ def _with_formulas(by_grant: pd.DataFrame) -> pd.DataFrame:
 
 
 def _live_check(by_grant: pd.DataFrame, total: float) -> CheckRow:
+    """Check row comparing the total with the SUM of the live recomputation column."""
     col = col_letter(len(by_grant.columns) + 1)
     formula = Formula(f"=SUM(dilution_by_grant!{col}2:{col}{len(by_grant) + 1})") if len(by_grant) else 0.0
     return CheckRow("Incremental shares: total vs live recomputation in dilution_by_grant", total, formula,
@@ -117,14 +118,14 @@ def write_dilution_book(run, xlsx: pathlib.Path, totals, by_grant, checks, comma
 
 
 DILUTION_NOTES = [
-    ("Method", "Treasury stock method (ASC 260-10-45-23, ASC 718-10-45-2; IAS 33.45-47A): assumed proceeds per "
+    ("Method", ("Treasury stock method (ASC 260-10-45-23, ASC 718-10-45-2; IAS 33.45-47A): assumed proceeds per "
                "unit = exercise price + average unrecognised compensation cost per unit (mean of the period's "
                "start and end); incremental shares = units x (1 - proceeds / average price); none when "
-               "proceeds >= average price (anti-dilutive)."),
-    ("Units counted", "Granted and not yet forfeited, cancelled, exercised, expired or vested (share units), "
+               "proceeds >= average price (anti-dilutive).")),
+    ("Units counted", ("Granted and not yet forfeited, cancelled, exercised, expired or vested (share units), "
                       "weighted by days outstanding in the period (ASC 718-10-45-1; IAS 33.38), whatever the "
-                      "forfeiture policy."),
-    ("Periods", "Each period is computed on its own with its own average price; year-to-date figures need "
-                "their own run with the longer period."),
+                      "forfeiture policy.")),
+    ("Periods", ("Each period is computed on its own with its own average price; year-to-date figures need "
+                "their own run with the longer period.")),
     ("Tax", "No tax benefit is included in the assumed proceeds (ASU 2016-09)."),
 ]

@@ -27,6 +27,7 @@ def cents(values) -> np.ndarray:
 
 
 def _groups(inp) -> np.ndarray:
+    """Group of each grant, blank shown as ``(none)`` (as the expense tables do)."""
     g = np.asarray(inp.group, dtype=object)
     return np.where(pd.isna(g) | (g == ""), "(none)", g).astype(str)
 
@@ -61,7 +62,7 @@ def tax_rollforward(eff) -> pd.DataFrame:
     ASC 718-740: opening + on compensation cost - reversed at settlement + rate changes = closing.
     IFRS (IAS 12.68A-68C): opening + to profit or loss + to equity = closing.
     """
-    s = lambda a: a.sum(axis=0)  # noqa: E731
+    s = lambda a: a.sum(axis=0)
     closing = s(eff.dta)
     opening = np.concatenate([[eff.dta_opening.sum()], closing[:-1]])
     frame = {"period_end": np.asarray(eff.period_ends, dtype="datetime64[D]"), "opening_deferred_tax_asset": opening}

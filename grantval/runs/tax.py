@@ -14,7 +14,13 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-from grantval.attribution.tax import Settlements, TaxInputs, TaxSchedule, compute_tax, intrinsic_rule
+from grantval.attribution.tax import (
+    Settlements,
+    TaxInputs,
+    TaxSchedule,
+    compute_tax,
+    intrinsic_rule,
+)
 from grantval.awards.registry import flag
 from grantval.errors import LedgerError, Problem
 from grantval.ledger.ext.tax import DISQUALIFYING, treatments
@@ -51,7 +57,7 @@ class _Rates:
             for j in self.order[self.eff[self.order] <= day]:
                 if self.key[j] >= 0:
                     best[self.key[j]] = self.rate[j]
-            pick = lambda codes: np.where(codes >= 0, best[codes], np.nan)  # noqa: E731
+            pick = lambda codes: np.where(codes >= 0, best[codes], np.nan)
             r = pick(self.code_grant)
             r = np.where(np.isnan(r), pick(self.code_group), r)
             if self.code_star >= 0:
@@ -61,6 +67,7 @@ class _Rates:
 
 
 def _prices(ledger):
+    """``price_at(day_number)``: the ``share_prices`` row of exactly that date, else NaN."""
     t = ledger.tables["share_prices"]
     table = {int(np.datetime64(d, "D").astype(np.int64)): float(x)
              for d, x in zip(t["date"], t["share_price"]) if not pd.isna(d)}

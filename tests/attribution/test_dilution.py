@@ -9,9 +9,12 @@ from grantval import api
 from grantval.attribution import dilution as D
 from grantval.attribution.dilution import treasury_stock_shares
 from grantval.errors import InputError, LedgerError
-from grantval.reporting.dilution_tables import dilution_by_grant, dilution_checks, dilution_totals
+from grantval.reporting.dilution_tables import (
+    dilution_by_grant,
+    dilution_checks,
+    dilution_totals,
+)
 from tests.attribution.tax_ledgers import assumption, event, grant, ledger
-
 
 # --- the pure rule against outside figures --------------------------------------------------------------
 
@@ -49,7 +52,7 @@ def test_antidilutive_when_proceeds_reach_price():
                                      ({"exercise_price": float("nan")}, "exercise_price"),
                                      ({"unrecognised_per_unit": -0.5}, "unrecognised_per_unit")])
 def test_bad_arguments(kw, word):
-    args = dict(units=10.0, exercise_price=5.0, unrecognised_per_unit=0.0, average_price=10.0)
+    args = {"units": 10.0, "exercise_price": 5.0, "unrecognised_per_unit": 0.0, "average_price": 10.0}
     args.update(kw)
     with pytest.raises(InputError, match=word):
         treasury_stock_shares(**args)

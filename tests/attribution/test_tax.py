@@ -1,14 +1,18 @@
 """Income-tax effects: ASC 718-740 deferred tax, excess tax benefits and shortfalls; IAS 12.68A-68C."""
 
-import numpy as np
 import pytest
 
 from grantval import api
 from grantval.attribution.tax import ifrs_deferred_rule, intrinsic_rule, settlement_rule
 from grantval.errors import LedgerError
 from grantval.ledger import read_ledger
-from grantval.reporting.tax_tables import (deferred_tax_table, tax_checks, tax_journal, tax_rollforward,
-                                           tax_sheets)
+from grantval.reporting.tax_tables import (
+    deferred_tax_table,
+    tax_checks,
+    tax_journal,
+    tax_rollforward,
+    tax_sheets,
+)
 from grantval.runs.tax import tax_effects, tax_schedule
 from tests.attribution.tax_ledgers import assumption, event, grant, ledger, price, rate
 

@@ -42,6 +42,7 @@ def treatments(grants: pd.DataFrame) -> np.ndarray:
 
 
 def _rate_problems(rates: pd.DataFrame, src: str) -> list[Problem]:
+    """Rates outside [0, 1) and two rows for one key and effective date."""
     out = []
     for r, x in zip(rates["_row"], rates["tax_rate"].to_numpy(float)):
         if np.isfinite(x) and not 0.0 <= x < 1.0:
@@ -60,6 +61,7 @@ def _rate_problems(rates: pd.DataFrame, src: str) -> list[Problem]:
 
 
 def _price_problems(prices: pd.DataFrame, src: str) -> list[Problem]:
+    """Share prices that are not positive and two rows for one date."""
     out = []
     seen: dict = {}
     for r, d, p in zip(prices["_row"], prices["date"], prices["share_price"].to_numpy(float)):
@@ -122,6 +124,7 @@ def _dd_rate_problems(parts: LedgerParts) -> list[Problem]:
 
 
 def _event_problems(parts: LedgerParts, treat: np.ndarray, with_rates: bool) -> list[Problem]:
+    """Disqualifying dispositions (grant, share price, quantity) and exercises of deductible options without a price."""
     ev, g, src = parts.tables["events"], parts.grants, parts.sources["events"]
     index = {k: i for i, k in enumerate(g["grant_id"])}
     exercisable = flag(g["award_type"].to_numpy(), "exercisable")
