@@ -174,3 +174,21 @@ def tax_schedule(run) -> pd.DataFrame | None:
 
     eff = tax_effects(run)
     return None if eff is None else deferred_tax_table(run.inputs, eff)
+
+
+def write_tax_csvs(run, eff: TaxSchedule, csv_dir) -> list:
+    """Write ``deferred_tax.csv``, ``tax_rollforward.csv`` and ``tax_journal.csv`` in ``csv_dir``; their paths.
+
+    For ``write_expense`` (after its own CSV files; the caller checks the paths against the inputs).
+    """
+    import pathlib
+
+    from grantval.io.csv import write_csv
+    from grantval.reporting.tax_tables import tax_csv_tables
+
+    paths = []
+    for name, (frame, money) in tax_csv_tables(run.inputs, eff).items():
+        path = pathlib.Path(csv_dir) / name
+        write_csv(path, frame, money=money)
+        paths.append(path)
+    return paths

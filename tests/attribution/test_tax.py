@@ -327,3 +327,21 @@ def test_disposition_needs_a_rate_and_unknown_keys_warn(tmp_path):
     assert any(m.startswith("events.csv, row 3, event_date: no tax_rates row (for grant I1") for m in msgs)
     warn = [str(p) for p in problems if p.severity == "warning"]
     assert any(m.startswith("tax_rates.csv, row 3, applies_to: warning: 'engg' is neither a grant") for m in warn)
+
+
+def test_tax_csv_files(tmp_path):
+    import csv
+
+    from grantval.runs.tax import write_tax_csvs
+
+    run = _run(tmp_path / "l", grants=[grant("G1")], events=[event("G1", "2028-06-30", "exercise", 600, 30)],
+               rates=STAR21)
+    paths = write_tax_csvs(run, tax_effects(run), tmp_path)
+    assert [p.name for p in paths] == ["deferred_tax.csv", "tax_rollforward.csv", "tax_journal.csv"]
+    with open(paths[0], newline="") as fh:
+        rows = list(csv.DictReader(fh))
+    assert list(rows[0])[:6] == ["grant_id", "group", "period_end", "deferred_tax_asset", "excess_tax_benefit",
+                                 "to_equity"]
+    assert rows[1]["excess_tax_benefit"] == "2016.00"  # (12,000 - 2,400) x 21%, hand computation
+    with open(paths[2], newline="") as fh:
+        assert next(csv.reader(fh)) == ["period_end", "account", "group", "debit", "credit", "description"]
