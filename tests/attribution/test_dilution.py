@@ -154,3 +154,22 @@ def test_checks_pass_and_turn_to_fail(tmp_path):
     assert not checks[0].tool_pass
     by_grant = by_grant.iloc[1:]
     assert not dilution_checks(run, totals, by_grant)[1].tool_pass
+
+
+from hypothesis import given, settings  # noqa: E402
+from hypothesis import strategies as st  # noqa: E402
+
+_pos = st.floats(0.0, 1e6, allow_nan=False)
+
+
+@settings(max_examples=200, deadline=None)
+@given(q=_pos, k=st.floats(0.0, 500.0), u=st.floats(0.0, 100.0), p=st.floats(0.01, 500.0),
+       bump=st.floats(0.0, 50.0))
+def test_treasury_stock_properties(q, k, u, p, bump):
+    # properties of the method (common practice): never negative, never more than the units; more shares at a
+    # higher average price, fewer at a higher exercise price; anti-dilutive exactly when proceeds >= price.
+    incr, anti = treasury_stock_shares(q, k, u, p)
+    assert 0.0 <= incr <= q * (1 + 1e-12)
+    assert treasury_stock_shares(q, k, u, p + bump)[0] >= incr - 1e-9 * max(1.0, q)
+    assert treasury_stock_shares(q, k + bump, u, p)[0] <= incr + 1e-9 * max(1.0, q)
+    assert anti == ((k + u >= p) and q > 0)

@@ -345,3 +345,21 @@ def test_tax_csv_files(tmp_path):
     assert rows[1]["excess_tax_benefit"] == "2016.00"  # (12,000 - 2,400) x 21%, hand computation
     with open(paths[2], newline="") as fh:
         assert next(csv.reader(fh)) == ["period_end", "account", "group", "debit", "credit", "description"]
+
+
+def test_ifrs_share_units(tmp_path):
+    # 100 units, fair value 10, granted 2029-01-01 vesting 2031-01-01 (730 days).  At 2029-12-31, price 14:
+    # deduction 100 x 1/2 x 14 = 700, DTA 210 at 30%, (700 - 500) x 30% = 60 in equity.  At vesting (2031-01-01,
+    # price 16) the deduction is 1,600: current tax 480, of which (1,600 - 1,000) x 30% = 180 to equity
+    # (IAS 12.68B-68C; hand computation).
+    run = _run(tmp_path / "l", grants=[grant("R1", award="rsu", qty=100, months=24, every=24, gdate="2029-01-01")],
+               assumptions=[assumption(fair_value="10")], rates=[rate("*", "2020-01-01", "0.3")],
+               prices=[price("2029-12-31", 14), price("2030-12-31", 15), price("2031-01-01", 16),
+                       price("2031-12-31", 17)],
+               policy={"standard": "ifrs2"}, start="2029-01-01", through="2031-12-31")
+    eff = tax_effects(run)
+    assert _by(run, eff, "R1", "deferred_tax_asset")[0] == pytest.approx(210.0)
+    assert eff.in_equity[0, 0] == pytest.approx(60.0)
+    assert _by(run, eff, "R1", "current_tax_benefit")[2] == pytest.approx(480.0)
+    assert eff.current_to_equity[0, 2] == pytest.approx(180.0)
+    assert _by(run, eff, "R1", "deferred_tax_asset")[2] == 0.0
