@@ -173,3 +173,36 @@ def test_treasury_stock_properties(q, k, u, p, bump):
     assert treasury_stock_shares(q, k, u, p + bump)[0] >= incr - 1e-9 * max(1.0, q)
     assert treasury_stock_shares(q, k + bump, u, p)[0] <= incr + 1e-9 * max(1.0, q)
     assert anti == ((k + u >= p) and q > 0)
+
+
+@pytest.mark.parametrize("seed", [0, 1, 2])
+def test_weighted_units_match_a_day_by_day_count(tmp_path, seed):
+    """Time weighting against a plain day-by-day count of the units outstanding (a second computation)."""
+    from tests.attribution.random_ledgers import random_ledger
+    from tests.factory import write_ledger
+
+    loc = write_ledger(tmp_path / "l", random_ledger(seed))
+    run = api.dilution(loc, average_prices=_prices(tmp_path / "p", [(f"{y}-{m:02d}-{d}", 30) for y in range(2027, 2031)
+                                                                     for m, d in ((3, 31), (6, 30), (9, 30), (12, 31))]),
+                       start="2027-01-01", through="2030-12-31", period="quarter")
+    led = run.ledger
+    tr, ch, g = led.tranches, led.changes, led.grants
+    option = (g["award_type"] == "option").to_numpy()
+    expiry = g["expiration_date"].to_numpy("datetime64[D]")
+    gdate = g["grant_date"].to_numpy("datetime64[D]")
+    for k in (0, 5, 11, 15):
+        days = np.arange(run.starts[k], run.ends[k] + np.timedelta64(1, "D"))
+        expected = np.zeros(len(g))
+        for t in range(len(tr)):
+            gi = int(tr["grant_idx"].iat[t])
+            mine = ch[ch["tranche_idx"] == t]
+            gone = (mine["date"].to_numpy("datetime64[D]")[:, None] <= days[None, :]) * mine["quantity"].to_numpy()[:, None]
+            left = int(tr["quantity"].iat[t]) - gone.sum(axis=0)
+            left = np.where(days >= gdate[gi], left, 0)
+            if option[gi]:
+                left = np.where(days > expiry[gi], 0, left)
+            else:
+                left = np.where(days >= np.datetime64(tr["vest_date"].iat[t], "D"), 0, left)
+            expected[gi] += left.sum()
+        expected /= len(days)
+        assert np.allclose(run.grants.weighted_units[:, k], expected, atol=1e-9), (seed, k)
