@@ -11,6 +11,7 @@ from grantval.runs.check import CheckReport, check
 from grantval.runs.close import close, export_register, register_closes, reopen, verify_register  # noqa: F401
 from grantval.runs.common import reconcile
 from grantval.runs.disclose import DisclosureRun, disclose, write_disclosure
+from grantval.runs.dilution import DilutionRun, dilution, write_dilution  # noqa: F401
 from grantval.runs.expense import ExpenseOutputs, ExpenseRun, expense, write_expense
 from grantval.runs.value import ValueRun, value, write_fair_values
 from grantval.runs.whatif import whatif, write_whatif

@@ -14,6 +14,7 @@ import typer
 
 from grantval.cli import expense_commands, ledger_commands, market_commands, price, whatif_commands  # noqa: F401
 from grantval.cli import close_commands  # noqa: F401
+from grantval.cli import dilution_commands  # noqa: F401
 from grantval.cli.app import QUIET, app, message, version_callback
 from grantval.errors import GrantvalError
 

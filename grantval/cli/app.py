@@ -22,6 +22,7 @@ OPTION_NAMES = {
     "contractual_term": "--contractual-term", "ticker": "--ticker", "lookback": "--lookback",
     "register": "--register",
     "reason": "--reason",
+    "average_prices": "--average-prices",
 }
 
 

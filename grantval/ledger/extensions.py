@@ -25,6 +25,7 @@ MODULES: tuple[str, ...] = (
     "grantval.ledger.ext.performance",
     "grantval.ledger.ext.cash",
     "grantval.ledger.ext.accounts",
+    "grantval.ledger.ext.tax",
 )
 
 
