@@ -44,7 +44,8 @@ def expense_cmd(
     from grantval.runs.expense import CSV_NAMES
 
     check_outputs(output, csv_dir)
-    names = CSV_NAMES + ["liabilities.csv"] + (["booked_vs_recomputed.csv"] if register is not None else [])
+    names = CSV_NAMES + ["liabilities.csv", "deferred_tax.csv", "tax_rollforward.csv", "tax_journal.csv"] + (
+        ["booked_vs_recomputed.csv"] if register is not None else [])
     with output_set({"-o": output}, {"--csv-dir": (csv_dir, names)}, inputs=[ledger, register], ledgers=[ledger],
                     timestamp=not no_timestamp) as plan:
         run = api.expense(ledger, through=through, start=start, forecast_through=forecast_through,

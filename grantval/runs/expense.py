@@ -85,7 +85,8 @@ def expense(location, *, through, start=None, forecast_through=None, period=None
                       None if forecast_d is None else str(forecast_d))
 
 
-def _write_csvs(run: ExpenseRun, paths, by_group, group_sums, tranches, unrec, liabilities=None) -> None:
+def _write_csvs(run: ExpenseRun, paths, by_group, group_sums, tranches, unrec, liabilities=None,
+                extra: dict | None = None) -> None:
     inp, sched = run.inputs, run.schedule
     pathlib.Path(paths[0]).parent.mkdir(parents=True, exist_ok=True)
     write_csv(paths[0], T.long_expense(inp, sched), money=("expense", "cumulative_expense"))
@@ -96,6 +97,8 @@ def _write_csvs(run: ExpenseRun, paths, by_group, group_sums, tranches, unrec, l
     write_csv(paths[4], unrec, money=("recognised_to_date", "unrecognised_cost"))
     if liabilities is not None:
         write_csv(paths[5], liabilities, money=("liability", "cash_paid"))
+    for name, (frame, money) in (extra or {}).items():  # tax tables, by file name
+        write_csv(pathlib.Path(paths[0]).parent / name, frame, money=money)
 
 
 def _write_book(run: ExpenseRun, xlsx, tables: dict, disc, checks, command, timestamp, share_price) -> None:
@@ -151,8 +154,13 @@ def write_expense(run: ExpenseRun, xlsx: pathlib.Path | None, csv_dir: pathlib.P
     from grantval.reporting import liability_tables as LT
 
     inp, sched = run.inputs, run.schedule
+    from grantval.reporting import tax_tables as TX
+    from grantval.runs.tax import tax_effects
+
     lf = LT.liability_figures(run)
-    paths = csv_paths(csv_dir, CSV_NAMES + (["liabilities.csv"] if lf is not None else []))
+    tax = tax_effects(run)
+    tax_csvs = TX.tax_csv_tables(inp, tax) if tax is not None else {}
+    paths = csv_paths(csv_dir, CSV_NAMES + (["liabilities.csv"] if lf is not None else []) + list(tax_csvs))
     outputs = paths + ([pathlib.Path(xlsx)] if xlsx is not None else [])
     refuse_overwriting_inputs(outputs, ledger_inputs(run.ledger))
     with stage("tables"):
@@ -169,14 +177,16 @@ def write_expense(run: ExpenseRun, xlsx: pathlib.Path | None, csv_dir: pathlib.P
             table_rows=len(by_grant) if by_grant is not None else cells.shape[0])
         checks = C.expense_checks(run, figures, tranches, unrec, disc, recomputed_column(run.fair_values.table))
         checks += LT.liability_checks(run, lf) if lf is not None else []
+        tax_sheets, tax_checks = TX.tax_sheets(inp, tax) if tax is not None else ([], [])
+        checks += tax_checks
     with stage("write csv"):
         if paths:
             _write_csvs(run, paths, by_group, group_sums, tranches, unrec,
-                        LT.liability_table(run, lf) if lf is not None else None)
+                        LT.liability_table(run, lf) if lf is not None else None, tax_csvs)
     with stage("write workbook"):
         if xlsx is not None:
             tables = dict(by_grant=by_grant, by_group=by_group, tranches=tranches, unrec=unrec,
                           unrec_total=unrec_total, unrec_wa=unrec_wa, forecast=forecast,
-                          liability_sheets=LT.liability_sheets(run, lf) if lf is not None else [])
+                          liability_sheets=(LT.liability_sheets(run, lf) if lf is not None else []) + tax_sheets)
             _write_book(run, xlsx, tables, disc, checks, command, timestamp, share_price)
     return ExpenseOutputs(outputs, checks)
