@@ -72,8 +72,10 @@ def _coerce(key: str, text: str):
             return None, f"{text!r} must be a month number from 1 to 12"
         return int(low), None
     if key == "lattice_steps":
-        if not low.isdigit() or int(low) < 4:
-            return None, f"{text!r} must be a whole number of at least 4"
+        from grantval.pricing.lattice import MAX_STEPS
+
+        if not low.isdigit() or not 4 <= int(low) <= MAX_STEPS:
+            return None, f"{text!r} must be a whole number from 4 to {MAX_STEPS:,}"
         return int(low), None
     return None, "unknown policy key"
 
@@ -128,8 +130,14 @@ def resolve_policy(ledger_values: dict | None = None, **overrides) -> Policy:
     for k, v in overrides.items():
         if v is None:
             continue
+        if k == "lattice_steps":
+            from grantval.pricing.lattice import MAX_STEPS
+
+            if not 4 <= int(v) <= MAX_STEPS:
+                raise UsageError(f"{{lattice_steps}} must be a whole number from 4 to {MAX_STEPS:,}; got {v}",
+                                 ("lattice_steps",))
         if k in _CHOICES and v not in _CHOICES[k]:
-            raise UsageError(f"--{k.replace('_', '-')} must be one of: {', '.join(_CHOICES[k])}; got {v!r}")
+            raise UsageError(f"{{{k}}} must be one of: {', '.join(_CHOICES[k])}; got {v!r}", (k,))
         explicit[k] = v
     if explicit.get("standard") == "ifrs2":
         if explicit.get("attribution", "graded") != "graded":

@@ -20,6 +20,8 @@ OPTION_NAMES = {
     "fiscal_year_end_month": "--fiscal-year-end-month", "dates": "--dates", "ledger": "--ledger",
     "frequency": "--frequency", "peer_weight": "--peer-weight", "expected_term": "--expected-term",
     "contractual_term": "--contractual-term", "ticker": "--ticker", "lookback": "--lookback",
+    "volatility": "--volatility", "risk_free_rate": "--risk-free-rate", "dividend_yield": "--dividend-yield",
+    "exercise_price": "--exercise-price",
     "register": "--register",
     "reason": "--reason",
     "average_prices": "--average-prices",

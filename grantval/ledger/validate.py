@@ -202,7 +202,25 @@ def check_grant_assumptions(g: pd.DataFrame, a: pd.DataFrame, pos: np.ndarray, a
         reported.add(key)
         p.append(Problem(asrc, int(a["_row"].iat[j]), "expected_term_years",
                          f"{t:g} years is longer than the contractual term {c:.4f} years of grant {g['grant_id'].iat[gidx]}"))
+    p += _lattice_range(g, a, gi, ai, option & ~supplied, contract, asrc)
     return p
+
+
+def _lattice_range(g, a, gi, ai, valued, contract, asrc) -> list[Problem]:
+    """Lattice rows whose volatility x sqrt(contractual term) the lattice cannot span (pricing.lattice)."""
+    from grantval.pricing.lattice import MAX_TOTAL_VOLATILITY
+
+    lattice = valued & (a["model"].to_numpy()[ai] == "lattice")
+    total = a["volatility"].to_numpy(float)[ai] * np.sqrt(np.maximum(np.nan_to_num(contract), 0.0))
+    out, seen = [], set()
+    for j, gidx, x in zip(ai[lattice & (total > MAX_TOTAL_VOLATILITY)], gi[lattice & (total > MAX_TOTAL_VOLATILITY)],
+                          total[lattice & (total > MAX_TOTAL_VOLATILITY)]):
+        if j not in seen:
+            seen.add(j)
+            out.append(Problem(asrc, int(a["_row"].iat[j]), "volatility",
+                               f"volatility x sqrt(contractual term) is {x:.2f} for grant {g['grant_id'].iat[gidx]}, "
+                               f"beyond {MAX_TOTAL_VOLATILITY:g}, the range the lattice can value reliably"))
+    return out
 
 
 def check_tranches_table(t: pd.DataFrame, g: pd.DataFrame, src: str) -> tuple[pd.DataFrame, list[Problem]]:
