@@ -54,6 +54,8 @@ class ExpenseInputs:
     #: award features whose cost is not the layers' (liabilities remeasured at each date, payouts in
     #: force at each date ...): each :class:`CostHook` computes the cumulative cost of its grants
     cost_hooks: list = field(default_factory=list)
+    #: modifications of the ledger's awards (attribution.modifications.ModificationReport), None when none
+    modifications: object = None
     _prep: object = None
 
     def __post_init__(self):
@@ -157,8 +159,12 @@ def hook_builders() -> list[Callable]:
     return [performance.build_hook]
 
 
-def build_inputs(ledger: Ledger, fair_values: "FairValues") -> ExpenseInputs:
-    """Collect the engine's arrays from a ledger and its fair values, with the features' cost hooks."""
+def build_inputs(ledger: Ledger, fair_values: "FairValues", policy=None) -> ExpenseInputs:
+    """Collect the engine's arrays from a ledger and its fair values, with the features' cost hooks.
+
+    ``policy`` (standard, valuation unit, lattice steps) values and treats the ledger's modifications;
+    the default policy when None.
+    """
     from grantval.attribution.service import service_end
 
     g, tr, ch, est = ledger.grants, ledger.tranches, ledger.changes, ledger.estimates
@@ -186,5 +192,18 @@ def build_inputs(ledger: Ledger, fair_values: "FairValues") -> ExpenseInputs:
         est_fraction=est["expected_vest_fraction"].to_numpy(float),
         t_service_end=service_end(ledger, t_vest),
     )
+    _modify(ledger, fair_values, inp, policy)
     inp.cost_hooks = [h for h in (b(ledger, fair_values, inp) for b in hook_builders()) if h is not None]
     return inp
+
+
+def _modify(ledger: Ledger, fair_values, inp: ExpenseInputs, policy) -> None:
+    """Modifications: vest dates in force (acceleration) and incremental cost layers (in place)."""
+    from grantval.attribution import modifications
+    from grantval.attribution.layers import append_layers
+    from grantval.policy import Policy
+
+    got = modifications.build(ledger, fair_values, inp, policy or Policy())
+    if got is not None:
+        inp.t_vest, extra, inp.modifications = got
+        inp.layers = append_layers(inp.layers, extra)
