@@ -1,0 +1,316 @@
+"""Modifications: repricing, extended exercise window, accelerated vesting, reduced quantity.
+
+Outside values: IFRS 2 IG Example 7 (figures from memory, reconstructed below), ASC 718-20-55-107/108
+(Example 14, Type I and Type III principles, as quoted in the Deloitte roadmap 6.3), QuantLib's
+AnalyticEuropeanEngine for the BSM values before and after an extension.
+"""
+
+import math
+
+import numpy as np
+import pytest
+
+from grantval.attribution.inputs import build_inputs
+from grantval.attribution.periods import compute_schedule
+from grantval.errors import LedgerError
+from grantval.ledger import load_ledger
+from grantval.measurement.fairvalue import compute_fair_values
+from grantval.policy import resolve_policy
+from grantval.reporting.modification_tables import disclosure_table, modification_table
+from tests.factory import write_ledger
+from tests.pricing import ql_reference as qlr
+
+OPTION = {"holder_id": "all", "group": "", "award_type": "option", "exercise_price": "20",
+          "expiration_date": "2035-01-01", "vest_start_date": "", "cliff_months": "0", "assumption_set": "g"}
+
+
+def _assumption(name, price="20", fair_value="", vol="", rate="", term=""):
+    return {"assumption_set": name, "grant_date": "", "share_price": price, "volatility": vol,
+            "risk_free_rate": rate, "dividend_yield": "0", "expected_term_years": term, "model": "bsm",
+            "exercise_multiple": "", "post_vest_exit_rate": "", "fair_value": fair_value}
+
+
+def _mod(grant, date, **cells):
+    row = {"grant_id": grant, "modification_date": date, "exercise_price": "", "expiration_date": "",
+           "quantity": "", "accelerate": "", "assumption_set": "", "fair_value_before": "",
+           "fair_value_after": "", "original_expected_to_vest": ""}
+    row.update(cells)
+    return row
+
+
+def run(folder, through, standard="ifrs2", attribution=None, forfeitures=None):
+    led = load_ledger(folder)
+    pol = resolve_policy(led.policy_values, standard=standard, attribution=attribution, forfeitures=forfeitures,
+                         period="year")
+    fv = compute_fair_values(led, pol)
+    inp = build_inputs(led, fv, pol)
+    return led, pol, inp, compute_schedule(inp, pol, np.datetime64(through), None, None)
+
+
+def ig_example_7(folder, repriced=True):
+    # IFRS 2 IG Example 7 (grant of share options that are subsequently repriced), figures from memory:
+    # 100 options to each of 500 employees, three years' service; fair value 15 per option at the grant
+    # date. Year 1: 40 leave, 70 in all expected to leave over the three years (390 expected to vest).
+    # End of year 1 the options are repriced: fair value immediately before 5, after 8 (incremental 3).
+    # Year 2: 35 leave, 30 more expected in year 3 (395 expected). Year 3: 28 leave; 397 x 100 vest.
+    # Expense per year: 195,000 / 259,250 / 260,350.
+    grants = [{**OPTION, "grant_id": "R", "grant_date": "2025-01-01", "quantity": "50000", "vest_months": "36",
+               "vest_every_months": "36"}]
+    est = [{"applies_to": "*", "effective_date": d, "annual_forfeiture_rate": "", "expected_vest_fraction": f}
+           for d, f in (("2025-12-31", "0.78"), ("2026-12-31", "0.79"), ("2027-12-31", "0.794"))]
+    events = [{"grant_id": "R", "event_date": f"{y}-12-31", "event_type": "forfeit", "quantity": q,
+               "share_price": ""} for y, q in ((2025, "4000"), (2026, "3500"), (2027, "2800"))]
+    mods = [_mod("R", "2026-01-01", exercise_price="12", fair_value_before="5", fair_value_after="8")]
+    tables = {"grants": grants, "assumptions": [_assumption("g", fair_value="15")], "estimates": est,
+              "events": events}
+    if repriced:
+        tables["modifications"] = mods
+    return write_ledger(folder, tables)
+
+
+def test_ifrs2_ig_example_7_repricing(tmp_path):
+    _, _, _, s = run(ig_example_7(tmp_path / "l"), "2027-12-31")
+    # IFRS 2 IG Example 7 (from memory): 195,000 / 259,250 / 260,350
+    assert list(s.expense_cents[0]) == [19_500_000, 25_925_000, 26_035_000]
+
+
+def test_ig_example_7_without_the_repricing_differs(tmp_path):
+    # the same ledger without the modification: 395 x 100 x 15 x 2/3 - 195,000 = 200,000 in year 2,
+    # 397 x 100 x 15 - 395,000 = 200,500 in year 3
+    _, _, _, s = run(ig_example_7(tmp_path / "l", repriced=False), "2027-12-31")
+    assert list(s.expense_cents[0]) == [19_500_000, 20_000_000, 20_050_000]
+
+
+def test_asc718_repricing_probable_to_probable(tmp_path):
+    # ASC 718-20-35-3 and 55-107 (Type I, probable to probable): the grant-date cost continues and the
+    # incremental value is recognised over the remaining requisite service; with one cliff tranche and
+    # the same forfeiture estimates the figures are IG Example 7's (straight-line = graded for one tranche)
+    _, _, _, s = run(ig_example_7(tmp_path / "l"), "2027-12-31", standard="asc718", attribution="straight-line",
+                     forfeitures="estimate")
+    assert list(s.expense_cents[0]) == [19_500_000, 25_925_000, 26_035_000]
+
+
+def test_asc718_repricing_as_forfeitures_occur(tmp_path):
+    # common practice (ASC 718-10-35-3 as-occur election): 50,000 outstanding in year 1, then 46,000
+    # (15 x 2/3 + 3 x 1/2) after the year-1 leavers, 39,700 x 18 at vesting
+    _, _, _, s = run(ig_example_7(tmp_path / "l"), "2027-12-31", standard="asc718", forfeitures="as-occur")
+    c = s.cumulative_cents[0]
+    assert c[0] == 46_000 * 15 * 100 // 3          # leavers of 2025-12-31 counted at the year end
+    assert c[1] == round(42_500 * (15 * 2 / 3 + 3 * 0.5) * 100)
+    assert c[2] == 39_700 * 18 * 100
+
+
+def leaver_accelerated(folder, expected="no"):
+    # invented figures: 1,000 options, fair value 10 at the grant date, four-year cliff from 2027-01-01;
+    # the holder leaves on 2029-01-01 and would forfeit; the company accelerates vesting on that date;
+    # fair value per option on 2029-01-01 immediately before 4, after 6 (outside valuation)
+    grants = [{**OPTION, "grant_id": "L", "grant_date": "2027-01-01", "quantity": "1000", "vest_months": "48",
+               "vest_every_months": "48", "expiration_date": "2037-01-01"}]
+    mods = [_mod("L", "2029-01-01", accelerate="yes", fair_value_before="4", fair_value_after="6",
+                 original_expected_to_vest=expected)]
+    return write_ledger(folder, {"grants": grants, "assumptions": [_assumption("g", fair_value="10")],
+                                 "modifications": mods})
+
+
+def test_asc718_type_iii_acceleration_of_a_leaver(tmp_path):
+    # ASC 718-20-55-108 (Example 14 Case C, improbable to probable): the cost recognised is the modified
+    # award's fair value on the modification date, 1,000 x 6 = 6,000; the original cost is reversed
+    _, _, inp, s = run(leaver_accelerated(tmp_path / "l"), "2029-12-31", standard="asc718")
+    c = s.cumulative_cents[0]
+    days = (np.datetime64("2031-01-01") - np.datetime64("2027-01-01")).astype(int)
+    assert c[0] == round(1000 * 10 * 365 / days * 100)   # 2027 on the original terms
+    assert c[1] == round(1000 * 10 * 731 / days * 100)   # 2028 (a leap year)
+    assert c[2] == 600_000                               # 2029: 6,000 in all
+
+
+def test_asc718_type_i_acceleration_keeps_the_grant_date_cost(tmp_path):
+    # ASC 718-20-55-107 (Type I): expected to vest before the modification: 10,000 + 2,000 incremental
+    _, _, _, s = run(leaver_accelerated(tmp_path / "l", expected="yes"), "2029-12-31", standard="asc718")
+    assert s.cumulative_cents[0, 2] == 1_200_000
+
+
+@pytest.mark.parametrize("attribution", ["graded", "straight-line"])
+def test_type_iii_under_both_attributions(tmp_path, attribution):
+    _, _, _, s = run(leaver_accelerated(tmp_path / "l"), "2029-12-31", standard="asc718", attribution=attribution)
+    assert s.cumulative_cents[0, 2] == 600_000
+
+
+def test_ifrs2_acceleration_of_a_leaver(tmp_path):
+    # IFRS 2.27, B43(a) and (c): the grant-date fair value is recognised as the award now vests, plus the
+    # incremental 1,000 x (6 - 4); IFRS 2 has no reversal for an award not expected to vest
+    _, _, _, s = run(leaver_accelerated(tmp_path / "l"), "2029-12-31", standard="ifrs2")
+    assert s.cumulative_cents[0, 2] == 1_200_000
+
+
+def test_acceleration_makes_an_exercise_after_it_valid(tmp_path):
+    folder = leaver_accelerated(tmp_path / "l")
+    write_ledger(folder, {"events": [{"grant_id": "L", "event_date": "2029-03-01", "event_type": "exercise",
+                                      "quantity": "1000", "share_price": "25"}]})
+    led = load_ledger(folder)
+    assert led.changes["kind"].tolist() == ["exercise"]
+
+
+def reduced(folder):
+    # invented figures: 1,000 options at 10, three-year cliff from 2025-01-01; on 2026-01-01 the award
+    # is reduced to 600 options, nothing else changes (fair value 4 before and after)
+    grants = [{**OPTION, "grant_id": "Q", "grant_date": "2025-01-01", "quantity": "1000", "vest_months": "36",
+               "vest_every_months": "36"}]
+    mods = [_mod("Q", "2026-01-01", quantity="600", fair_value_before="4", fair_value_after="4")]
+    return write_ledger(folder, {"grants": grants, "assumptions": [_assumption("g", fair_value="10")],
+                                 "modifications": mods})
+
+
+def test_ifrs2_reduction_in_quantity_is_a_partial_cancellation(tmp_path):
+    # IFRS 2 B44(b) and 28(a): the 400 options removed are cancelled: their remaining cost is recognised
+    # on the modification date; the other 600 continue. Year 1: 1,000 x 10 / 3; year 2: 400 x 10 x 2/3
+    # + 600 x 10 / 3; year 3: 600 x 10 / 3.
+    led, _, _, s = run(reduced(tmp_path / "l"), "2027-12-31")
+    assert list(s.expense_cents[0]) == [333_333, 466_667, 200_000]
+    assert led.changes["kind"].tolist() == ["cancel"] and led.changes["quantity"].tolist() == [400]
+
+
+def test_reduction_problems_name_the_modifications_table(tmp_path):
+    folder = reduced(tmp_path / "l")
+    write_ledger(folder, {"events": [{"grant_id": "Q", "event_date": "2025-06-30", "event_type": "forfeit",
+                                      "quantity": "500", "share_price": ""}]})
+    with pytest.raises(LedgerError) as e:
+        load_ledger(folder)
+    text = str(e.value)
+    assert "modifications" in text and "quantity" in text and "not supported yet" in text
+
+
+def leaver_window(folder):
+    # invented figures: 1,000 options, strike 10, four annual tranches from 2027-01-01; the holder leaves
+    # on 2029-01-01 (500 vested kept, 500 unvested forfeited); the plan's 90-day window ends 2029-04-01
+    # (row 1: the plan's own terms, a shorter life: no cost); on 2029-01-02 the window is extended to
+    # 2030-01-02 (row 2), both valued with BSM at the simplified-method term (half the remaining life)
+    grants = [{**OPTION, "grant_id": "W", "grant_date": "2027-01-01", "quantity": "1000", "exercise_price": "10",
+               "expiration_date": "2037-01-01", "vest_months": "48", "vest_every_months": "12"}]
+    a = [_assumption("g", price="10", fair_value="4"), _assumption("m", price="12", vol="0.5", rate="0.04")]
+    events = [{"grant_id": "W", "event_date": "2029-01-01", "event_type": "forfeit", "quantity": "",
+               "share_price": ""}]
+    mods = [_mod("W", "2029-01-01", expiration_date="2029-04-01", assumption_set="m"),
+            _mod("W", "2029-01-02", expiration_date="2030-01-02", assumption_set="m")]
+    return write_ledger(folder, {"grants": grants, "assumptions": a, "events": events, "modifications": mods})
+
+
+def _ql_bsm(s, k, years, r, vol):
+    # QuantLib prices on whole days, Actual/365 Fixed: the same total variance and discounting as
+    # grantval's year fraction (days / 365.25) through rescaled volatility and rate
+    days = 365
+    scale = years * 365 / days
+    return qlr.european(s, k, days, r * scale, vol * math.sqrt(scale), 0.0)
+
+
+def test_extension_of_the_exercise_window_bsm_before_and_after(tmp_path):
+    led, pol, inp, s = run(leaver_window(tmp_path / "l"), "2029-12-31", standard="asc718", attribution="graded")
+    table = modification_table(inp.modifications, led)
+    second = table.iloc[1]
+    t_before = 89 / 365.25 / 2     # 2029-01-02 to 2029-04-01, simplified method on a vested option
+    t_after = 365 / 365.25 / 2     # 2029-01-02 to 2030-01-02
+    # QuantLib AnalyticEuropeanEngine
+    assert second["fair_value_before"] == pytest.approx(_ql_bsm(12, 10, t_before, 0.04, 0.5), abs=1e-9)
+    assert second["fair_value_after"] == pytest.approx(_ql_bsm(12, 10, t_after, 0.04, 0.5), abs=1e-9)
+    inc = 500 * (second["fair_value_after"] - second["fair_value_before"])
+    assert second["incremental_cost"] == pytest.approx(inc, rel=1e-12)
+    assert second["recognised_on_modification_date"] == pytest.approx(inc, rel=1e-12)
+    assert "extended expiration" in second["change"] and second["units_before"] == 500
+    # row 1 shortens the life: a decrease, ignored (ASC 718-20-35-3: no less than the grant-date cost)
+    assert table.iloc[0]["incremental_cost"] == 0.0
+    # 2029 costs the incremental value more than the same ledger without the extension
+    assert s.expense_cents[0, -1] - _without_extension(tmp_path) == round(inc * 100)
+
+
+def _without_extension(tmp_path, events=None):
+    folder = leaver_window(tmp_path / "without")
+    if events:
+        write_ledger(folder, {"events": events})
+    mods = (folder / "modifications.csv").read_text().splitlines()
+    (folder / "modifications.csv").write_text("\n".join(mods[:2]) + "\n")
+    return run(folder, "2029-12-31", standard="asc718", attribution="graded")[3].expense_cents[0, -1]
+
+
+def test_exercise_after_the_original_expiration_needs_the_extension(tmp_path):
+    folder = leaver_window(tmp_path / "l")
+    write_ledger(folder, {"events": [
+        {"grant_id": "W", "event_date": "2029-01-01", "event_type": "forfeit", "quantity": "", "share_price": ""},
+        {"grant_id": "W", "event_date": "2029-09-01", "event_type": "exercise", "quantity": "500",
+         "share_price": "15"}]})
+    led = load_ledger(folder)  # accepted: the extension is in force on 2029-09-01
+    assert "exercise" in led.changes["kind"].tolist()
+    mods = (folder / "modifications.csv").read_text().splitlines()
+    (folder / "modifications.csv").write_text("\n".join(mods[:2]) + "\n")  # without the extension
+    with pytest.raises(LedgerError, match="after the expiration date"):
+        load_ledger(folder)
+
+
+def test_exercised_units_take_no_incremental_value(tmp_path):
+    folder = leaver_window(tmp_path / "l")
+    events = [
+        {"grant_id": "W", "event_date": "2028-06-30", "event_type": "exercise", "quantity": "200", "share_price": "15"},
+        {"grant_id": "W", "event_date": "2029-01-01", "event_type": "forfeit", "quantity": "", "share_price": ""}]
+    write_ledger(folder, {"events": events})
+    led, _, inp, s = run(folder, "2029-12-31", standard="asc718", attribution="graded")
+    row = modification_table(inp.modifications, led).iloc[1]
+    assert row["units_before"] == 300
+    inc = 300 * (row["fair_value_after"] - row["fair_value_before"])
+    assert s.expense_cents[0, -1] - _without_extension(tmp_path, events) == round(inc * 100)
+
+
+def test_disclosure_table_counts_holders_and_cost(tmp_path):
+    led, _, inp, _ = run(leaver_accelerated(tmp_path / "l"), "2029-12-31", standard="asc718")
+    d = disclosure_table(inp.modifications, led)
+    assert d["holders_affected"].tolist() == [1] and d["change"].tolist() == ["accelerated vesting"]
+    assert d["incremental_cost"].iloc[0] == pytest.approx(6000 - 10000)  # Type III: 6,000 replaces 10,000
+
+
+BAD = [
+    (_mod("G1", "2026-06-30", exercise_price="8", assumption_set="m"), "modification_date", "before the grant date"),
+    (_mod("G1", "2038-01-01", exercise_price="8", assumption_set="m"), "modification_date", "expiration date"),
+    (_mod("G1", "2028-01-01", expiration_date="2027-12-31", assumption_set="m"), "expiration_date",
+     "not after the modification date"),
+    (_mod("G1", "2028-01-01", exercise_price="8", fair_value_before="2"), "fair_value_after", "is required"),
+    (_mod("G1", "2028-01-01", exercise_price="8", assumption_set="nope"), "assumption_set", "'nope'"),
+    (_mod("G1", "2028-01-01", exercise_price="8"), "assumption_set", "is required"),
+    (_mod("G1", "2028-01-01", vest_months="24", assumption_set="m"), "vest_months", "not supported yet"),
+    (_mod("G1", "2028-01-01", quantity="2000", assumption_set="m"), "quantity", "not supported yet"),
+    (_mod("G2", "2028-01-01", exercise_price="8", assumption_set="m"), "exercise_price", "only options"),
+    (_mod("G9", "2028-01-01", exercise_price="8", assumption_set="m"), "grant_id", "not a grant"),
+]
+
+
+@pytest.mark.parametrize("row,column,words", BAD)
+def test_bad_modifications_name_file_row_and_column(tmp_path, row, column, words):
+    from tests.factory import tables
+
+    t = tables(modifications=[row])
+    t["assumptions"].append(_assumption("m", price="8", vol="0.4", rate="0.04"))
+    folder = write_ledger(tmp_path / "l", t)
+    with pytest.raises(LedgerError) as e:
+        load_ledger(folder)
+    found = [p for p in e.value.problems if p.column == column]
+    assert found, e.value.problems
+    assert found[0].source == "modifications.csv" and found[0].row == 2 and words in found[0].message
+
+
+def test_two_modifications_of_one_grant_on_one_date(tmp_path):
+    from tests.factory import tables
+
+    t = tables(modifications=[_mod("G1", "2028-01-01", exercise_price="8", assumption_set="m"),
+                              _mod("G1", "2028-01-01", accelerate="yes", assumption_set="m")])
+    t["assumptions"].append(_assumption("m", price="8", vol="0.4", rate="0.04"))
+    with pytest.raises(LedgerError) as e:
+        load_ledger(write_ledger(tmp_path / "l", t))
+    p = [p for p in e.value.problems if "already has a modification" in p.message]
+    assert p and p[0].row == 3 and p[0].column == "modification_date"
+
+
+def test_replacement_grants_are_refused_for_now(tmp_path):
+    from tests.factory import tables
+
+    t = tables()
+    for g in t["grants"]:
+        g["replaces_grant_id"] = ""
+    t["grants"][2]["replaces_grant_id"] = "G1"
+    with pytest.raises(LedgerError, match="not supported yet"):
+        load_ledger(write_ledger(tmp_path / "l", t))
