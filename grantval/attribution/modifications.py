@@ -127,26 +127,89 @@ def _subset(values, m):
     return _Sub(values, m)
 
 
+def replacement_layers(rv, inp) -> tuple[CostLayers, np.ndarray, np.ndarray]:
+    """Layers that leave a replacement grant only its incremental value (ASC 718-20-35-8; IFRS 2.28(c)).
+
+    The replacement's grant-date fair value (its own layer) is reduced by the fair value of the
+    cancelled grant immediately before (total, both on the replacement's grant date), never below
+    zero (a decrease is ignored: IFRS 2 B44(a); ASC 718-20-35-3); the cancelled grant's own cost
+    continues on its original schedule (its cancellation does not accelerate it: see :func:`build`).
+
+    Returns the layers, the incremental value (currency) and the replacement's fair value (currency),
+    per replacement.
+    """
+    total = np.bincount(inp.t_grant, weights=inp.t_fv * inp.t_qty, minlength=inp.n_grants)[rv.new]
+    incremental = np.maximum(total - rv.value_before, 0.0)
+    ratio = np.where(total > 0, incremental / np.where(total > 0, total, 1.0), 0.0)
+    per_grant = np.full(inp.n_grants, np.nan)
+    per_grant[rv.new] = ratio
+    tr = np.flatnonzero(~np.isnan(per_grant[inp.t_grant]))
+    fv = -inp.t_fv[tr] * (1.0 - per_grant[inp.t_grant[tr]])
+    keep = fv != 0
+    gdate = np.asarray(inp.grant_date, dtype="datetime64[D]")
+    layers = CostLayers(tranche=tr[keep].astype(np.int64), fair_value=fv[keep],
+                        start=gdate[inp.t_grant[tr[keep]]], set_id=np.zeros(int(keep.sum()), dtype=np.int64),
+                        kind=np.full(int(keep.sum()), "modification", dtype=object))
+    return layers, incremental, total
+
+
+def _replaced_changes(ledger) -> np.ndarray:
+    """Per change: it is the cancellation of a replaced grant."""
+    ev, ch = ledger.events, ledger.changes
+    if "_replaced_by" not in ev or not len(ch):
+        return np.zeros(len(ch), dtype=bool)
+    return ev["_replaced_by"].notna().to_numpy()[ch["event_idx"].to_numpy()]
+
+
 def build(ledger, fair_values, inp, policy) -> tuple[np.ndarray, CostLayers, object] | None:
-    """In-force vest dates, extra layers and the modification report of a ledger (None without modifications)."""
+    """In-force vest dates, extra layers and the modification report of a ledger (None without modifications).
+
+    The cancellation of a replaced grant is taken out of the engine's changes (``inp.c_kind`` becomes
+    ``replaced``): the replaced grant's cost continues as if it were outstanding (a modification, not a
+    cancellation: ASC 718-20-35-8; IFRS 2.28(c)).
+    """
     from grantval.ledger.ext.modifications import vest_in_force
-    from grantval.measurement.modification import modification_values
+    from grantval.measurement.modification import modification_values, replaced_values
 
     values = modification_values(ledger, policy)
-    if values is None:
+    rv = replaced_values(ledger, policy)
+    if values is None and rv is None:
         return None
     mods = ledger.tables["modifications"]
-    values.not_expected = (mods["original_expected_to_vest"].to_numpy(dtype=object)[values.terms.order]
-                           == "no")[values.p_mod]
-    costs = modification_layers(values, inp.t_fv, policy.standard)
+    layers = CostLayers(np.zeros(0, np.int64), np.zeros(0), np.zeros(0, "datetime64[D]"), np.zeros(0, np.int64),
+                        np.zeros(0, dtype=object))
+    costs = None
+    if values is not None:
+        values.not_expected = (mods["original_expected_to_vest"].to_numpy(dtype=object)[values.terms.order]
+                               == "no")[values.p_mod]
+        costs = modification_layers(values, inp.t_fv, policy.standard)
+        layers = costs.layers
+    replaced = None
+    if rv is not None:
+        from grantval.attribution.layers import append_layers
+
+        r_layers, incremental, total = replacement_layers(rv, inp)
+        layers = append_layers(layers, r_layers)
+        replaced = ReplacementCosts(rv, incremental, total)
+        inp.c_kind = np.where(_replaced_changes(ledger), "replaced", inp.c_kind).astype(object)
     t_vest = vest_in_force(ledger.tranches, ledger.grants, mods)
-    return t_vest, costs.layers, ModificationReport(values, costs, policy.standard)
+    return t_vest, layers, ModificationReport(values, costs, policy.standard, replaced)
+
+
+@dataclass
+class ReplacementCosts:
+    """Per replacement: the values and the incremental cost (currency)."""
+
+    values: object
+    incremental: np.ndarray
+    replacement_value: np.ndarray
 
 
 @dataclass
 class ModificationReport:
-    """What the reporting tables show: the values and the costs of every modification."""
+    """What the reporting tables show: the values and the costs of every modification and replacement."""
 
     values: object
-    costs: ModificationCosts
+    costs: ModificationCosts | None
     standard: str
+    replacements: ReplacementCosts | None = None

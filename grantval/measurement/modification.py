@@ -131,15 +131,18 @@ def _award_mean(values, weights, p_mod):
     return np.where(wsum > 0, num / np.where(wsum > 0, wsum, 1), plain)[p_mod]
 
 
-def _assumption_inputs(ledger, mods, t: Terms, p_mod, day) -> dict:
-    """Per pair: the valuation inputs of the modification's assumption row."""
+def _assumption_inputs(ledger, mods, t: Terms, p_mod, day, rows=None) -> dict:
+    """Per pair: the valuation inputs of the modification's assumption row (or of ``rows``, per modification)."""
     a = ledger.assumptions
-    first = {}
-    for i, k in enumerate(a["assumption_set"]):
-        if k is not None and k not in first:
-            first[k] = i
-    names = mods["assumption_set"].to_numpy(dtype=object)[t.order][p_mod]
-    ai = np.array([first.get(k, 0) for k in names], dtype=np.int64)
+    if rows is None:
+        first = {}
+        for i, k in enumerate(a["assumption_set"]):
+            if k is not None and k not in first:
+                first[k] = i
+        names = mods["assumption_set"].to_numpy(dtype=object)[t.order][p_mod]
+        ai = np.array([first.get(k, 0) for k in names], dtype=np.int64)
+    else:
+        ai = np.asarray(rows, dtype=np.int64)[p_mod]
     col = lambda c: a[c].to_numpy(float)[ai]  # noqa: E731
     return dict(day=day, s=col("share_price"), vol=col("volatility"), r=col("risk_free_rate"),
                 q=np.nan_to_num(col("dividend_yield")), term=col("expected_term_years"),
@@ -147,10 +150,10 @@ def _assumption_inputs(ledger, mods, t: Terms, p_mod, day) -> dict:
                 exit=np.nan_to_num(col("post_vest_exit_rate")))
 
 
-def _computed(ledger, mods, t, p_mod, p_tr, vb, va, w, policy, cache):
-    """(before, after) per pair from the modifications' assumption rows."""
+def _computed(ledger, mods, t, p_mod, p_tr, vb, va, w, policy, cache, rows=None):
+    """(before, after) per pair from the modifications' assumption rows (or ``rows``, per modification)."""
     day = t.date[p_mod]
-    ctx = _assumption_inputs(ledger, mods, t, p_mod, day)
+    ctx = _assumption_inputs(ledger, mods, t, p_mod, day, rows)
     award = ledger.grants["award_type"].to_numpy(dtype=object)[t.gp][p_mod]
     yb, ya = np.maximum(year_fraction(day, vb), 0.0), np.maximum(year_fraction(day, va), 0.0)
     before, after = np.full(len(p_mod), np.nan), np.full(len(p_mod), np.nan)
@@ -214,4 +217,66 @@ def _models(ledger, mods, t: Terms) -> np.ndarray:
                      for aw, k in zip(award, names)], dtype=object)
 
 
-__all__ = ["ModificationValues", "modification_values", "vest_in_force"]
+@dataclass
+class ReplacedValues:
+    """Per replacement: the cancelled grant's value immediately before, on the replacement's grant date.
+
+    ``new`` and ``old`` are grant positions; ``value_before`` the total fair value of the units of the
+    cancelled grant outstanding then (currency), valued with the replacement's assumption row on the
+    cancelled grant's terms in force; ``units`` those units.
+    """
+
+    new: np.ndarray
+    old: np.ndarray
+    date: np.ndarray
+    units: np.ndarray
+    value_before: np.ndarray
+    per_unit_before: np.ndarray
+
+
+def _terms_before(ledger, old: np.ndarray, date: np.ndarray) -> Terms:
+    """The replaced grants' terms in force on ``date`` (their modifications dated before it applied)."""
+    g = ledger.grants
+    n = len(old)
+    strike = g["exercise_price"].to_numpy(float)[old].copy()
+    expiry = g["expiration_date"].to_numpy("datetime64[D]")[old].copy()
+    accel = np.full(n, np.datetime64("NaT"), dtype="datetime64[D]")
+    mods = ledger.tables.get("modifications")
+    if mods is not None and len(mods):
+        t = terms(g, mods)
+        for i, (o, d) in enumerate(zip(old, date)):
+            hit = np.flatnonzero((t.gp == o) & (t.date < d))
+            if len(hit):
+                j = hit[-1]
+                strike[i], expiry[i] = t.strike_after[j], t.expiry_after[j]
+                acc = t.date[hit][t.accelerate[hit]]
+                accel[i] = acc.min() if len(acc) else np.datetime64("NaT")
+    z = np.zeros(n, dtype=np.int64)
+    return Terms(np.arange(n), old, date, z, strike, strike, expiry, expiry, accel, np.zeros(n, dtype=bool))
+
+
+def replaced_values(ledger, policy, cache: dict | None = None) -> ReplacedValues | None:
+    """Value of every replaced grant immediately before its replacement (None when there is none)."""
+    from grantval.ledger.ext.modifications import replacements
+
+    new, old = replacements(ledger.grants)
+    if not len(new):
+        return None
+    date = ledger.grants["grant_date"].to_numpy("datetime64[D]")[new]
+    t = _terms_before(ledger, old, date)
+    p_mod, p_tr = _pairs(ledger, t)
+    day = date[p_mod]
+    vest = ledger.tranches["vest_date"].to_numpy("datetime64[D]")[p_tr]
+    acc = t.accel_before[p_mod]
+    vb = np.where(~np.isnat(acc) & (acc < vest), acc, vest)
+    ub, _, _ = _units(ledger, p_mod, p_tr, day - np.timedelta64(1, "D"))
+    rsu = ledger.grants["award_type"].to_numpy(dtype=object)[old][p_mod] == "rsu"
+    ub = np.where(rsu & (vb < day), 0.0, ub)
+    before, _ = _computed(ledger, None, t, p_mod, p_tr, vb, vb, ub, policy, cache,
+                          rows=ledger.grant_assumption[new])
+    units = np.bincount(p_mod, weights=ub, minlength=len(new))
+    total = np.bincount(p_mod, weights=before * ub, minlength=len(new))
+    return ReplacedValues(new, old, date, units, total, total / np.where(units > 0, units, 1))
+
+
+__all__ = ["ModificationValues", "ReplacedValues", "modification_values", "replaced_values", "vest_in_force"]

@@ -73,7 +73,7 @@ def modification_table(report, ledger, attribution: str = "graded") -> pd.DataFr
     date, the rest over the remaining service to each tranche's vesting date, or to the award's last
     vesting date under straight-line ``attribution``).
     """
-    if report is None:
+    if report is None or report.values is None:
         return pd.DataFrame(columns=list(COLUMNS))
     v, t = report.values, report.values.terms
     g = ledger.grants
@@ -98,11 +98,49 @@ def modification_table(report, ledger, attribution: str = "graded") -> pd.DataFr
     return frame[list(COLUMNS)]
 
 
+#: columns of :func:`replacement_table`
+REPLACEMENT_COLUMNS = (
+    "grant_id", "replaces_grant_id", "holder_id", "replacement_date", "units_cancelled",
+    "fair_value_cancelled_per_unit", "value_cancelled", "units_granted", "replacement_fair_value",
+    "incremental_cost", "attribution")
+
+
+def replacement_table(report, ledger) -> pd.DataFrame:
+    """One row per cancellation with replacement: both fair values on the replacement date and the increment.
+
+    ``value_cancelled`` is the cancelled grant's fair value immediately before (units outstanding x value
+    per unit); ``replacement_fair_value`` the replacement's grant-date fair value (units granted x value
+    per unit); ``incremental_cost`` the excess, never below zero.
+    """
+    rc = None if report is None else report.replacements
+    if rc is None:
+        return pd.DataFrame(columns=list(REPLACEMENT_COLUMNS))
+    rv, g = rc.values, ledger.grants
+    qty = g["quantity"].to_numpy(np.int64)[rv.new]
+    frame = pd.DataFrame({
+        "grant_id": g["grant_id"].to_numpy()[rv.new], "replaces_grant_id": g["grant_id"].to_numpy()[rv.old],
+        "holder_id": g["holder_id"].to_numpy()[rv.new], "replacement_date": rv.date,
+        "units_cancelled": rv.units.astype(np.int64), "fair_value_cancelled_per_unit": rv.per_unit_before,
+        "value_cancelled": rv.value_before, "units_granted": qty, "replacement_fair_value": rc.replacement_value,
+        "incremental_cost": rc.incremental,
+        "attribution": "incremental over the replacement's service from its grant date; the cancelled grant's "
+                       "cost continues on its original schedule",
+    })
+    return frame[list(REPLACEMENT_COLUMNS)]
+
+
 def disclosure_table(report, ledger) -> pd.DataFrame:
     """Modifications by date and change: grants and holders affected, units, total incremental cost."""
     cols = ["modification_date", "change", "grants", "holders_affected", "units_affected", "incremental_cost",
             "fair_value_measured"]
     table = modification_table(report, ledger)
+    rep = replacement_table(report, ledger)
+    if len(rep):
+        rows = pd.DataFrame({"grant_id": rep["replaces_grant_id"], "holder_id": rep["holder_id"],
+                             "modification_date": rep["replacement_date"], "change": "cancellation with replacement",
+                             "units_after": rep["units_granted"], "incremental_cost": rep["incremental_cost"],
+                             "fair_value_source": "computed: cancelled grant on the replacement's assumptions"})
+        table = pd.concat([table[rows.columns], rows], ignore_index=True) if len(table) else rows
     if not len(table):
         return pd.DataFrame(columns=cols)
     out = (table.groupby(["modification_date", "change"], sort=True)

@@ -16,7 +16,7 @@ from grantval.errors import LedgerError
 from grantval.ledger import load_ledger
 from grantval.measurement.fairvalue import compute_fair_values
 from grantval.policy import resolve_policy
-from grantval.reporting.modification_tables import disclosure_table, modification_table
+from grantval.reporting.modification_tables import disclosure_table, modification_table, replacement_table
 from tests.factory import write_ledger
 from tests.pricing import ql_reference as qlr
 
@@ -305,12 +305,63 @@ def test_two_modifications_of_one_grant_on_one_date(tmp_path):
     assert p and p[0].row == 3 and p[0].column == "modification_date"
 
 
-def test_replacement_grants_are_refused_for_now(tmp_path):
-    from tests.factory import tables
+def replaced(folder, replacement_price="8", replaces="X"):
+    # invented figures: grant X, 1,000 options at strike 20, fair value 10, three-year cliff from
+    # 2025-01-01; on 2026-01-01 it is cancelled and replaced by grant R, 800 options at strike 8
+    # (share price 8), two-year cliff, ten-year life, valued with BSM (simplified-method term)
+    base = {**OPTION, "vest_start_date": "", "cliff_months": "0", "replaces_grant_id": ""}
+    grants = [{**base, "grant_id": "X", "grant_date": "2025-01-01", "quantity": "1000", "exercise_price": "20",
+               "expiration_date": "2035-01-01", "vest_months": "36", "vest_every_months": "36"},
+              {**base, "grant_id": "R", "grant_date": "2026-01-01", "quantity": "800",
+               "exercise_price": replacement_price, "expiration_date": "2036-01-01", "vest_months": "24",
+               "vest_every_months": "24", "assumption_set": "r", "replaces_grant_id": replaces}]
+    a = [_assumption("g", fair_value="10"), _assumption("r", price="8", vol="0.4", rate="0.04")]
+    return write_ledger(folder, {"grants": grants, "assumptions": a})
 
-    t = tables()
-    for g in t["grants"]:
-        g["replaces_grant_id"] = ""
-    t["grants"][2]["replaces_grant_id"] = "G1"
-    with pytest.raises(LedgerError, match="not supported yet"):
-        load_ledger(write_ledger(tmp_path / "l", t))
+
+def test_cancellation_with_replacement_is_a_modification(tmp_path):
+    led, _, inp, s = run(replaced(tmp_path / "l"), "2027-12-31", standard="asc718", attribution="graded")
+    table = replacement_table(inp.modifications, led).iloc[0]
+    days = lambda a, b: (np.datetime64(b) - np.datetime64(a)).astype(int)  # noqa: E731
+    # QuantLib AnalyticEuropeanEngine: the cancelled grant immediately before (strike 20, remaining
+    # vesting 2 years, remaining life 9 years, simplified method) and the replacement (2 and 10 years)
+    x_term = (days("2026-01-01", "2028-01-01") + days("2026-01-01", "2035-01-01")) / 365.25 / 2
+    r_term = (days("2026-01-01", "2028-01-01") + days("2026-01-01", "2036-01-01")) / 365.25 / 2
+    x_before = _ql_bsm(8, 20, x_term, 0.04, 0.4)
+    r_value = _ql_bsm(8, 8, r_term, 0.04, 0.4)
+    assert table["fair_value_cancelled_per_unit"] == pytest.approx(x_before, abs=1e-9)
+    assert table["replacement_fair_value"] == pytest.approx(800 * r_value, rel=1e-9)
+    inc = 800 * r_value - 1000 * x_before
+    assert inc > 0 and table["incremental_cost"] == pytest.approx(inc, rel=1e-9)
+    # ASC 718-20-35-8 (from memory) and IFRS 2.28(c): the cancelled grant's cost continues on its own
+    # schedule (no acceleration at the cancellation) and the replacement carries only the increment
+    x, r = s.cumulative_cents[0], s.cumulative_cents[1]
+    assert x[0] == round(10_000 * 365 / 1095 * 100) and x[1] == round(10_000 * 730 / 1095 * 100)
+    assert x[2] == 1_000_000
+    assert r[1] == round(inc * 365 / 730 * 100) and r[2] == round(inc * 100)
+    assert led.changes["kind"].tolist() == ["cancel"] and led.changes["quantity"].tolist() == [1000]
+
+
+def test_replacement_worth_less_than_the_cancelled_grant_adds_nothing(tmp_path):
+    # IFRS 2 B44(a) / ASC 718-20-35-3: a decrease is ignored: the replacement (strike 30) costs nothing
+    # and the cancelled grant's 10,000 is recognised on its schedule
+    led, _, inp, s = run(replaced(tmp_path / "l", replacement_price="30"), "2027-12-31")
+    assert replacement_table(inp.modifications, led)["incremental_cost"].iloc[0] == 0.0
+    assert list(s.cumulative_cents[:, -1]) == [1_000_000, 0]
+
+
+@pytest.mark.parametrize("value,words", [("X9", "not a grant"), ("R", "cannot replace itself")])
+def test_bad_replacements(tmp_path, value, words):
+    folder = replaced(tmp_path / "l", replaces=value)
+    with pytest.raises(LedgerError) as e:
+        load_ledger(folder)
+    p = [p for p in e.value.problems if p.column == "replaces_grant_id"]
+    assert p and p[0].row == 3 and p[0].source == "grants.csv" and words in p[0].message
+
+
+def test_replacing_a_grant_with_nothing_outstanding(tmp_path):
+    folder = replaced(tmp_path / "l")
+    write_ledger(folder, {"events": [{"grant_id": "X", "event_date": "2025-06-30", "event_type": "forfeit",
+                                      "quantity": "", "share_price": ""}]})
+    with pytest.raises(LedgerError, match="no unit outstanding"):
+        load_ledger(folder)

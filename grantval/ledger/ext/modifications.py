@@ -5,7 +5,9 @@ unchanged (``exercise_price``, ``expiration_date``, ``quantity``, ``vest_months`
 ``vest_every_months``, ``cliff_months``, ``accelerate``); the valuation inputs on the modification
 date (``assumption_set``) or an outside valuation (``fair_value_before`` and ``fair_value_after``, per
 unit); ``original_expected_to_vest`` (``yes``/``no``, default ``yes``).  Adds the grant column
-``replaces_grant_id`` (reserved: cancellation with replacement is refused as not supported yet).
+``replaces_grant_id``: a cancellation with replacement (ASC 718-20-35-8; IFRS 2.28(c)): every unit of
+the replaced grant outstanding on the replacement's grant date is cancelled on that date, and the
+pair is accounted for as a modification (see :mod:`grantval.attribution.modifications`).
 
 Terms in force (used to allocate events, see :func:`adjust`):
 
@@ -194,10 +196,50 @@ def _kind_problems(m: pd.DataFrame, g: pd.DataFrame, gp: np.ndarray, src: str) -
     return p
 
 
+def replacements(grants: pd.DataFrame) -> tuple[np.ndarray, np.ndarray]:
+    """Positions of the replacement grants and of the grants they replace (known ids only)."""
+    if "replaces_grant_id" not in grants:
+        return np.zeros(0, np.int64), np.zeros(0, np.int64)
+    index = {k: i for i, k in enumerate(grants["grant_id"])}
+    rep = grants["replaces_grant_id"].to_numpy(dtype=object)
+    new = [i for i, k in enumerate(rep) if not pd.isna(k) and k in index and index[k] != i]
+    return np.array(new, dtype=np.int64), np.array([index[rep[i]] for i in new], dtype=np.int64)
+
+
 def _grant_column_problems(g: pd.DataFrame, src: str) -> list[Problem]:
-    rep = g["replaces_grant_id"].notna().to_numpy() if "replaces_grant_id" in g else np.zeros(len(g), bool)
-    return [Problem(src, r, "replaces_grant_id", "cancellation with replacement is not supported yet: enter the "
-                    "change as a modification of the original grant (modifications table)") for r in _rows(g, rep)]
+    """Checks of ``replaces_grant_id``: a known, other grant, replaced once, on a date it is in force."""
+    if "replaces_grant_id" not in g:
+        return []
+    p: list[Problem] = []
+    rep = g["replaces_grant_id"].to_numpy(dtype=object)
+    ids = set(g["grant_id"])
+    for r, k, own in zip(g["_row"], rep, g["grant_id"]):
+        if pd.isna(k):
+            continue
+        if k == own:
+            p.append(Problem(src, int(r), "replaces_grant_id", "a grant cannot replace itself"))
+        elif k not in ids:
+            p.append(Problem(src, int(r), "replaces_grant_id", f"{k!r} is not a grant in the grants table"))
+    new, old = replacements(g)
+    seen: dict = {}
+    gd = g["grant_date"].to_numpy("datetime64[D]")
+    ex = g["expiration_date"].to_numpy("datetime64[D]")
+    award = g["award_type"].to_numpy(dtype=object)
+    for n, o in zip(new, old):
+        row = int(g["_row"].iloc[n])
+        if o in seen:
+            p.append(Problem(src, row, "replaces_grant_id", f"grant {g['grant_id'].iloc[o]} is already replaced "
+                             f"by grant {g['grant_id'].iloc[seen[o]]}"))
+        seen[o] = n
+        if gd[n] < gd[o]:
+            p.append(Problem(src, row, "replaces_grant_id", f"the replacement's grant date {gd[n]} is before the "
+                             f"grant date {gd[o]} of the grant it replaces"))
+        if not np.isnat(ex[o]) and gd[n] > ex[o]:
+            p.append(Problem(src, row, "replaces_grant_id", f"the grant it replaces expired on {ex[o]}"))
+        if award[n] not in ("option", "rsu") or award[o] not in ("option", "rsu"):
+            p.append(Problem(src, row, "replaces_grant_id", "replacements of this award type are not supported "
+                             "yet (options and RSUs only)"))
+    return p
 
 
 def _live_at(parts: LedgerParts, changes: pd.DataFrame, gp: np.ndarray, d: np.ndarray) -> np.ndarray:
@@ -241,11 +283,29 @@ def _reductions(t: Terms, new_qty: np.ndarray, live: np.ndarray, src: str, rows:
     return ev, p
 
 
+def _replacement_cancels(parts: LedgerParts) -> pd.DataFrame:
+    """A ``cancel`` of every unit of a replaced grant outstanding on the replacement's grant date."""
+    g = parts.grants
+    new, old = replacements(g)
+    new, old = new[parts.schedule_ok[old]], old[parts.schedule_ok[old]]
+    return pd.DataFrame({
+        "grant_id": g["grant_id"].to_numpy(dtype=object)[old],
+        "event_date": g["grant_date"].to_numpy("datetime64[D]")[new],
+        "event_type": ["cancel"] * len(new), "quantity": [np.nan] * len(new), "share_price": [np.nan] * len(new),
+        "_row": g["_row"].to_numpy()[new].astype(np.int64), "_source": [parts.sources["grants"]] * len(new),
+        "_replaced_by": g["grant_id"].to_numpy(dtype=object)[new]})
+
+
 def adjust(parts: LedgerParts) -> Adjustment | None:
     """The terms in force after the modifications, and the cancellations of reduced quantities, for events."""
     m = parts.tables["modifications"]
     if not len(m):
-        return None
+        extra = _replacement_cancels(parts)
+        if not len(extra):
+            return None
+        events = pd.concat([parts.tables["events"].assign(_source=parts.sources["events"]), extra],
+                           ignore_index=True)
+        return Adjustment(grants=parts.grants, tranches=parts.tranches, events=events)
     src, g = parts.sources["modifications"], parts.grants
     t = terms(g, m)
     ok = parts.schedule_ok[t.gp]
@@ -271,6 +331,7 @@ def adjust(parts: LedgerParts) -> Adjustment | None:
         "event_date": np.array([t.date[i] for i, _ in ev], dtype="datetime64[D]"),
         "event_type": ["cancel"] * len(ev), "quantity": [float(q) for _, q in ev],
         "share_price": [np.nan] * len(ev), "_row": [int(rows[i]) for i, _ in ev], "_source": [src] * len(ev)})
+    extra = pd.concat([extra, _replacement_cancels(parts)], ignore_index=True)
     if len(extra):
         events = pd.concat([events.assign(_source=parts.sources["events"]), extra], ignore_index=True)
     return Adjustment(grants=grants, tranches=tranches, events=events, problems=problems)
@@ -282,6 +343,15 @@ def check(parts: LedgerParts) -> list[Problem]:
     p = _grant_column_problems(parts.grants, parts.sources["grants"])
     if len(m):
         p += _row_problems(m, parts.grants, parts.tables["assumptions"], parts.sources["modifications"])
+    new, old = replacements(parts.grants)
+    if len(new) and parts.changes is not None:
+        ok = parts.schedule_ok[old]
+        day = parts.grants["grant_date"].to_numpy("datetime64[D]")[new[ok]] - np.timedelta64(1, "D")
+        live = _live_at(parts, parts.changes, old[ok], day)
+        for n, o in zip(new[ok][live <= 0], old[ok][live <= 0]):
+            p.append(Problem(parts.sources["grants"], int(parts.grants["_row"].iloc[n]), "replaces_grant_id",
+                             f"grant {parts.grants['grant_id'].iloc[o]} has no unit outstanding on the "
+                             "replacement's grant date"))
     return p
 
 
