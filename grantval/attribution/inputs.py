@@ -163,7 +163,7 @@ def build_inputs(ledger: Ledger, fair_values: "FairValues", policy=None) -> Expe
     """Collect the engine's arrays from a ledger and its fair values, with the features' cost hooks.
 
     ``policy`` (standard, valuation unit, lattice steps) values and treats the ledger's modifications;
-    the default policy when None.
+    when None, the ledger's own policy table (without a run's overrides).
     """
     from grantval.attribution.service import service_end
 
@@ -201,9 +201,11 @@ def _modify(ledger: Ledger, fair_values, inp: ExpenseInputs, policy) -> None:
     """Modifications: vest dates in force (acceleration) and incremental cost layers (in place)."""
     from grantval.attribution import modifications
     from grantval.attribution.layers import append_layers
-    from grantval.policy import Policy
+    from grantval.policy import resolve_policy
 
-    got = modifications.build(ledger, fair_values, inp, policy or Policy())
+    if policy is None:
+        policy = resolve_policy(ledger.policy_values)
+    got = modifications.build(ledger, fair_values, inp, policy)
     if got is not None:
         inp.t_vest, extra, inp.modifications = got
         inp.layers = append_layers(inp.layers, extra)

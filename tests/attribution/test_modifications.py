@@ -365,3 +365,74 @@ def test_replacing_a_grant_with_nothing_outstanding(tmp_path):
                                       "quantity": "", "share_price": ""}]})
     with pytest.raises(LedgerError, match="no unit outstanding"):
         load_ledger(folder)
+
+
+def test_rsu_acceleration_valued_on_the_modification_date(tmp_path):
+    # closed form (S e^{-q t}, as for RSUs at grant): 1,000 units in four annual tranches from 2027-01-01;
+    # on 2028-06-30 the 750 unvested units vest (share price 15, dividend yield 2%): before, each
+    # tranche is worth 15 e^{-0.02 t} to its vesting date; after, 15
+    grants = [{**OPTION, "grant_id": "U", "award_type": "rsu", "exercise_price": "", "expiration_date": "",
+               "grant_date": "2027-01-01", "quantity": "1000", "vest_months": "48", "vest_every_months": "12"}]
+    a = [_assumption("g", price="10"), _assumption("m", price="15")]
+    a[1]["dividend_yield"] = "0.02"
+    mods = [_mod("U", "2028-06-30", accelerate="yes", assumption_set="m")]
+    led, _, inp, s = run(write_ledger(tmp_path / "l", {"grants": grants, "assumptions": a, "modifications": mods}),
+                         "2028-12-31", standard="asc718", attribution="graded")
+    row = modification_table(inp.modifications, led).iloc[0]
+    t = [(np.datetime64(d) - np.datetime64("2028-06-30")).astype(int) / 365.25
+         for d in ("2029-01-01", "2030-01-01", "2031-01-01")]
+    before = np.mean([15 * math.exp(-0.02 * x) for x in t])
+    assert row["units_before"] == 750 and row["units_accelerated"] == 750
+    assert row["fair_value_before"] == pytest.approx(before, rel=1e-12)
+    assert row["fair_value_after"] == pytest.approx(15.0, rel=1e-12)
+    # everything vests: grant-date cost of all 1,000 units plus the increment on 750
+    assert s.cumulative_cents[0, -1] == round((1000 * 10 + 750 * (15 - before)) * 100)
+
+
+def test_lattice_values_use_the_remaining_terms(tmp_path):
+    # common practice (the lattice itself is checked against QuantLib in tests/pricing/test_lattice.py):
+    # a repricing valued with the lattice over the remaining life, to the remaining vesting time
+    from grantval.pricing import DEFAULT_STEPS, lattice_value
+
+    grants = [{**OPTION, "grant_id": "T", "grant_date": "2027-01-01", "quantity": "100", "vest_months": "36",
+               "vest_every_months": "36", "expiration_date": "2037-01-01"}]
+    m = _assumption("m", price="10", vol="0.45", rate="0.03")
+    m.update(model="lattice", exercise_multiple="2", post_vest_exit_rate="0.05")
+    mods = [_mod("T", "2028-01-01", exercise_price="10", assumption_set="m")]
+    led, _, inp, _ = run(write_ledger(tmp_path / "l", {"grants": grants, "modifications": mods,
+                                                       "assumptions": [_assumption("g", fair_value="6"), m]}),
+                         "2028-12-31", standard="asc718")
+    row = modification_table(inp.modifications, led).iloc[0]
+    T = (np.datetime64("2037-01-01") - np.datetime64("2028-01-01")).astype(int) / 365.25
+    v = (np.datetime64("2030-01-01") - np.datetime64("2028-01-01")).astype(int) / 365.25
+    kw = dict(term=T, rate=0.03, volatility=0.45, vesting=v, exercise_multiple=2.0, exit_rate=0.05,
+              steps=DEFAULT_STEPS)
+    assert row["fair_value_before"] == pytest.approx(lattice_value(10, 20, **kw), rel=1e-12)
+    assert row["fair_value_after"] == pytest.approx(lattice_value(10, 10, **kw), rel=1e-12)
+    assert row["fair_value_source"] == "computed: lattice"
+
+
+def test_asc718_straight_line_repricing_of_a_graded_award(tmp_path):
+    # ASC 718-10-35-8 straight-line with the incremental layer served from the modification date to the
+    # award's last vesting date (common practice), never less than the value of the vested tranches:
+    # 1,000 options in four annual tranches from 2027-01-01 at 10; repriced 2029-01-01 (2 before, 5 after)
+    grants = [{**OPTION, "grant_id": "S", "grant_date": "2027-01-01", "quantity": "1000", "vest_months": "48",
+               "vest_every_months": "12", "expiration_date": "2037-01-01"}]
+    mods = [_mod("S", "2029-01-01", exercise_price="5", fair_value_before="2", fair_value_after="5")]
+    _, _, _, s = run(write_ledger(tmp_path / "l", {"grants": grants, "modifications": mods,
+                                                   "assumptions": [_assumption("g", fair_value="10")]}),
+                     "2029-12-31", standard="asc718", attribution="straight-line")
+    c = s.cumulative_cents[0]
+    assert c[1] == round(10_000 * 731 / 1461 * 100)                 # 2028: unchanged
+    assert c[2] == round((10_000 * 1096 / 1461 + 3_000 * 365 / 730) * 100)
+
+
+def test_without_a_policy_the_ledgers_own_standard_applies(tmp_path):
+    # the Type III ledger with policy standard = ifrs2 and no policy passed: the IFRS 2 figure (12,000)
+    folder = leaver_accelerated(tmp_path / "l")
+    write_ledger(folder, {"policy": [{"key": "standard", "value": "ifrs2"}]})
+    led = load_ledger(folder)
+    pol = resolve_policy(led.policy_values, period="year")
+    inp = build_inputs(led, compute_fair_values(led, pol))
+    s = compute_schedule(inp, pol, np.datetime64("2029-12-31"), None, None)
+    assert s.cumulative_cents[0, -1] == 1_200_000
