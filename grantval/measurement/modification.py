@@ -66,31 +66,29 @@ def _pairs(ledger, t: Terms):
 
 
 def _units(ledger, p_mod, p_tr, day):
-    """Per pair: units outstanding immediately before and after, and the units counted after."""
-    ch = ledger.changes
-    ev = ledger.events
+    """Per pair: units outstanding immediately before and after, and the units counted after.
+
+    Changes dated on or before ``day`` come before the modification, except the modifications' own
+    cancellations of a reduced quantity on ``day`` (rows the ledger added, ``_source`` = the
+    modifications table), which come with it.
+    """
+    from grantval.ledger.ext._cumulative import sum_through
+
+    ch, ev = ledger.changes, ledger.events
     src = ledger.sources.get("modifications")
     synthetic = (ev["_source"].to_numpy() == src) if "_source" in ev else np.zeros(len(ev), dtype=bool)
     c_syn = synthetic[ch["event_idx"].to_numpy()] if len(ch) else np.zeros(0, dtype=bool)
     c_t, c_d, c_q = ch["tranche_idx"].to_numpy(), ch["date"].to_numpy("datetime64[D]"), ch["quantity"].to_numpy(float)
-    c_k = ch["kind"].to_numpy(dtype=object)
+    c_fc = np.isin(ch["kind"].to_numpy(dtype=object), ("forfeit", "cancel"))
     qty = ledger.tranches["quantity"].to_numpy(float)[p_tr]
-    before, after, counted = qty.copy(), qty.copy(), qty.copy()
-    by_tranche = {}
-    for j in range(len(c_t)):
-        by_tranche.setdefault(int(c_t[j]), []).append(j)
-    for i, (t_, d_) in enumerate(zip(p_tr, day)):
-        for j in by_tranche.get(int(t_), ()):
-            if c_d[j] > d_:
-                continue
-            if c_d[j] == d_ and c_syn[j]:
-                after[i] -= c_q[j]
-                counted[i] -= c_q[j]
-                continue
-            before[i] -= c_q[j]
-            after[i] -= c_q[j]
-            if c_k[j] in ("forfeit", "cancel"):
-                counted[i] -= c_q[j]
+    own = c_syn  # a modification's own cancellation: on its date, after it
+    removed_all = sum_through(c_t, c_d, c_q, p_tr, day)
+    own_on_day = sum_through(c_t, c_d, np.where(own, c_q, 0.0), p_tr, day) - sum_through(
+        c_t, c_d, np.where(own, c_q, 0.0), p_tr, day, strict=True)
+    removed_fc = sum_through(c_t, c_d, np.where(c_fc, c_q, 0.0), p_tr, day)
+    after = qty - removed_all
+    before = after + own_on_day
+    counted = qty - removed_fc
     return before, after, counted
 
 

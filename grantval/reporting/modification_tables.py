@@ -82,7 +82,8 @@ def modification_table(report, ledger, attribution: str = "graded") -> pd.DataFr
     words = [_changes(t, i, agg["ub"][i], agg["ua"][i], agg["acc"][i]) for i in range(len(d))]
     span = "the award's last vesting date" if attribution == "straight-line" else "each tranche's vesting date"
     how = [("on the modification date" if agg["later"][i] == 0 else
-            f"{agg['now'][i]:,.2f} on the modification date, the rest from {d[i]} to {span} (last {agg['last_vest'][i]})")
+            f"{agg['now'][i]:,.2f} on the modification date, the rest from {d[i]} to {span} "
+            f"(last {agg['last_vest'][i]})")
            for i in range(len(d))]
     frame = pd.DataFrame({
         "grant_id": g["grant_id"].to_numpy()[t.gp], "holder_id": g["holder_id"].to_numpy()[t.gp],

@@ -115,7 +115,7 @@ def leaver_accelerated(folder, expected="no"):
 def test_asc718_type_iii_acceleration_of_a_leaver(tmp_path):
     # ASC 718-20-55-108 (Example 14 Case C, improbable to probable): the cost recognised is the modified
     # award's fair value on the modification date, 1,000 x 6 = 6,000; the original cost is reversed
-    _, _, inp, s = run(leaver_accelerated(tmp_path / "l"), "2029-12-31", standard="asc718")
+    _, _, _, s = run(leaver_accelerated(tmp_path / "l"), "2029-12-31", standard="asc718")
     c = s.cumulative_cents[0]
     days = (np.datetime64("2031-01-01") - np.datetime64("2027-01-01")).astype(int)
     assert c[0] == round(1000 * 10 * 365 / days * 100)   # 2027 on the original terms
@@ -203,7 +203,7 @@ def _ql_bsm(s, k, years, r, vol):
 
 
 def test_extension_of_the_exercise_window_bsm_before_and_after(tmp_path):
-    led, pol, inp, s = run(leaver_window(tmp_path / "l"), "2029-12-31", standard="asc718", attribution="graded")
+    led, _, inp, s = run(leaver_window(tmp_path / "l"), "2029-12-31", standard="asc718", attribution="graded")
     table = modification_table(inp.modifications, led)
     second = table.iloc[1]
     t_before = 89 / 365.25 / 2     # 2029-01-02 to 2029-04-01, simplified method on a vested option
@@ -436,3 +436,42 @@ def test_without_a_policy_the_ledgers_own_standard_applies(tmp_path):
     inp = build_inputs(led, compute_fair_values(led, pol))
     s = compute_schedule(inp, pol, np.datetime64("2029-12-31"), None, None)
     assert s.cumulative_cents[0, -1] == 1_200_000
+
+
+@pytest.mark.parametrize("strict", [False, True])
+def test_sum_through_matches_a_plain_loop(strict):
+    # common practice: the vectorised look-up against a direct sum
+    from grantval.ledger.ext._cumulative import sum_through
+
+    rng = np.random.default_rng(7)
+    keys, days, qty = rng.integers(0, 5, 200), rng.integers(19000, 19100, 200), rng.integers(1, 50, 200)
+    qk, qd = rng.integers(0, 6, 300), rng.integers(18990, 19110, 300)
+    got = sum_through(keys, days.astype("datetime64[D]"), qty, qk, qd.astype("datetime64[D]"), strict=strict)
+    want = [qty[(keys == k) & ((days < d) if strict else (days <= d))].sum() for k, d in zip(qk, qd)]
+    assert np.array_equal(got, np.asarray(want, dtype=float))
+
+
+def test_modification_after_every_unit_is_gone(tmp_path):
+    folder = leaver_accelerated(tmp_path / "l")
+    write_ledger(folder, {"events": [{"grant_id": "L", "event_date": "2028-06-30", "event_type": "forfeit",
+                                      "quantity": "", "share_price": ""}]})
+    with pytest.raises(LedgerError) as e:
+        load_ledger(folder)
+    p = [p for p in e.value.problems if p.source == "modifications.csv"]
+    assert p and p[0].row == 2 and p[0].column == "modification_date" and "has ended" in p[0].message
+
+
+def test_psu_modifications_are_refused_for_now(tmp_path):
+    from tests.factory import tables
+
+    t = tables(modifications=[_mod("G1", "2028-01-01", exercise_price="8", assumption_set="m")])
+    t["assumptions"].append(_assumption("m", price="8", vol="0.4", rate="0.04"))
+    t["grants"][1].update(award_type="psu", condition_set="c")
+    for g in t["grants"]:
+        g.setdefault("condition_set", "")
+    t["performance"] = [{"condition_set": "c", "assessed_on": "2027-01-01", "payout": "1", "expected_vest_date": ""}]
+    t["modifications"].append(_mod("G2", "2028-01-01", accelerate="yes", assumption_set="m"))
+    with pytest.raises(LedgerError) as e:
+        load_ledger(write_ledger(tmp_path / "l", t))
+    p = [p for p in e.value.problems if p.source == "modifications.csv" and p.row == 3]
+    assert p and "not supported yet" in p[0].message

@@ -100,8 +100,8 @@ def terms(grants: pd.DataFrame, mods: pd.DataFrame) -> Terms:
     strike_b, strike_a = _carry(mods["exercise_price"].to_numpy(float)[order],
                                 grants["exercise_price"].to_numpy(float)[gp], new_group)
     exp_new = mods["expiration_date"].to_numpy("datetime64[D]")[order]
-    exp_b, exp_a = _carry(exp_new.astype(object), grants["expiration_date"].to_numpy("datetime64[D]")[gp].astype(object),
-                          new_group)
+    exp_grant = grants["expiration_date"].to_numpy("datetime64[D]")[gp].astype(object)
+    exp_b, exp_a = _carry(exp_new.astype(object), exp_grant, new_group)
     acc = (mods["accelerate"].to_numpy(dtype=object)[order] == "yes")
     acc_day = np.where(acc, date, np.datetime64("NaT"))
     acc_b, _ = _carry(acc_day.astype(object), np.full(len(gp), None, dtype=object), new_group)
@@ -244,16 +244,16 @@ def _grant_column_problems(g: pd.DataFrame, src: str) -> list[Problem]:
 
 def _live_at(parts: LedgerParts, changes: pd.DataFrame, gp: np.ndarray, d: np.ndarray) -> np.ndarray:
     """Units of each grant ``gp`` outstanding (not exercised, expired, forfeited or cancelled) after day ``d``."""
+    from grantval.ledger.ext._cumulative import sum_through
+
     tr = parts.tranches
     granted = np.bincount(tr["grant_idx"].to_numpy(), weights=tr["quantity"].to_numpy(float),
                           minlength=len(parts.grants))
     out = granted[gp].copy()
     if len(changes):
         c_grant = tr["grant_idx"].to_numpy()[changes["tranche_idx"].to_numpy()]
-        c_date = changes["date"].to_numpy("datetime64[D]")
-        c_qty = changes["quantity"].to_numpy(float)
-        for i, (g_, d_) in enumerate(zip(gp, d)):
-            out[i] -= c_qty[(c_grant == g_) & (c_date <= d_)].sum()
+        out -= sum_through(c_grant, changes["date"].to_numpy("datetime64[D]"), changes["quantity"].to_numpy(float),
+                           gp, d)
     return out
 
 
