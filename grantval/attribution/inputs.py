@@ -203,6 +203,10 @@ def _modify(ledger: Ledger, fair_values, inp: ExpenseInputs, policy) -> None:
     from grantval.attribution.layers import append_layers
     from grantval.policy import resolve_policy
 
+    mods = ledger.tables.get("modifications")
+    replaced = ledger.grants.get("replaces_grant_id")
+    if (mods is None or not len(mods)) and (replaced is None or not replaced.notna().any()):
+        return
     if policy is None:
         policy = resolve_policy(ledger.policy_values)
     got = modifications.build(ledger, fair_values, inp, policy)

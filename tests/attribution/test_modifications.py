@@ -475,3 +475,23 @@ def test_psu_modifications_are_refused_for_now(tmp_path):
         load_ledger(write_ledger(tmp_path / "l", t))
     p = [p for p in e.value.problems if p.source == "modifications.csv" and p.row == 3]
     assert p and "not supported yet" in p[0].message
+
+
+def test_repricing_with_the_inputs_of_a_published_exercise(tmp_path):
+    # inputs of "SBR Integrated Workbook", Example 4 (Modifications), as shown at
+    # online.flipbuilder.com/bmcx/dlby page 143: 300,000 options to each of 20 managers, fair value 7,
+    # vesting on 31 December 20X3; year 1: one leaves, another expected to (18 expected); repriced on
+    # 1 January 20X2, fair value 2 before and 6 after; year 2: two leave, one more expected (16).
+    # The year-2 expense is computed here (the worked answer was not seen):
+    # 16 x 300,000 x (7 x 2/3 + 4 x 1/2) - 18 x 300,000 x 7 / 3 = 19,400,000.
+    grants = [{**OPTION, "grant_id": "F", "grant_date": "2025-01-01", "quantity": "6000000", "vest_months": "36",
+               "vest_every_months": "36", "exercise_price": "15"}]
+    est = [{"applies_to": "*", "effective_date": d, "annual_forfeiture_rate": "", "expected_vest_fraction": f}
+           for d, f in (("2025-12-31", "0.9"), ("2026-12-31", "0.8"))]
+    events = [{"grant_id": "F", "event_date": d, "event_type": "forfeit", "quantity": q, "share_price": ""}
+              for d, q in (("2025-12-31", "300000"), ("2026-12-31", "600000"))]
+    mods = [_mod("F", "2026-01-01", exercise_price="10", fair_value_before="2", fair_value_after="6")]
+    folder = write_ledger(tmp_path / "l", {"grants": grants, "assumptions": [_assumption("g", fair_value="7")],
+                                           "estimates": est, "events": events, "modifications": mods})
+    _, _, _, s = run(folder, "2026-12-31")
+    assert list(s.expense_cents[0]) == [1_260_000_000, 1_940_000_000]
