@@ -495,3 +495,18 @@ def test_repricing_with_the_inputs_of_a_published_exercise(tmp_path):
                                            "estimates": est, "events": events, "modifications": mods})
     _, _, _, s = run(folder, "2026-12-31")
     assert list(s.expense_cents[0]) == [1_260_000_000, 1_940_000_000]
+
+
+@pytest.mark.parametrize("ledger", [ig_example_7, leaver_window, replaced, leaver_accelerated, reduced])
+@pytest.mark.parametrize("through", ["2027-06-30", "2029-12-31"])
+def test_expense_workbook_checks_pass_with_modifications(tmp_path, ledger, through):
+    # the workbook's tie-outs (recognised + unrecognised = expected units x value per unit in force ...)
+    # hold with the modification layers
+    from grantval.runs.expense import expense, write_expense
+
+    run_ = expense(ledger(tmp_path / "l"), through=through, period="year", standard="asc718",
+                   attribution="graded")
+    out = write_expense(run_, tmp_path / "e.xlsx", None, timestamp=False, share_price=15.0)
+    failed = [c.name for c in out.checks if not c.tool_pass]
+    assert "Recognised + unrecognised = expected quantity x fair value (all tranches)" in [c.name for c in out.checks]
+    assert failed == []
