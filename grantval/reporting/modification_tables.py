@@ -150,3 +150,34 @@ def disclosure_table(report, ledger) -> pd.DataFrame:
                 fair_value_measured=("fair_value_source", lambda s: ", ".join(sorted(set(s)))))
            .reset_index())
     return out[cols]
+
+
+def modification_sheets(report, ledger, attribution: str = "graded") -> list:
+    """Workbook sheets ``modifications`` and ``modification_disclosure`` (and ``replacements`` when any).
+
+    Empty list when the ledger has no modification or replacement.
+    """
+    from grantval.io.xlsx.sheet import Sheet
+    from grantval.reporting.formats import MONEY, UNIT
+
+    if report is None:
+        return []
+    day, price = "yyyy-mm-dd", "#,##0.00"
+    fmt = {"modification_date": day, "expiration_date_before": day, "expiration_date_after": day,
+           "replacement_date": day, "exercise_price_before": price, "exercise_price_after": price,
+           "fair_value_before": UNIT, "fair_value_after": UNIT, "fair_value_cancelled_per_unit": UNIT,
+           "incremental_cost": MONEY, "recognised_on_modification_date": MONEY, "attributed_over_service": MONEY,
+           "value_cancelled": MONEY, "replacement_fair_value": MONEY, "units_before": "#,##0",
+           "units_after": "#,##0", "units_accelerated": "#,##0", "units_affected": "#,##0"}
+    text = ("grant_id", "holder_id", "replaces_grant_id")
+    sheets = []
+    mods = modification_table(report, ledger, attribution)
+    if len(mods):
+        sheets.append(Sheet("modifications", frame=mods, formats=fmt, text_columns=text,
+                            widths={"change": 30, "treatment": 60, "attribution": 70}))
+    rep = replacement_table(report, ledger)
+    if len(rep):
+        sheets.append(Sheet("replacements", frame=rep, formats=fmt, text_columns=text, widths={"attribution": 70}))
+    sheets.append(Sheet("modification_disclosure", frame=disclosure_table(report, ledger), formats=fmt,
+                        widths={"change": 30, "fair_value_measured": 40}))
+    return sheets

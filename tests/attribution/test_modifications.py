@@ -510,3 +510,34 @@ def test_expense_workbook_checks_pass_with_modifications(tmp_path, ledger, throu
     failed = [c.name for c in out.checks if not c.tool_pass]
     assert "Recognised + unrecognised = expected quantity x fair value (all tranches)" in [c.name for c in out.checks]
     assert failed == []
+
+
+def test_modification_sheets_write_to_a_workbook(tmp_path):
+    from openpyxl import load_workbook
+
+    from grantval.io.xlsx.write import write_workbook
+    from grantval.reporting.modification_tables import modification_sheets
+
+    led, pol, inp, _ = run(replaced(tmp_path / "l"), "2027-12-31")
+    sheets = modification_sheets(inp.modifications, led, pol.attribution)
+    assert [s.name for s in sheets] == ["replacements", "modification_disclosure"]
+    write_workbook(tmp_path / "m.xlsx", sheets)
+    wb = load_workbook(tmp_path / "m.xlsx")
+    ws = wb["replacements"]
+    assert ws["A2"].value == "R" and ws["B2"].value == "X"
+    assert modification_sheets(None, led) == []
+
+
+def test_modifications_sheet_shows_both_values(tmp_path):
+    from openpyxl import load_workbook
+
+    from grantval.io.xlsx.write import write_workbook
+    from grantval.reporting.modification_tables import COLUMNS, modification_sheets
+
+    led, pol, inp, _ = run(ig_example_7(tmp_path / "l"), "2027-12-31")
+    write_workbook(tmp_path / "m.xlsx", modification_sheets(inp.modifications, led, pol.attribution))
+    ws = load_workbook(tmp_path / "m.xlsx")["modifications"]
+    row = {label: cell.value for label, cell in zip(COLUMNS, ws[2])}
+    # IFRS 2 IG Example 7 (from memory): 5 before, 8 after, 3 x 46,000 outstanding on the repricing date
+    assert (row["fair_value_before"], row["fair_value_after"]) == (5, 8)
+    assert row["incremental_cost"] == 138_000 and row["change"] == "repricing"
