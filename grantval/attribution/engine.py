@@ -149,7 +149,9 @@ def _quantities(inp: ExpenseInputs, dn: int, forfeitures: str, cut: int, est_day
     q = _Quantities(
         outstanding=outstanding, cancelled=cancelled, n_exp=n_exp, vested=vested, granted_by=granted_by,
         started=pre.l_start <= dn,
-        elapsed=np.where(pre.l_start <= dn, _elapsed(dn, pre.l_start, pre.l_len), 0.0),
+        # a tranche vested before its service end (accelerated by a modification) is fully served
+        elapsed=np.where(pre.l_start <= dn, np.where(vested[pre.l_tranche], 1.0, _elapsed(dn, pre.l_start, pre.l_len)),
+                         0.0),
         el_set=np.where(pre.set_start <= dn, _elapsed(dn, pre.set_start, pre.set_len), 0.0),
         granted_g=granted_g,
         years_left_t=np.maximum(pre.t_vest - dn, 0) / DAYS_PER_YEAR,
@@ -222,6 +224,9 @@ def measure(inp: ExpenseInputs, d, *, attribution: str, forfeitures: str, events
         by_set = np.bincount(pre.l_set, weights=value, minlength=len(pre.set_grant)) * Q.el_set
         vested_value = np.bincount(lg, weights=np.where(Q.vested[lt] & started, value, 0.0), minlength=n_g)
         cost = np.maximum(np.bincount(pre.set_grant, weights=by_set, minlength=n_g), vested_value)
+        # every tranche vested (also by acceleration): the cost is the vested value, even if lower
+        all_vested = np.bincount(lg, weights=(started & ~Q.vested[lt]).astype(float), minlength=n_g) == 0
+        cost = np.where(all_vested & Q.granted_g, vested_value, cost)
         unrec = np.where(Q.granted_g, total - cost, 0.0)
         remaining = Q.years_left_g
     remaining = np.where(unrec > 0, remaining, 0.0)

@@ -54,6 +54,8 @@ class ExpenseInputs:
     #: award features whose cost is not the layers' (liabilities remeasured at each date, payouts in
     #: force at each date ...): each :class:`CostHook` computes the cumulative cost of its grants
     cost_hooks: list = field(default_factory=list)
+    #: modifications of the ledger's awards (attribution.modifications.ModificationReport), None when none
+    modifications: object = None
     _prep: object = None
 
     def __post_init__(self):
@@ -159,8 +161,12 @@ def hook_builders() -> list[Callable]:
     return [performance.build_hook]
 
 
-def build_inputs(ledger: Ledger, fair_values: "FairValues") -> ExpenseInputs:
-    """Collect the engine's arrays from a ledger and its fair values, with the features' cost hooks."""
+def build_inputs(ledger: Ledger, fair_values: "FairValues", policy=None) -> ExpenseInputs:
+    """Collect the engine's arrays from a ledger and its fair values, with the features' cost hooks.
+
+    ``policy`` (standard, valuation unit, lattice steps) values and treats the ledger's modifications;
+    when None, the ledger's own policy table (without a run's overrides).
+    """
     from grantval.attribution.service import service_end
 
     g, tr, ch, est = ledger.grants, ledger.tranches, ledger.changes, ledger.estimates
@@ -188,9 +194,28 @@ def build_inputs(ledger: Ledger, fair_values: "FairValues") -> ExpenseInputs:
         est_fraction=est["expected_vest_fraction"].to_numpy(float),
         t_service_end=service_end(ledger, t_vest),
     )
+    _modify(ledger, fair_values, inp, policy)
     inp.cost_hooks = [h for h in (b(ledger, fair_values, inp) for b in hook_builders()) if h is not None]
     # cash-settled awards (settlement "cash"): no grant-date layer value; their cost is the liability hook's
     from grantval.attribution.liability import install_liability_hook
 
     install_liability_hook(inp, ledger)
     return inp
+
+
+def _modify(ledger: Ledger, fair_values, inp: ExpenseInputs, policy) -> None:
+    """Modifications: vest dates in force (acceleration) and incremental cost layers (in place)."""
+    from grantval.attribution import modifications
+    from grantval.attribution.layers import append_layers
+    from grantval.policy import resolve_policy
+
+    mods = ledger.tables.get("modifications")
+    replaced = ledger.grants.get("replaces_grant_id")
+    if (mods is None or not len(mods)) and (replaced is None or not replaced.notna().any()):
+        return
+    if policy is None:
+        policy = resolve_policy(ledger.policy_values)
+    got = modifications.build(ledger, fair_values, inp, policy)
+    if got is not None:
+        inp.t_vest, extra, inp.modifications = got
+        inp.layers = append_layers(inp.layers, extra)

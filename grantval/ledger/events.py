@@ -67,6 +67,8 @@ def apply_events(grants: pd.DataFrame, tranches: pd.DataFrame, events: pd.DataFr
     kinds = events["event_type"].to_numpy()
     qtys = events["quantity"].to_numpy(float)
     rows = events["_row"].to_numpy()
+    # rows added by a ledger extension (a modification's reduction in quantity) name their own table
+    sources = events["_source"].to_numpy() if "_source" in events else np.full(len(events), source, dtype=object)
     for e in np.lexsort((np.arange(len(events)), dates, grant_pos)):
         gp, kind, d = grant_pos[e], kinds[e], dates[e]
         if gp < 0 or kind not in KINDS or np.isnat(d):
@@ -77,7 +79,7 @@ def apply_events(grants: pd.DataFrame, tranches: pd.DataFrame, events: pd.DataFr
             pool = _pool(kind, idx, vest[idx] <= d, g.exercisable[gp])
             problem = _allocate(out, remaining, pool, e, d, kind, qtys[e], g.ids[gp], vest[idx] <= d, idx)
         if problem is not None:
-            problems.append(Problem(source, rows[e], *problem))
+            problems.append(Problem(sources[e], rows[e], *problem))
     return _frame(out), problems
 
 

@@ -26,6 +26,7 @@ MODULES: tuple[str, ...] = (
     "grantval.ledger.ext.cash",
     "grantval.ledger.ext.accounts",
     "grantval.ledger.ext.tax",
+    "grantval.ledger.ext.modifications",
 )
 
 
@@ -52,6 +53,23 @@ class LedgerParts:
     sources: dict[str, str]
     tranches: "pd.DataFrame"
     schedule_ok: "np.ndarray"
+    #: events allocated to tranches under the terms as granted (None before allocation)
+    changes: "pd.DataFrame | None" = None
+
+
+@dataclass
+class Adjustment:
+    """Terms in force that an extension's ``adjust`` returns: events are allocated again under them.
+
+    ``grants`` and ``tranches`` are copies with changed terms (a later expiration date, an earlier
+    vest date); ``events`` may have rows added (a ``_source`` column then names each row's table);
+    ``problems`` are the extension's own.
+    """
+
+    grants: "pd.DataFrame"
+    tranches: "pd.DataFrame"
+    events: "pd.DataFrame"
+    problems: list = field(default_factory=list)
 
 
 @dataclass(frozen=True)
@@ -64,6 +82,8 @@ class Extension:
     event_types: tuple[str, ...] = ()
     text_columns: frozenset = frozenset()
     check: Callable[[LedgerParts], list["Problem"]] | None = None
+    #: ``adjust(parts) -> Adjustment | None``: terms in force after the feature's changes (modifications)
+    adjust: Callable[[LedgerParts], "Adjustment | None"] | None = None
 
 
 def extensions() -> list[Extension]:
@@ -78,3 +98,14 @@ def check_extensions(parts: LedgerParts) -> list["Problem"]:
         if ext.check is not None:
             problems += ext.check(parts)
     return problems
+
+
+def adjust_extensions(parts: LedgerParts) -> list[Adjustment]:
+    """Every extension's terms in force (see :class:`Adjustment`), in :data:`MODULES` order."""
+    out = []
+    for ext in extensions():
+        if ext.adjust is not None:
+            a = ext.adjust(parts)
+            if a is not None:
+                out.append(a)
+    return out

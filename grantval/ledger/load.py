@@ -13,7 +13,7 @@ from grantval.io.ledger_files import missing_table, read_ledger_files
 from grantval.io.tables import RawTable
 import grantval.ledger.validate as v
 from grantval.ledger.events import apply_events
-from grantval.ledger.extensions import LedgerParts, check_extensions
+from grantval.ledger.extensions import LedgerParts, adjust_extensions, check_extensions
 from grantval.ledger.model import Ledger
 from grantval.ledger.parse import parse_table
 from grantval.ledger.schedule import combine_schedules, generate_tranches
@@ -137,11 +137,18 @@ def read_ledger(location, planned=None) -> tuple[Ledger | None, list[Problem]]:
     valid[valid] = ok[epos[valid]]
     epos = np.where(valid, epos, -1)
     changes, probs = apply_events(g, tranches, ev, epos, sources["events"])
+    # extensions may change the terms in force (modifications): allocate the events again under them
+    for adj in adjust_extensions(LedgerParts(g, frames, sources, tranches, ok, changes)):
+        problems += adj.problems
+        ev = adj.events
+        epos = np.array([index.get(k, -1) for k in ev["grant_id"]], dtype=np.int64)
+        epos = np.where(epos >= 0, np.where(ok[np.maximum(epos, 0)], epos, -1), -1)
+        changes, probs = apply_events(adj.grants, adj.tranches, ev, epos, sources["events"])
     problems += probs
 
     est = frames["estimates"]
     problems += v.check_estimates(est, g, sources["estimates"])
-    problems += check_extensions(LedgerParts(g, frames, sources, tranches, ok))
+    problems += check_extensions(LedgerParts(g, frames, sources, tranches, ok, changes))
 
     pol = frames["policy"]
     policy_values, probs = policy_from_rows(list(zip(pol["_row"], pol["key"], pol["value"])), sources["policy"])

@@ -75,6 +75,10 @@ def tranche_table(inp: ExpenseInputs, sched: ExpenseSchedule, tranche_no) -> pd.
     m = sched.at_through
     forfeited = inp.t_qty - m.outstanding - m.cancelled
     granted = inp.grant_date[inp.t_grant] <= sched.period_ends[-1]
+    # cost layers started by the through date (grant date, then modifications): value per unit in force
+    lay = inp.layers
+    started = lay.start <= np.datetime64(sched.period_ends[-1], "D")
+    fv_in_force = np.bincount(lay.tranche[started], weights=lay.fair_value[started], minlength=len(inp.t_qty))
     return pd.DataFrame({
         "grant_id": inp.grant_id[inp.t_grant],
         "tranche": tranche_no,
@@ -84,7 +88,7 @@ def tranche_table(inp: ExpenseInputs, sched: ExpenseSchedule, tranche_no) -> pd.
         "cancelled_unvested": m.cancelled.astype(np.int64),
         "vested": m.vested,
         "quantity_expensed": np.where(granted, m.n_expensed, 0.0),
-        "fair_value_per_unit": inp.t_fv,
+        "fair_value_per_unit": fv_in_force,  # grant-date value plus modifications in force (else = t_fv)
         "grant_date_fair_value": inp.t_qty * inp.t_fv,
         "service_elapsed": m.elapsed,
     })

@@ -135,7 +135,7 @@ def dilution(location, *, average_prices, start, through, period=None, standard=
     with stage("value"):
         fv = compute_fair_values(ledger, policy)
     with stage("dilution"):
-        inp = build_inputs(ledger, fv)
+        inp = build_inputs(ledger, fv, policy)
         g = grant_dilution(ledger, inp, policy.attribution, starts, ends, prices)
     from grantval.io.tables import sha256_of
 

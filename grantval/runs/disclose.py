@@ -45,7 +45,7 @@ def disclose(location, *, start, through, share_price: float | None = None, peri
     policy = resolve_policy(ledger.policy_values, period=period, standard=standard, attribution=attribution,
                             forfeitures=forfeitures)
     fv = compute_fair_values(ledger, policy)
-    inp = build_inputs(ledger, fv)
+    inp = build_inputs(ledger, fv, policy)
     return DisclosureRun(ledger, policy, fv, compute_disclosure(ledger, fv, inp, policy, s, t, share_price))
 
 

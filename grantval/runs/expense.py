@@ -74,7 +74,7 @@ def expense(location, *, through, start=None, forecast_through=None, period=None
     with stage("value"):
         fv = compute_fair_values(ledger, policy)
     with stage("schedule"):
-        inp = build_inputs(ledger, fv)
+        inp = build_inputs(ledger, fv, policy)
         if forecast_d is not None:
             from grantval.attribution.liability import hold_values_after
 
@@ -121,6 +121,14 @@ def _write_book(run: ExpenseRun, xlsx, tables: dict, disc, checks, command, time
         at = next(i for i, sh in enumerate(sheets) if sh.name == "checks")
         sheets[at:at] = tables["liability_sheets"]
     write_workbook(pathlib.Path(xlsx), sheets, fixed_time=info.workbook_time())
+
+
+def _modification_sheets(run: ExpenseRun) -> list:
+    """Each modification's terms, fair values and incremental cost (none when the ledger has none)."""
+    from grantval.reporting.modification_tables import modification_sheets
+
+    report = getattr(run.inputs, "modifications", None)
+    return modification_sheets(report, run.ledger, run.policy.attribution) if report is not None else []
 
 
 def _wide_tables(run: ExpenseRun) -> tuple:
@@ -187,6 +195,7 @@ def write_expense(run: ExpenseRun, xlsx: pathlib.Path | None, csv_dir: pathlib.P
         if xlsx is not None:
             tables = dict(by_grant=by_grant, by_group=by_group, tranches=tranches, unrec=unrec,
                           unrec_total=unrec_total, unrec_wa=unrec_wa, forecast=forecast,
-                          liability_sheets=(LT.liability_sheets(run, lf) if lf is not None else []) + tax_sheets)
+                          liability_sheets=(LT.liability_sheets(run, lf) if lf is not None else []) + tax_sheets
+                          + _modification_sheets(run))
             _write_book(run, xlsx, tables, disc, checks, command, timestamp, share_price)
     return ExpenseOutputs(outputs, checks)

@@ -149,7 +149,7 @@ def run_scenarios(ledger: Ledger, policy: Policy, varies: list[list[Shift]], *, 
                                                   "expected_term_years")}) if sc.shifts else None
         fv = compute_fair_values(ledger, policy, shifts, cache)
         priced += fv.distinct_valuations
-        inp = build_inputs(ledger, fv)
+        inp = build_inputs(ledger, fv, policy)
         inp.memo = memo
         if "forfeiture_rate" in by:
             inp.estimate_adjust = forfeiture_adjuster(by["forfeiture_rate"], mask)

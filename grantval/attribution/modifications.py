@@ -1,0 +1,215 @@
+"""Modifications as cost layers: the incremental fair value of each modified tranche, from the modification date.
+
+Rules (docs/modifications.md):
+
+- incremental value per unit = fair value of the modified award less that of the original award
+  immediately before, both on the modification date (ASC 718-20-35-3; IFRS 2.27, B43(a));
+- it is a new cost layer of the tranche starting on the modification date and served to the
+  tranche's vesting date (graded) or, per modification, to the award's last service end
+  (straight-line); a tranche vested on the modification date takes it at once;
+- a decrease in fair value is ignored: the cost recognised is at least the grant-date fair value
+  (ASC 718-20-35-3; IFRS 2 B44(a));
+- ASC 718 improbable-to-probable (Type III, ASC 718-20-55-108 and Example 14 Case C): where the original
+  award was not expected to vest (``original_expected_to_vest`` = ``no``) and the modification vests
+  the tranche on the modification date (``accelerate``), the cost recognised so far on the tranche is
+  reversed and the modified award's fair value on the modification date recognised instead (layers
+  ``-(value so far)`` and ``+fair value after``).  Under IFRS 2 the grant-date fair value stands and
+  the incremental value is added (B43(a), (c));
+- Type I (probable-to-probable) and Type IV (improbable-to-improbable, no acceleration): the original
+  cost continues and the incremental is added, both following the forfeiture estimates
+  (ASC 718-20-55-107);
+- units exercised or expired before the modification take no incremental value: the layer's value
+  per counted unit of a vested tranche is scaled by units outstanding / units counted;
+- a reduction in quantity is a cancellation of the units removed (IFRS 2 B44(b), 28(a);
+  ASC 718-20-35-9): their remaining cost is recognised on the modification date (the ledger turns it
+  into a ``cancel`` change).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from grantval.attribution.layers import CostLayers
+
+
+@dataclass
+class ModificationCosts:
+    """Layers and per-pair figures of the modifications (pairs as in ``ModificationValues``)."""
+
+    layers: CostLayers
+    per_unit: np.ndarray        # per pair: incremental value per unit outstanding after
+    reversed_per_unit: np.ndarray  # per pair: value reversed per unit (Type III), else 0
+    treatment: np.ndarray       # per pair: text
+    incremental: np.ndarray     # per pair: incremental cost, currency (units after x per unit)
+
+
+def _layer_rows(values, t_fv_so_far: np.ndarray, standard: str):
+    """Per pair: (per-unit incremental, per-unit reversal, treatment) under the standard."""
+    t = values.terms
+    p = values.p_mod
+    unvested = values.vest_before > t.date[p]
+    inc = values.after - values.before
+    not_expected = _not_expected(values)
+    type3 = (standard == "asc718") & not_expected & t.accelerate[p] & unvested
+    per_unit = np.where(type3, values.after, np.maximum(inc, 0.0))
+    reverse = np.where(type3, t_fv_so_far, 0.0)
+    words = np.where(inc > 0, "incremental value added", "decrease in fair value ignored (no incremental)")
+    if standard == "asc718":
+        kind = np.where(not_expected, "Type IV (improbable to improbable)", "Type I (probable to probable)")
+        label = np.array([f"{k}: {w}" for k, w in zip(kind, words)], dtype=object)
+        label[type3] = "Type III (improbable to probable): original cost reversed, modified fair value recognised"
+    else:
+        label = np.array([f"IFRS 2.27: {w}" for w in words], dtype=object)
+    return per_unit, reverse, label
+
+
+def _not_expected(values) -> np.ndarray:
+    flag = getattr(values, "not_expected", None)
+    return np.zeros(len(values.p_mod), dtype=bool) if flag is None else flag
+
+
+def modification_layers(values, t_fv: np.ndarray, standard: str) -> ModificationCosts:
+    """Cost layers of every modification, in the order of the modifications' dates per grant.
+
+    Parameters
+    ----------
+    values : ModificationValues
+        From :func:`grantval.measurement.modification.modification_values` (with ``not_expected``).
+    t_fv : ndarray
+        Grant-date fair value per unit of each tranche.
+    standard : {"asc718", "ifrs2"}
+    """
+    t = values.terms
+    so_far = np.asarray(t_fv, dtype=float).copy()
+    n = len(values.p_mod)
+    per_unit, reverse = np.zeros(n), np.zeros(n)
+    label = np.empty(n, dtype=object)
+    for rank in np.unique(t.rank):
+        m = t.rank[values.p_mod] == rank
+        pu, rv, lb = _layer_rows(_subset(values, m), so_far[values.p_tranche[m]], standard)
+        per_unit[m], reverse[m], label[m] = pu, rv, lb
+        scale = _scale(values, m)
+        np.add.at(so_far, values.p_tranche[m], (pu - rv) * scale)
+    scale = _scale(values, np.ones(n, dtype=bool))
+    fv = np.concatenate([per_unit * scale, -reverse * scale])
+    tranche = np.concatenate([values.p_tranche, values.p_tranche])
+    start = np.concatenate([t.date[values.p_mod]] * 2)
+    set_id = np.concatenate([t.rank[values.p_mod] + 1] * 2)
+    keep = fv != 0
+    layers = CostLayers(tranche=tranche[keep].astype(np.int64), fair_value=fv[keep],
+                        start=start[keep].astype("datetime64[D]"), set_id=set_id[keep].astype(np.int64),
+                        kind=np.full(int(keep.sum()), "modification", dtype=object))
+    incremental = (per_unit - reverse) * values.units_after
+    return ModificationCosts(layers, per_unit, reverse, label, incremental)
+
+
+def _scale(values, m: np.ndarray) -> np.ndarray:
+    """Units outstanding after / units counted, per pair in ``m`` (1 where nothing is counted)."""
+    c = values.counted_after[m]
+    return np.where(c > 0, values.units_after[m] / np.where(c > 0, c, 1), 0.0)
+
+
+class _Sub:
+    """The pairs of ``values`` selected by a mask (same attribute names)."""
+
+    def __init__(self, values, m):
+        self.terms = values.terms
+        for name in ("p_mod", "p_tranche", "before", "after", "vest_before", "vest_after", "units_before",
+                     "units_after", "counted_after"):
+            setattr(self, name, getattr(values, name)[m])
+        ne = _not_expected(values)
+        self.not_expected = ne[m]
+
+
+def _subset(values, m):
+    return _Sub(values, m)
+
+
+def replacement_layers(rv, inp) -> tuple[CostLayers, np.ndarray, np.ndarray]:
+    """Layers that leave a replacement grant only its incremental value (ASC 718-20-35-8; IFRS 2.28(c)).
+
+    The replacement's grant-date fair value (its own layer) is reduced by the fair value of the
+    cancelled grant immediately before (total, both on the replacement's grant date), never below
+    zero (a decrease is ignored: IFRS 2 B44(a); ASC 718-20-35-3); the cancelled grant's own cost
+    continues on its original schedule (its cancellation does not accelerate it: see :func:`build`).
+
+    Returns the layers, the incremental value (currency) and the replacement's fair value (currency),
+    per replacement.
+    """
+    total = np.bincount(inp.t_grant, weights=inp.t_fv * inp.t_qty, minlength=inp.n_grants)[rv.new]
+    incremental = np.maximum(total - rv.value_before, 0.0)
+    ratio = np.where(total > 0, incremental / np.where(total > 0, total, 1.0), 0.0)
+    per_grant = np.full(inp.n_grants, np.nan)
+    per_grant[rv.new] = ratio
+    tr = np.flatnonzero(~np.isnan(per_grant[inp.t_grant]))
+    fv = -inp.t_fv[tr] * (1.0 - per_grant[inp.t_grant[tr]])
+    keep = fv != 0
+    gdate = np.asarray(inp.grant_date, dtype="datetime64[D]")
+    layers = CostLayers(tranche=tr[keep].astype(np.int64), fair_value=fv[keep],
+                        start=gdate[inp.t_grant[tr[keep]]], set_id=np.zeros(int(keep.sum()), dtype=np.int64),
+                        kind=np.full(int(keep.sum()), "modification", dtype=object))
+    return layers, incremental, total
+
+
+def _replaced_changes(ledger) -> np.ndarray:
+    """Per change: it is the cancellation of a replaced grant."""
+    ev, ch = ledger.events, ledger.changes
+    if "_replaced_by" not in ev or not len(ch):
+        return np.zeros(len(ch), dtype=bool)
+    return ev["_replaced_by"].notna().to_numpy()[ch["event_idx"].to_numpy()]
+
+
+def build(ledger, fair_values, inp, policy) -> tuple[np.ndarray, CostLayers, object] | None:
+    """In-force vest dates, extra layers and the modification report of a ledger (None without modifications).
+
+    The cancellation of a replaced grant is taken out of the engine's changes (``inp.c_kind`` becomes
+    ``replaced``): the replaced grant's cost continues as if it were outstanding (a modification, not a
+    cancellation: ASC 718-20-35-8; IFRS 2.28(c)).
+    """
+    from grantval.ledger.ext.modifications import vest_in_force
+    from grantval.measurement.modification import modification_values, replaced_values
+
+    values = modification_values(ledger, policy)
+    rv = replaced_values(ledger, policy)
+    if values is None and rv is None:
+        return None
+    mods = ledger.tables["modifications"]
+    layers = CostLayers(np.zeros(0, np.int64), np.zeros(0), np.zeros(0, "datetime64[D]"), np.zeros(0, np.int64),
+                        np.zeros(0, dtype=object))
+    costs = None
+    if values is not None:
+        values.not_expected = (mods["original_expected_to_vest"].to_numpy(dtype=object)[values.terms.order]
+                               == "no")[values.p_mod]
+        costs = modification_layers(values, inp.t_fv, policy.standard)
+        layers = costs.layers
+    replaced = None
+    if rv is not None:
+        from grantval.attribution.layers import append_layers
+
+        r_layers, incremental, total = replacement_layers(rv, inp)
+        layers = append_layers(layers, r_layers)
+        replaced = ReplacementCosts(rv, incremental, total)
+        inp.c_kind = np.where(_replaced_changes(ledger), "replaced", inp.c_kind).astype(object)
+    t_vest = vest_in_force(ledger.tranches, ledger.grants, mods)
+    return t_vest, layers, ModificationReport(values, costs, policy.standard, replaced)
+
+
+@dataclass
+class ReplacementCosts:
+    """Per replacement: the values and the incremental cost (currency)."""
+
+    values: object
+    incremental: np.ndarray
+    replacement_value: np.ndarray
+
+
+@dataclass
+class ModificationReport:
+    """What the reporting tables show: the values and the costs of every modification and replacement."""
+
+    values: object
+    costs: ModificationCosts | None
+    standard: str
+    replacements: ReplacementCosts | None = None

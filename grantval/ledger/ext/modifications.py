@@ -1,0 +1,365 @@
+"""Ledger extension: modifications of awards (repricing, extended terms, accelerated vesting, reductions).
+
+Adds the table ``modifications``: ``grant_id``, ``modification_date`` and the new terms, blank where
+unchanged (``exercise_price``, ``expiration_date``, ``quantity``, ``vest_months``,
+``vest_every_months``, ``cliff_months``, ``accelerate``); the valuation inputs on the modification
+date (``assumption_set``) or an outside valuation (``fair_value_before`` and ``fair_value_after``, per
+unit); ``original_expected_to_vest`` (``yes``/``no``, default ``yes``).  Adds the grant column
+``replaces_grant_id``: a cancellation with replacement (ASC 718-20-35-8; IFRS 2.28(c)): every unit of
+the replaced grant outstanding on the replacement's grant date is cancelled on that date, and the
+pair is accounted for as a modification (see :mod:`grantval.attribution.modifications`).
+
+Terms in force (used to allocate events, see :func:`adjust`):
+
+- a new ``expiration_date`` is in force from the modification date: events up to it are accepted;
+- ``accelerate`` = ``yes``: every tranche not vested on the modification date vests on it;
+- ``quantity`` is the number of units outstanding after the modification (exercised, expired,
+  forfeited and cancelled units not counted); a smaller number cancels the difference on the
+  modification date, latest-vesting units first, like a ``cancel`` event (IFRS 2 B44(b): a partial
+  cancellation).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+
+from grantval.errors import Problem
+from grantval.ledger.columns import Column
+from grantval.ledger.extensions import Adjustment, Extension, LedgerParts
+
+MODIFICATIONS = (
+    Column("grant_id", "text", required=True),
+    Column("modification_date", "date", required=True),
+    Column("exercise_price", "number"),
+    Column("expiration_date", "date"),
+    Column("quantity", "integer"),
+    Column("vest_months", "integer"),
+    Column("vest_every_months", "integer"),
+    Column("cliff_months", "integer"),
+    Column("accelerate", "choice", choices=("yes", "no"), default="no"),
+    Column("assumption_set", "text"),
+    Column("fair_value_before", "number"),
+    Column("fair_value_after", "number"),
+    Column("original_expected_to_vest", "choice", choices=("yes", "no"), default="yes"),
+)
+
+GRANT_COLUMNS = (Column("replaces_grant_id", "text"),)
+
+#: modification columns refused for now
+NOT_SUPPORTED = ("vest_months", "vest_every_months", "cliff_months")
+
+
+@dataclass
+class Terms:
+    """Per modification (rows of :func:`ordered`): the terms in force immediately before and after it.
+
+    Strikes are currency per share (NaN for units); dates ``datetime64[D]``; ``accel_before`` is the
+    earliest earlier acceleration date of the grant (NaT where none).
+    """
+
+    order: np.ndarray          # rows of the modifications table, by grant then date
+    gp: np.ndarray             # grant position
+    date: np.ndarray
+    rank: np.ndarray           # 0 for a grant's first modification, 1 for its second ...
+    strike_before: np.ndarray
+    strike_after: np.ndarray
+    expiry_before: np.ndarray
+    expiry_after: np.ndarray
+    accel_before: np.ndarray
+    accelerate: np.ndarray     # bool
+
+
+def grant_positions(grants: pd.DataFrame, mods: pd.DataFrame) -> np.ndarray:
+    """Position in ``grants`` of each modification's grant (-1 when unknown)."""
+    index = {k: i for i, k in enumerate(grants["grant_id"])}
+    return np.array([index.get(k, -1) for k in mods["grant_id"]], dtype=np.int64)
+
+
+def _carry(values: np.ndarray, start: np.ndarray, new_group: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Values in force before and after each row: the last non-missing value so far in its group, else ``start``."""
+    after = pd.Series(values).groupby(np.cumsum(new_group)).ffill().to_numpy()
+    missing = pd.isna(after)
+    after = np.where(missing, start, after)
+    before = np.where(new_group, start, np.roll(after, 1))
+    return before, after
+
+
+def terms(grants: pd.DataFrame, mods: pd.DataFrame) -> Terms:
+    """The terms in force around every modification whose grant is known (vectorised over rows)."""
+    gp_all = grant_positions(grants, mods)
+    date_all = mods["modification_date"].to_numpy("datetime64[D]")
+    keep = np.flatnonzero((gp_all >= 0) & ~np.isnat(date_all))
+    order = keep[np.lexsort((date_all[keep], gp_all[keep]))]
+    gp, date = gp_all[order], date_all[order]
+    new_group = np.r_[True, gp[1:] != gp[:-1]] if len(gp) else np.zeros(0, dtype=bool)
+    group_start = np.maximum.accumulate(np.where(new_group, np.arange(len(gp)), 0)) if len(gp) else gp
+    rank = np.arange(len(gp)) - group_start
+    strike_b, strike_a = _carry(mods["exercise_price"].to_numpy(float)[order],
+                                grants["exercise_price"].to_numpy(float)[gp], new_group)
+    exp_new = mods["expiration_date"].to_numpy("datetime64[D]")[order]
+    exp_grant = grants["expiration_date"].to_numpy("datetime64[D]")[gp].astype(object)
+    exp_b, exp_a = _carry(exp_new.astype(object), exp_grant, new_group)
+    acc = (mods["accelerate"].to_numpy(dtype=object)[order] == "yes")
+    acc_day = np.where(acc, date, np.datetime64("NaT"))
+    acc_b, _ = _carry(acc_day.astype(object), np.full(len(gp), None, dtype=object), new_group)
+    as_day = lambda a: pd.to_datetime(pd.Series(a, dtype=object)).to_numpy("datetime64[D]")  # noqa: E731
+    return Terms(order, gp, date, rank, strike_b.astype(float), strike_a.astype(float), as_day(exp_b), as_day(exp_a),
+                 as_day(acc_b), acc)
+
+
+def vest_in_force(tranches: pd.DataFrame, grants: pd.DataFrame, mods: pd.DataFrame) -> np.ndarray:
+    """Per tranche: its vest date with accelerations applied (the earliest acceleration date where earlier)."""
+    vest = tranches["vest_date"].to_numpy("datetime64[D]").copy()
+    if not len(mods):
+        return vest
+    t = terms(grants, mods)
+    first = np.full(len(grants), np.datetime64("NaT"), dtype="datetime64[D]")
+    for gp, d in zip(t.gp[t.accelerate][::-1], t.date[t.accelerate][::-1]):
+        first[gp] = d  # the earliest acceleration of each grant wins (rows run latest first)
+    acc = first[tranches["grant_idx"].to_numpy()]
+    return np.where(~np.isnat(acc) & (acc < vest), acc, vest)
+
+
+def _rows(frame: pd.DataFrame, mask) -> list[int]:
+    return [int(r) for r in frame["_row"].to_numpy()[np.asarray(mask, dtype=bool)]]
+
+
+def _row_problems(m: pd.DataFrame, g: pd.DataFrame, a: pd.DataFrame, src: str) -> list[Problem]:
+    """Checks of each modification row against its grant and the assumptions."""
+    p: list[Problem] = []
+    gp = grant_positions(g, m)
+    for r, k in zip(_rows(m, gp < 0), m["grant_id"][gp < 0]):
+        if k is not None:
+            p.append(Problem(src, r, "grant_id", f"{k!r} is not a grant in the grants table"))
+    known = gp >= 0
+    d = m["modification_date"].to_numpy("datetime64[D]")
+    gd = np.where(known, g["grant_date"].to_numpy("datetime64[D]")[np.maximum(gp, 0)], np.datetime64("NaT"))
+    for r, x, y in zip(_rows(m, known & (d < gd)), d[known & (d < gd)], gd[known & (d < gd)]):
+        p.append(Problem(src, r, "modification_date", f"{x} is before the grant date {y}"))
+    new_exp = m["expiration_date"].to_numpy("datetime64[D]")
+    bad = ~np.isnat(new_exp) & (new_exp <= d)
+    for r in _rows(m, bad):
+        p.append(Problem(src, r, "expiration_date", "the new expiration date is not after the modification date"))
+    before, after = m["fair_value_before"].notna().to_numpy(), m["fair_value_after"].notna().to_numpy()
+    for r in _rows(m, before & ~after):
+        p.append(Problem(src, r, "fair_value_after", "is required when fair_value_before is given (per-unit values "
+                         "of the modified award and of the original award immediately before)"))
+    for r in _rows(m, after & ~before):
+        p.append(Problem(src, r, "fair_value_before", "is required when fair_value_after is given"))
+    for col in ("fair_value_before", "fair_value_after"):
+        v = m[col].to_numpy(float)
+        for r in _rows(m, ~np.isnan(v) & (v < 0)):
+            p.append(Problem(src, r, col, "must be zero or more (currency per unit)"))
+    aset = m["assumption_set"].to_numpy(dtype=object)
+    names = set(a["assumption_set"].dropna())
+    has_set = m["assumption_set"].notna().to_numpy()
+    for r, k in zip(_rows(m, has_set & ~np.isin(aset, list(names))), aset[has_set & ~np.isin(aset, list(names))]):
+        p.append(Problem(src, r, "assumption_set", f"{k!r} is not an assumption_set of the assumptions table"))
+    for r in _rows(m, has_set & before):
+        p.append(Problem(src, r, "assumption_set", "give either an assumption_set or fair_value_before and "
+                         "fair_value_after, not both"))
+    for r in _rows(m, ~has_set & ~before & ~after):
+        p.append(Problem(src, r, "assumption_set", "is required (the valuation inputs on the modification date), "
+                         "or give fair_value_before and fair_value_after from an outside valuation"))
+    dup = m[["grant_id", "modification_date"]].astype(str).duplicated().to_numpy() & known
+    for r in _rows(m, dup):
+        p.append(Problem(src, r, "modification_date", "the grant already has a modification on this date: give "
+                         "all the changes of one date in one row"))
+    return p + _kind_problems(m, g, gp, src)
+
+
+def _kind_problems(m: pd.DataFrame, g: pd.DataFrame, gp: np.ndarray, src: str) -> list[Problem]:
+    """Terms that do not apply to the award, and changes not supported yet."""
+    from grantval.awards.registry import flag
+
+    p: list[Problem] = []
+    known = gp >= 0
+    award = np.where(known, g["award_type"].to_numpy(dtype=object)[np.maximum(gp, 0)], "")
+    options = np.zeros(len(m), dtype=bool)
+    options[known] = flag(award[known], "option_terms")
+    for col in ("exercise_price", "expiration_date"):
+        for r in _rows(m, known & ~options & m[col].notna().to_numpy()):
+            p.append(Problem(src, r, col, "only options have an exercise price and an expiration date"))
+    for r in _rows(m, known & ~np.isin(award, ("option", "rsu"))):
+        p.append(Problem(src, r, "grant_id", "modifications of this award type are not supported yet "
+                         "(options and RSUs only)"))
+    for col in NOT_SUPPORTED:
+        for r in _rows(m, m[col].notna().to_numpy()):
+            p.append(Problem(src, r, col, "changes of the vesting schedule are not supported yet (use accelerate "
+                             "= yes to vest every unvested tranche on the modification date)"))
+    q = m["quantity"].to_numpy(float)
+    for r in _rows(m, ~np.isnan(q) & (q < 0)):
+        p.append(Problem(src, r, "quantity", "must be zero or more (units outstanding after the modification)"))
+    return p
+
+
+def replacements(grants: pd.DataFrame) -> tuple[np.ndarray, np.ndarray]:
+    """Positions of the replacement grants and of the grants they replace (known ids only)."""
+    if "replaces_grant_id" not in grants:
+        return np.zeros(0, np.int64), np.zeros(0, np.int64)
+    index = {k: i for i, k in enumerate(grants["grant_id"])}
+    rep = grants["replaces_grant_id"].to_numpy(dtype=object)
+    new = [i for i, k in enumerate(rep) if not pd.isna(k) and k in index and index[k] != i]
+    return np.array(new, dtype=np.int64), np.array([index[rep[i]] for i in new], dtype=np.int64)
+
+
+def _grant_column_problems(g: pd.DataFrame, src: str) -> list[Problem]:
+    """Checks of ``replaces_grant_id``: a known, other grant, replaced once, on a date it is in force."""
+    if "replaces_grant_id" not in g:
+        return []
+    p: list[Problem] = []
+    rep = g["replaces_grant_id"].to_numpy(dtype=object)
+    ids = set(g["grant_id"])
+    for r, k, own in zip(g["_row"], rep, g["grant_id"]):
+        if pd.isna(k):
+            continue
+        if k == own:
+            p.append(Problem(src, int(r), "replaces_grant_id", "a grant cannot replace itself"))
+        elif k not in ids:
+            p.append(Problem(src, int(r), "replaces_grant_id", f"{k!r} is not a grant in the grants table"))
+    new, old = replacements(g)
+    seen: dict = {}
+    gd = g["grant_date"].to_numpy("datetime64[D]")
+    ex = g["expiration_date"].to_numpy("datetime64[D]")
+    award = g["award_type"].to_numpy(dtype=object)
+    for n, o in zip(new, old):
+        row = int(g["_row"].iloc[n])
+        if o in seen:
+            p.append(Problem(src, row, "replaces_grant_id", f"grant {g['grant_id'].iloc[o]} is already replaced "
+                             f"by grant {g['grant_id'].iloc[seen[o]]}"))
+        seen[o] = n
+        if gd[n] < gd[o]:
+            p.append(Problem(src, row, "replaces_grant_id", f"the replacement's grant date {gd[n]} is before the "
+                             f"grant date {gd[o]} of the grant it replaces"))
+        if not np.isnat(ex[o]) and gd[n] > ex[o]:
+            p.append(Problem(src, row, "replaces_grant_id", f"the grant it replaces expired on {ex[o]}"))
+        if award[n] not in ("option", "rsu") or award[o] not in ("option", "rsu"):
+            p.append(Problem(src, row, "replaces_grant_id", "replacements of this award type are not supported "
+                             "yet (options and RSUs only)"))
+    return p
+
+
+def _live_at(parts: LedgerParts, changes: pd.DataFrame, gp: np.ndarray, d: np.ndarray) -> np.ndarray:
+    """Units of each grant ``gp`` outstanding (not exercised, expired, forfeited or cancelled) after day ``d``."""
+    from grantval.ledger.ext._cumulative import sum_through
+
+    tr = parts.tranches
+    granted = np.bincount(tr["grant_idx"].to_numpy(), weights=tr["quantity"].to_numpy(float),
+                          minlength=len(parts.grants))
+    out = granted[gp].copy()
+    if len(changes):
+        c_grant = tr["grant_idx"].to_numpy()[changes["tranche_idx"].to_numpy()]
+        out -= sum_through(c_grant, changes["date"].to_numpy("datetime64[D]"), changes["quantity"].to_numpy(float),
+                           gp, d)
+    return out
+
+
+def _ended(parts: LedgerParts, t: Terms, live: np.ndarray, src: str, rows: np.ndarray) -> list[Problem]:
+    """A modification after the grant has ended (expired, or no unit left)."""
+    p = []
+    past = ~np.isnat(t.expiry_before) & (t.date > t.expiry_before)
+    for r, e in zip(rows[past], t.expiry_before[past]):
+        p.append(Problem(src, int(r), "modification_date", f"is after the grant's expiration date {e} in force "
+                         "then: an award that has ended cannot be modified"))
+    for r in rows[~past & (live <= 0)]:
+        p.append(Problem(src, int(r), "modification_date", "no unit of the grant is outstanding on this date "
+                         "(all exercised, expired, forfeited or cancelled): the grant has ended"))
+    return p
+
+
+def _reductions(t: Terms, new_qty: np.ndarray, live: np.ndarray, src: str, rows: np.ndarray):
+    """Cancel events for reductions in quantity; problems for increases."""
+    p, ev = [], []
+    for i in np.flatnonzero(~np.isnan(new_qty)):
+        if new_qty[i] > live[i]:
+            p.append(Problem(src, int(rows[i]), "quantity", f"{int(new_qty[i])} is more than the {int(live[i])} "
+                             "units outstanding before the modification: increases in quantity are not supported "
+                             "yet (grant the additional units as a new grant)"))
+        elif new_qty[i] < live[i] and live[i] > 0:
+            ev.append((i, int(live[i] - new_qty[i])))
+    return ev, p
+
+
+def _replacement_cancels(parts: LedgerParts) -> pd.DataFrame:
+    """A ``cancel`` of every unit of a replaced grant outstanding on the replacement's grant date."""
+    g = parts.grants
+    new, old = replacements(g)
+    new, old = new[parts.schedule_ok[old]], old[parts.schedule_ok[old]]
+    return pd.DataFrame({
+        "grant_id": g["grant_id"].to_numpy(dtype=object)[old],
+        "event_date": g["grant_date"].to_numpy("datetime64[D]")[new],
+        "event_type": ["cancel"] * len(new), "quantity": [np.nan] * len(new), "share_price": [np.nan] * len(new),
+        "_row": g["_row"].to_numpy()[new].astype(np.int64), "_source": [parts.sources["grants"]] * len(new),
+        "_replaced_by": g["grant_id"].to_numpy(dtype=object)[new]})
+
+
+def adjust(parts: LedgerParts) -> Adjustment | None:
+    """The terms in force after the modifications, and the cancellations of reduced quantities, for events."""
+    m = parts.tables["modifications"]
+    if not len(m):
+        extra = _replacement_cancels(parts)
+        if not len(extra):
+            return None
+        events = pd.concat([parts.tables["events"].assign(_source=parts.sources["events"]), extra],
+                           ignore_index=True)
+        return Adjustment(grants=parts.grants, tranches=parts.tranches, events=events)
+    src, g = parts.sources["modifications"], parts.grants
+    t = terms(g, m)
+    ok = parts.schedule_ok[t.gp]
+    t = Terms(*(getattr(t, f)[ok] for f in Terms.__dataclass_fields__))
+    rows = m["_row"].to_numpy()[t.order]
+    live = _live_at(parts, parts.changes, t.gp, t.date)
+    problems = _ended(parts, t, live, src, rows)
+    ev, probs = _reductions(t, m["quantity"].to_numpy(float)[t.order], live, src, rows)
+    problems += probs
+    grants = g.copy()
+    last = {}
+    for gp, e in zip(t.gp, t.expiry_after):
+        last[gp] = e
+    exp = grants["expiration_date"].to_numpy("datetime64[D]").copy()
+    for gp, e in last.items():
+        exp[gp] = e
+    grants["expiration_date"] = exp
+    tranches = parts.tranches.copy()
+    tranches["vest_date"] = vest_in_force(parts.tranches, g, m.iloc[np.sort(t.order)])
+    events = parts.tables["events"]
+    extra = pd.DataFrame({
+        "grant_id": [g["grant_id"].iloc[t.gp[i]] for i, _ in ev],
+        "event_date": np.array([t.date[i] for i, _ in ev], dtype="datetime64[D]"),
+        "event_type": ["cancel"] * len(ev), "quantity": [float(q) for _, q in ev],
+        "share_price": [np.nan] * len(ev), "_row": [int(rows[i]) for i, _ in ev], "_source": [src] * len(ev)})
+    extra = pd.concat([extra, _replacement_cancels(parts)], ignore_index=True)
+    if len(extra):
+        events = pd.concat([events.assign(_source=parts.sources["events"]), extra], ignore_index=True)
+    return Adjustment(grants=grants, tranches=tranches, events=events, problems=problems)
+
+
+def check(parts: LedgerParts) -> list[Problem]:
+    """Row checks of the modifications table and of ``replaces_grant_id``."""
+    m = parts.tables["modifications"]
+    p = _grant_column_problems(parts.grants, parts.sources["grants"])
+    if len(m):
+        p += _row_problems(m, parts.grants, parts.tables["assumptions"], parts.sources["modifications"])
+    new, old = replacements(parts.grants)
+    if len(new) and parts.changes is not None:
+        ok = parts.schedule_ok[old]
+        day = parts.grants["grant_date"].to_numpy("datetime64[D]")[new[ok]] - np.timedelta64(1, "D")
+        live = _live_at(parts, parts.changes, old[ok], day)
+        for n, o in zip(new[ok][live <= 0], old[ok][live <= 0]):
+            p.append(Problem(parts.sources["grants"], int(parts.grants["_row"].iloc[n]), "replaces_grant_id",
+                             f"grant {parts.grants['grant_id'].iloc[o]} has no unit outstanding on the "
+                             "replacement's grant date"))
+    return p
+
+
+EXTENSION = Extension(
+    feature="modifications",
+    tables={"modifications": MODIFICATIONS},
+    grant_columns=GRANT_COLUMNS,
+    text_columns=frozenset({"replaces_grant_id"}),
+    check=check,
+    adjust=adjust,
+)
