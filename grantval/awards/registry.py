@@ -18,6 +18,7 @@ MODULES = {
     "option": "grantval.awards.option",
     "rsu": "grantval.awards.rsu",
     "psu": "grantval.awards.psu",
+    "espp": "grantval.awards.espp",  # ESPP enrollments (synthesized from espp_enrollments)
 }
 
 #: the award types accepted in the grants table, in the order documented

@@ -13,7 +13,7 @@ from grantval.io.ledger_files import missing_table, read_ledger_files
 from grantval.io.tables import RawTable
 import grantval.ledger.validate as v
 from grantval.ledger.events import apply_events
-from grantval.ledger.extensions import LedgerParts, check_extensions
+from grantval.ledger.extensions import LedgerParts, check_extensions, contribute_extensions, extension_changes
 from grantval.ledger.model import Ledger
 from grantval.ledger.parse import parse_table
 from grantval.ledger.schedule import combine_schedules, generate_tranches
@@ -120,10 +120,14 @@ def read_ledger(location, planned=None) -> tuple[Ledger | None, list[Problem]]:
         pframe["planned"] = True
         g = pd.concat([g, pframe], ignore_index=True)
         pos = np.concatenate([pos, ppos])
+    # grants the extensions synthesize from their own tables (ESPP enrollments), after the core grant checks
+    g, a, pos, own_tranches, probs = contribute_extensions(g, a, pos, frames, sources)
+    problems += probs
     problems += v.check_grant_assumptions(g, a, pos, sources["assumptions"])
 
     ok, tranches, probs = _tranches(g, frames["tranches"], sources["tranches"])
     problems += probs
+    tranches = combine_schedules(tranches, own_tranches)  # the extensions' own tranches replace generated ones
     problems += v.check_last_vest(g, tranches, sources["grants"])
 
     ev = frames["events"]
@@ -137,6 +141,9 @@ def read_ledger(location, planned=None) -> tuple[Ledger | None, list[Problem]]:
     valid[valid] = ok[epos[valid]]
     epos = np.where(valid, epos, -1)
     changes, probs = apply_events(g, tranches, ev, epos, sources["events"])
+    problems += probs
+    # tranche changes of the extensions' event types (ESPP withdraw)
+    changes, probs = extension_changes(LedgerParts(g, frames, sources, tranches, ok), ev, epos, changes)
     problems += probs
 
     est = frames["estimates"]
