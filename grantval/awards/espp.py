@@ -56,9 +56,9 @@ def value(ctx, grants: np.ndarray) -> KindValues:
             m = mg[gi]
             if not m.any():
                 continue
-            args = dict(share_price=ctx.share_price[gi][m], term=ctx.t_vest[m], rate=ctx.risk_free_rate[gi][m],
-                        volatility=ctx.volatility[gi][m], dividend_yield=ctx.dividend_yield[gi][m],
-                        discount=disc[gi][m])
+            args = {"share_price": ctx.share_price[gi][m], "term": ctx.t_vest[m],
+                    "rate": ctx.risk_free_rate[gi][m], "volatility": ctx.volatility[gi][m],
+                    "dividend_yield": ctx.dividend_yield[gi][m], "discount": disc[gi][m]}
             vals, d = unique_call(espp_value, args, ctx.cache, lookback=lb, basis=b)
             distinct += d
             if b == "fixed_withholding":

@@ -86,12 +86,16 @@ class Contribution:
     assumptions : DataFrame
         Rows in the assumptions format (the valuation inputs of the synthesized grants).
     problems : list of Problem
+    withheld : set of str
+        Grant ids the feature would have built but could not (their problems are reported), so
+        events naming them are not also reported as unknown grants.
     """
 
     grants: "pd.DataFrame"
     tranches: "pd.DataFrame"
     assumptions: "pd.DataFrame"
     problems: list
+    withheld: set = field(default_factory=set)
 
 
 def extensions() -> list[Extension]:
@@ -112,7 +116,8 @@ def contribute_extensions(g, a, pos, tables: dict, sources: dict):
     """Append every extension's synthesized grants and assumption rows (ESPP enrollments, ...).
 
     Returns the grants, the assumptions, the assumptions row of each grant, the synthesized
-    tranches (``grant_idx`` into the returned grants, ``vest_date``, ``quantity``) and problems.
+    tranches (``grant_idx`` into the returned grants, ``vest_date``, ``quantity``), the problems and
+    the grant ids withheld (see :class:`Contribution`).
     """
     import numpy as np
     import pandas as pd
@@ -121,11 +126,13 @@ def contribute_extensions(g, a, pos, tables: dict, sources: dict):
 
     problems: list = []
     extra = []
+    withheld: set = set()
     for ext in extensions():
         if ext.contribute is None:
             continue
         c = ext.contribute(tables, sources)
         problems += c.problems
+        withheld |= c.withheld
         if not len(c.grants):
             continue
         clash = c.grants["grant_id"].isin(set(g["grant_id"].dropna())).to_numpy()
@@ -145,7 +152,7 @@ def contribute_extensions(g, a, pos, tables: dict, sources: dict):
                                    "vest_date": t["vest_date"].to_numpy("datetime64[D]"),
                                    "quantity": t["quantity"].to_numpy(np.int64)}))
     tranches = pd.concat(extra, ignore_index=True) if extra else None
-    return g, a, pos, tranches, problems
+    return g, a, pos, tranches, problems, withheld
 
 
 def extension_changes(parts: LedgerParts, events, grant_pos, changes):

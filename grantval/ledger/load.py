@@ -121,7 +121,7 @@ def read_ledger(location, planned=None) -> tuple[Ledger | None, list[Problem]]:
         g = pd.concat([g, pframe], ignore_index=True)
         pos = np.concatenate([pos, ppos])
     # grants the extensions synthesize from their own tables (ESPP enrollments), after the core grant checks
-    g, a, pos, own_tranches, probs = contribute_extensions(g, a, pos, frames, sources)
+    g, a, pos, own_tranches, probs, withheld = contribute_extensions(g, a, pos, frames, sources)
     problems += probs
     problems += v.check_grant_assumptions(g, a, pos, sources["assumptions"])
 
@@ -134,7 +134,7 @@ def read_ledger(location, planned=None) -> tuple[Ledger | None, list[Problem]]:
     index = {k: i for i, k in enumerate(g["grant_id"])}
     epos = np.array([index.get(k, -1) for k in ev["grant_id"]], dtype=np.int64)
     for r, k in zip(ev["_row"][epos < 0], ev["grant_id"][epos < 0]):
-        if k is not None:
+        if k is not None and k not in withheld:  # withheld: an extension already reported why (ESPP)
             problems.append(Problem(sources["events"], int(r), "grant_id", f"{k!r} is not a grant in the grants table"))
     # events are only allocated for grants whose schedule is complete
     valid = epos >= 0

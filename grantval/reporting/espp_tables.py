@@ -79,7 +79,7 @@ def espp_table(ledger, fair_values, through) -> pd.DataFrame:
         "offering_id": g["_espp_offering"].to_numpy(object)[gi], "holder_id": g["holder_id"].to_numpy(object)[gi],
         "grant_id": g["grant_id"].to_numpy(object)[gi], "group": g["group"].to_numpy(object)[gi],
         "start_date": g["grant_date"].to_numpy("datetime64[D]")[gi], "purchase_date": vest, "discount": disc,
-        "lookback": np.where(g["_espp_lookback"].to_numpy(object)[gi] == True, "yes", "no"),  # noqa: E712
+        "lookback": np.where(g["_espp_lookback"].to_numpy(object)[gi].astype(bool), "yes", "no"),
         "shares_basis": g["_espp_basis"].to_numpy(object)[gi], "start_purchase_price": (1 - disc) * price,
         "exact_shares": exact, "shares": shares,
         "shares_dropped_by_rounding": np.maximum(exact - np.floor(np.round(exact, 9)), 0.0),

@@ -200,7 +200,7 @@ def integrated(s, t, r, sigma, q, d, n0, cap, lookback):
         return shares * (st - (1 - d) * ref) / n0
 
     mu, sd = math.log(s) + (r - q - sigma ** 2 / 2) * t, sigma * math.sqrt(t)
-    f = lambda z: gain(math.exp(mu + sd * z)) * stats.norm.pdf(z)  # noqa: E731
+    f = lambda z: gain(math.exp(mu + sd * z)) * stats.norm.pdf(z)
     val = sum(integrate.quad(f, a, b, limit=200, epsabs=1e-12)[0] for a, b in ((-12, 0), (0, 12)))
     return math.exp(-r * t) * val
 
@@ -300,3 +300,9 @@ def test_zero_withholding_is_a_warning_and_costs_nothing(tmp_path):
     run = api.expense(folder, through="2027-12-31")
     assert list(run.inputs.grant_id) == ["G1"]
     assert any(w.column == "withholding" and "no whole share" in w.message for w in run.ledger.warnings)
+
+
+def test_events_of_an_enrollment_in_a_bad_offering_are_not_reported_as_unknown_grants(tmp_path):
+    found = problems_of(ledger(tmp_path / "l", [offering(discount="1.5")], [enrol()],
+                               [event("O27/H1", "2027-03-01", "withdraw"), event("O27/H9", "2027-03-01", "withdraw")]))
+    assert [(s, r, c) for s, r, c, m in found] == [("espp_offerings.csv", 2, "discount"), ("events.csv", 3, "grant_id")]

@@ -24,6 +24,7 @@ purchase-plan table, no change to cost).  A termination of employment is the cor
 from __future__ import annotations
 
 import datetime as _dt
+from itertools import pairwise
 
 import numpy as np
 import pandas as pd
@@ -97,7 +98,7 @@ def _offering_problems(o: pd.DataFrame, src: str) -> tuple[list[Problem], list, 
             bad(i, "purchase_dates", msg)
         elif not np.isnat(start) and d[0] <= start:
             bad(i, "purchase_dates", f"{d[0]} is not after the start date {start}")
-        elif any(b <= a for a, b in zip(d, d[1:])):
+        elif any(b <= a for a, b in pairwise(d)):
             bad(i, "purchase_dates", "the purchase dates must increase (each after the one before)")
         if np.isnat(start) or any(o[c].isna().iat[i] for c in ("offering_id", "lookback", "shares_basis")):
             ok[i] = False  # reported by the reader as a required or invalid cell
@@ -223,7 +224,9 @@ def contribute(tables: dict, sources: dict) -> Contribution:
     gi = np.repeat(np.arange(len(keep)), n_per)
     vest = np.concatenate([np.asarray(dates[i], "datetime64[D]") for i in op]) if len(op) else np.zeros(0, "M8[D]")
     tranches = pd.DataFrame({"grant": gi, "vest_date": vest, "quantity": np.repeat(whole, n_per)})
-    return Contribution(grants, tranches, _assumption_rows(o), p)
+    known = set(o["offering_id"].dropna())
+    named = {f"{k}/{h}" for k, h in zip(e["offering_id"], e["holder_id"]) if k in known and h is not None}
+    return Contribution(grants, tranches, _assumption_rows(o), p, withheld=named - set(grants["grant_id"]))
 
 
 def check(parts: LedgerParts) -> list[Problem]:

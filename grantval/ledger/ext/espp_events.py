@@ -32,8 +32,8 @@ def _withdraw(e, d, qty, idx, vest, remaining, gid):
         return None, ("quantity", "leave blank: a withdrawal ends the whole enrollment")
     open_ = idx[(vest[idx] > d) & (remaining[idx] > 0)]
     if not len(open_):
-        return None, ("event_date", f"{d} is on or after the last purchase date of {gid}: nothing is left to "
-                      "withdraw from")
+        return None, ("event_date", (f"{d} is on or after the last purchase date of {gid}: nothing is left to "
+                                     "withdraw from"))
     return [(t, e, d, "cancel", int(remaining[t])) for t in open_], None
 
 
