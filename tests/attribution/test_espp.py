@@ -306,3 +306,23 @@ def test_events_of_an_enrollment_in_a_bad_offering_are_not_reported_as_unknown_g
     found = problems_of(ledger(tmp_path / "l", [offering(discount="1.5")], [enrol()],
                                [event("O27/H1", "2027-03-01", "withdraw"), event("O27/H9", "2027-03-01", "withdraw")]))
     assert [(s, r, c) for s, r, c, m in found] == [("espp_offerings.csv", 2, "discount"), ("events.csv", 3, "grant_id")]
+
+
+def test_workbook_ledger_gives_the_same_cost_with_a_date_cell_for_a_single_purchase_date(tmp_path):
+    from openpyxl import load_workbook
+
+    from grantval.io.convert import csv_folder_to_workbook
+    from grantval.ledger.schema import TABLE_NAMES, TEXT_COLUMNS
+
+    folder = ledger(tmp_path / "l", [offering()], [enrol()])
+    book = tmp_path / "ledger.xlsx"
+    csv_folder_to_workbook(folder, book, TABLE_NAMES, TEXT_COLUMNS)
+    wb = load_workbook(book)
+    import datetime as dt
+
+    wb["espp_offerings"]["C2"].value = dt.datetime(2027, 7, 1)  # a date cell: the reader gives its ISO text
+    wb.save(book)
+    a = api.expense(folder, through="2027-12-31")
+    b = api.expense(book, through="2027-12-31")
+    assert np.array_equal(a.schedule.expense_cents, b.schedule.expense_cents)
+    assert total_cents(b, "O27/H1") > 0
