@@ -326,3 +326,23 @@ def test_workbook_ledger_gives_the_same_cost_with_a_date_cell_for_a_single_purch
     b = api.expense(book, through="2027-12-31")
     assert np.array_equal(a.schedule.expense_cents, b.schedule.expense_cents)
     assert total_cents(b, "O27/H1") > 0
+
+
+def test_partial_forfeiture_then_withdrawal_cancels_only_what_is_left(tmp_path):
+    # 30 shares of the last period forfeited (reversed), then a withdrawal cancels the other 170 open
+    # shares (accelerated, Deloitte Roadmap 8.5); the first period was purchased
+    dates = "2027-07-01;2028-01-01;2028-07-01"
+    folder = ledger(tmp_path / "l", [offering(purchase_dates=dates)], [enrol(withholding="5100")],
+                    [event("O27/H1", "2027-08-01", "forfeit", "30"), event("O27/H1", "2027-09-30", "withdraw")],
+                    policy={"valuation_unit": "tranche"})
+    run = api.expense(folder, through="2028-12-31", period="quarter")
+    v = [ql_espp(20, n, 0.05, 0.3, 0.01, 0.15, "fixed_shares") for n in (181, 365, 547)]
+    assert abs(total_cents(run, "O27/H1") - (100 * v[0] + 100 * v[1] + 70 * v[2]) * 100) <= 1
+    ch = run.ledger.changes
+    assert sorted(zip(ch["kind"], ch["quantity"])) == [("cancel", 70), ("cancel", 100), ("forfeit", 30)]
+
+
+def test_core_event_after_a_withdrawal_is_refused(tmp_path):
+    found = problems_of(ledger(tmp_path / "l", [offering(purchase_dates="2027-07-01;2028-01-01")], [enrol()],
+                               [event("O27/H1", "2027-03-01", "withdraw"), event("O27/H1", "2027-04-01", "forfeit")]))
+    assert [(s, r, c) for s, r, c, m in found if "after the withdrawal" in m] == [("events.csv", 3, "event_date")]

@@ -134,27 +134,28 @@ def _value_checks(o: pd.DataFrame, i: int, bad, ok: np.ndarray) -> None:
 
 
 def _enrollment_problems(e: pd.DataFrame, o: pd.DataFrame, o_ok: np.ndarray, src: str, osrc: str):
-    """Row checks of the enrollments; the offering row of each (-1 when unusable)."""
+    """Row checks of the enrollments; the offering row of each (-1 when unusable).  Vectorised."""
     p: list[Problem] = []
     index = {k: i for i, k in zip(range(len(o) - 1, -1, -1), o["offering_id"].to_numpy()[::-1])}
-    pos = np.full(len(e), -1, dtype=np.int64)
-    seen: dict = {}
-    for j in range(len(e)):
-        row, oid, hid = int(e["_row"].iat[j]), e["offering_id"].iat[j], e["holder_id"].iat[j]
-        w = float(e["withholding"].iat[j])
-        if oid is None or hid is None or np.isnan(w):
-            continue  # reported by the reader
-        if oid not in index:
-            p.append(Problem(src, row, "offering_id", f"{oid!r} is not an offering in {osrc}"))
-            continue
-        if w < 0:
-            p.append(Problem(src, row, "withholding", f"must be zero or more (currency); got {w:g}"))
-            continue
-        if (oid, hid) in seen:
-            p.append(Problem(src, row, "holder_id", f"{hid!r} is already enrolled in {oid!r} (row {seen[oid, hid]})"))
-            continue
-        seen[oid, hid] = row
-        pos[j] = index[oid] if o_ok[index[oid]] else -1
+    oid, hid = e["offering_id"].to_numpy(object), e["holder_id"].to_numpy(object)
+    w = e["withholding"].to_numpy(float)
+    rows = e["_row"].to_numpy()
+    filled = pd.notna(oid) & pd.notna(hid) & ~np.isnan(w)  # blanks are reported by the reader
+    opos = np.array([index.get(k, -1) for k in oid], dtype=np.int64)
+    for r, k in zip(rows[filled & (opos < 0)], oid[filled & (opos < 0)]):
+        p.append(Problem(src, int(r), "offering_id", f"{k!r} is not an offering in {osrc}"))
+    neg = filled & (opos >= 0) & (w < 0)
+    for r, x in zip(rows[neg], w[neg]):
+        p.append(Problem(src, int(r), "withholding", f"must be zero or more (currency); got {x:g}"))
+    good = filled & (opos >= 0) & ~neg
+    key = pd.Series(oid.astype(str)) + "\x00" + pd.Series(hid.astype(str))
+    dup = good & key.where(good).duplicated(keep="first").to_numpy()
+    first = dict(zip(key[good & ~dup], rows[good & ~dup]))
+    for r, k, o_, h in zip(rows[dup], key[dup], oid[dup], hid[dup]):
+        p.append(Problem(src, int(r), "holder_id", f"{h!r} is already enrolled in {o_!r} (row {first.get(k)})"))
+    ok = good & ~dup
+    pos = np.where(ok, opos, -1)
+    pos[ok] = np.where(o_ok[opos[ok]], opos[ok], -1)
     return p, pos
 
 
@@ -208,7 +209,8 @@ def contribute(tables: dict, sources: dict) -> Contribution:
     keep, op, n_per, whole, exact, disc, cap = (x[sel] for x in (keep, op, n_per, whole, exact, disc, cap))
     start = o["start_date"].to_numpy("datetime64[D]")[op]
     grants = pd.DataFrame({
-        "grant_id": [f"{o['offering_id'].iat[i]}/{e['holder_id'].iat[j]}" for i, j in zip(op, keep)],
+        "grant_id": (pd.Series(o["offering_id"].to_numpy(object)[op].astype(str)) + "/"
+                     + pd.Series(e["holder_id"].to_numpy(object)[keep].astype(str))).to_numpy(object),
         "holder_id": e["holder_id"].to_numpy(object)[keep],
         "group": np.where(e["group"].isna().to_numpy()[keep], "", e["group"].to_numpy(object)[keep]),
         "award_type": AWARD_TYPE, "grant_date": start, "quantity": (whole * n_per).astype(float),
@@ -225,7 +227,9 @@ def contribute(tables: dict, sources: dict) -> Contribution:
     vest = np.concatenate([np.asarray(dates[i], "datetime64[D]") for i in op]) if len(op) else np.zeros(0, "M8[D]")
     tranches = pd.DataFrame({"grant": gi, "vest_date": vest, "quantity": np.repeat(whole, n_per)})
     known = set(o["offering_id"].dropna())
-    named = {f"{k}/{h}" for k, h in zip(e["offering_id"], e["holder_id"]) if k in known and h is not None}
+    oid, hid = e["offering_id"].to_numpy(object), e["holder_id"].to_numpy(object)
+    m = pd.notna(hid) & np.isin(oid, list(known))
+    named = set(pd.Series(oid[m].astype(str)) + "/" + pd.Series(hid[m].astype(str)))
     return Contribution(grants, tranches, _assumption_rows(o), p, withheld=named - set(grants["grant_id"]))
 
 

@@ -68,8 +68,10 @@ def changes(parts, events: pd.DataFrame, grant_pos: np.ndarray, core: pd.DataFra
     gdate = g["grant_date"].to_numpy("datetime64[D]")
     dates = events["event_date"].to_numpy("datetime64[D]")
     qtys, prices = events["quantity"].to_numpy(float), events["share_price"].to_numpy(float)
-    c_t, c_d, c_q = (core["tranche_idx"].to_numpy(np.int64), core["date"].to_numpy("datetime64[D]"),
-                     core["quantity"].to_numpy(np.int64))
+    # what the core events left of each tranche (core events after a withdrawal are refused below)
+    remaining = tr["quantity"].to_numpy(np.int64) - np.bincount(
+        core["tranche_idx"].to_numpy(np.int64), weights=core["quantity"].to_numpy(np.int64),
+        minlength=len(tr)).astype(np.int64)
     withdrawn = _withdrawals(events, grant_pos, kinds, dates)
     out: list[tuple] = []
     p: list[Problem] = []
@@ -88,9 +90,6 @@ def changes(parts, events: pd.DataFrame, grant_pos: np.ndarray, core: pd.DataFra
         problem = _check_grant(g, award, gdate, gp, kinds[e], d, withdrawn, e)
         if problem is None and kinds[e] == "withdraw":
             idx = np.arange(t_start[gp], t_end[gp])
-            before = c_d <= d
-            remaining = tr["quantity"].to_numpy(np.int64) - np.bincount(c_t[before], weights=c_q[before],
-                                                                       minlength=len(tr)).astype(np.int64)
             rows, problem = _withdraw(e, d, qtys[e], idx, vest, remaining, g["grant_id"].iat[gp])
             out += rows or []
         elif problem is None:
