@@ -8,6 +8,7 @@ module gathers them under one name.
 
 from grantval.runs.assumptions import assumptions, write_assumptions
 from grantval.runs.check import CheckReport, check
+from grantval.runs.close import close, export_register, register_closes, reopen, verify_register  # noqa: F401
 from grantval.runs.common import reconcile
 from grantval.runs.disclose import DisclosureRun, disclose, write_disclosure
 from grantval.runs.expense import ExpenseOutputs, ExpenseRun, expense, write_expense

@@ -43,9 +43,10 @@ class UsageError(GrantvalError):
 
     def worded(self, names: dict[str, str]) -> str:
         """The message with each named argument written as ``names`` gives it (default: its own name)."""
-        if not self.params:
-            return self.template
-        return self.template.format(**{k: names.get(k, k) for k in self.params})
+        text = self.template
+        for k in self.params:  # plain replacement: the message may quote user text holding braces
+            text = text.replace("{" + k + "}", names.get(k, k))
+        return text
 
 
 @dataclass(frozen=True)
@@ -108,3 +109,14 @@ class LedgerError(GrantvalError):
 
 class OutputError(GrantvalError):
     """An output file cannot be written where it was asked for."""
+
+
+class OutputPathError(OutputError, UsageError):
+    """An output location is unusable (checked before any computing): exit code 2.
+
+    Raised by :func:`grantval.io.outputs.plan_outputs` for a missing folder, a folder
+    where a file is expected (or the reverse), an output that is an input or a ledger
+    folder, an output named twice, or a folder without write permission.
+    """
+
+    exit_code = 2

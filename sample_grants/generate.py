@@ -108,6 +108,28 @@ def main() -> None:
     })
     tranches = [["CV-HIRE-02", "2025-11-15", "3000"], ["CV-HIRE-02", "2026-05-15", "2000"],
                 ["CV-HIRE-02", "2027-05-15", "1000"]]
+    # the long-term incentive plan: performance share units on three-year revenue growth, 0-200% of target
+    for k, (gdate_s, cset, qty) in enumerate((("2025-02-18", "ltip-2025", 12000), ("2025-02-18", "ltip-2025", 8000),
+                                               ("2026-02-17", "ltip-2026", 15000), ("2026-02-17", "ltip-2026", 6000))):
+        grants.append({
+            "grant_id": f"CV-PSU-{k + 1:02d}", "holder_id": f"E000{k + 3}", "group": ["finance", "engineering"][k % 2],
+            "award_type": "psu", "grant_date": gdate_s, "quantity": qty, "exercise_price": "", "expiration_date": "",
+            "vest_start_date": "", "vest_months": 36, "vest_every_months": 36, "cliff_months": 0, "assumption_set": "",
+            "condition_set": cset, "max_payout": "2",
+        })
+    # a long-serving employee who becomes retirement eligible part-way through the schedule
+    grants.append({
+        "grant_id": "CV-RET-01", "holder_id": "E0009", "group": "operations", "award_type": "rsu",
+        "grant_date": "2024-05-15", "quantity": 4000, "exercise_price": "", "expiration_date": "",
+        "vest_start_date": "", "vest_months": 48, "vest_every_months": 3, "cliff_months": 12, "assumption_set": "",
+        "retirement_eligible_date": "2026-03-31",
+    })
+    for g in grants:
+        for col in ("condition_set", "max_payout", "retirement_eligible_date"):
+            g.setdefault(col, "")
+    performance = [["ltip-2025", "2025-02-18", "1", ""], ["ltip-2025", "2025-12-31", "1.2", ""],
+                   ["ltip-2025", "2026-09-30", "1.35", ""], ["ltip-2026", "2026-02-17", "1", ""],
+                   ["ltip-2026", "2026-09-30", "0.8", ""]]
 
     assumptions = []
     for di, gdate_s in enumerate(GRANT_DATES):
@@ -145,6 +167,7 @@ def main() -> None:
           sorted(events, key=lambda e: (e[1], e[0])))
     write("estimates", ["applies_to", "effective_date", "annual_forfeiture_rate", "expected_vest_fraction"], estimates)
     write("policy", ["key", "value"], policy)
+    write("performance", ["condition_set", "assessed_on", "payout", "expected_vest_date"], performance)
     from grantval.ledger.schema import TABLE_NAMES, TEXT_COLUMNS
     from grantval.io.convert import csv_folder_to_workbook
 

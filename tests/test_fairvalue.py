@@ -19,7 +19,7 @@ def test_sample_ledger_against_direct_calls():
     t = fv.table.set_index("grant_id")
     g = led.grants.set_index("grant_id")
     a = led.assumptions
-    checked = {"bsm": 0, "lattice": 0, "rsu": 0, "supplied": 0}
+    checked = {"bsm": 0, "lattice": 0, "rsu": 0, "psu": 0, "supplied": 0}
     for i, gid in enumerate(led.grants["grant_id"]):
         row = a.iloc[led.grant_assumption[i]]
         tr = led.tranches[led.tranches["grant_idx"] == i]
@@ -30,7 +30,7 @@ def test_sample_ledger_against_direct_calls():
         q = row["dividend_yield"] if not np.isnan(row["dividend_yield"]) else 0.0
         if model == "supplied":
             expected = row["fair_value"]
-        elif model == "rsu":
+        elif model in ("rsu", "psu"):  # a performance unit is valued as a unit at target (payout in expense)
             expected = np.average(rsu_value(row["share_price"], tv, q), weights=w)
         else:
             contract = year_fraction(g.at[gid, "grant_date"], g.at[gid, "expiration_date"])

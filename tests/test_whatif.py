@@ -114,3 +114,18 @@ def test_cli_writes_workbook(tmp_path):
     assert (tmp_path / "w.xlsx").exists() and (tmp_path / "sensitivity.csv").exists()
     r = CliRunner().invoke(app, ["whatif", str(SAMPLE), "--vary", "vol=1", "-o", str(tmp_path / "x.xlsx")])
     assert r.exit_code == 2 and not (tmp_path / "x.xlsx").exists()
+
+
+def test_payout_shift_moves_only_performance_unit_expense(tmp_path):
+    # common practice: a what-if on the payout in force scales the performance units' cost only
+    from tests.attribution.test_performance import probable_then_improbable
+
+    run = api.whatif(probable_then_improbable(tmp_path / "l"), vary=["payout=+0.5"], through="2028-12-31")
+    base, up = (r.schedule.cumulative_cents[0, -1] for r in run.results)
+    # payout 1.5 in force at 2028-12-31 becomes 2.0: cost scales by 2.0 / 1.5
+    assert up == pytest.approx(base * 2.0 / 1.5, abs=1)
+
+
+def test_payout_shift_without_performance_units_is_refused():
+    with pytest.raises(UsageError, match="payout changes nothing"):
+        api.whatif(SAMPLE, vary=["payout=+0.5"], grants_from="2026-06-01")

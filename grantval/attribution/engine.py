@@ -19,7 +19,7 @@ Rules (see docs/expense-rules.md for the standards' paragraphs):
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
@@ -111,6 +111,7 @@ class _Quantities:
     granted_g: np.ndarray
     years_left_t: np.ndarray
     years_left_g: np.ndarray
+    as_of: int | None = None  # forecasts: the day whose expected quantities and payouts are kept
 
 
 def _quantities(inp: ExpenseInputs, dn: int, forfeitures: str, cut: int, est_day: int | None = None) -> _Quantities:
@@ -174,7 +175,7 @@ def _apply_hooks(inp: ExpenseInputs, Q: _Quantities, dn: int, attribution: str, 
 
 
 def measure(inp: ExpenseInputs, d, *, attribution: str, forfeitures: str, events_through=None,
-            estimates_as_of=None) -> Measurement:
+            estimates_as_of=None, frozen_at=None) -> Measurement:
     """Cumulative cost of every grant through ``d``.
 
     Parameters
@@ -189,11 +190,19 @@ def measure(inp: ExpenseInputs, d, *, attribution: str, forfeitures: str, events
     estimates_as_of : datetime64[D], optional
         Use the forfeiture estimates in force on this date instead of those in force
         on ``d`` (the bridge separates changes of estimate this way).
+    frozen_at : datetime64[D], optional
+        Forecasts: keep the quantities expected to vest (and the performance payouts) as
+        they stand on this date, with no true-up at later vesting dates, so that a
+        forecast to the end of vesting totals the unrecognised cost on this date
+        (ASC 718-10-35-3, IFRS 2.20: the estimates in force).
     """
     dn = int(np.datetime64(d, "D").astype(np.int64))
     cut = dn if events_through is None else min(dn, int(np.datetime64(events_through, "D").astype(np.int64)))
     est_day = None if estimates_as_of is None else int(np.datetime64(estimates_as_of, "D").astype(np.int64))
     Q = _quantities(inp, dn, forfeitures, cut, est_day)
+    if frozen_at is not None:
+        fd = int(np.datetime64(frozen_at, "D").astype(np.int64))
+        Q = replace(Q, n_exp=_quantities(inp, fd, forfeitures, min(cut, fd), est_day).n_exp, as_of=fd)
     pre = inp.prepared()
     lg, lt = pre.l_grant, pre.l_tranche
     n_g = inp.n_grants

@@ -91,6 +91,8 @@ class CostHook:
 
     grants: np.ndarray
     cost: Callable
+    #: the feature's own data the cost depends on (a scenario may change it, e.g. the payouts in force)
+    state: object = None
 
 
 def _last_per_grant(t_end: np.ndarray, t_grant: np.ndarray, n_grants: int) -> np.ndarray:
@@ -187,4 +189,8 @@ def build_inputs(ledger: Ledger, fair_values: "FairValues") -> ExpenseInputs:
         t_service_end=service_end(ledger, t_vest),
     )
     inp.cost_hooks = [h for h in (b(ledger, fair_values, inp) for b in hook_builders()) if h is not None]
+    # cash-settled awards (settlement "cash"): no grant-date layer value; their cost is the liability hook's
+    from grantval.attribution.liability import install_liability_hook
+
+    install_liability_hook(inp, ledger)
     return inp

@@ -72,16 +72,17 @@ class Assessments:
         return np.where(ok, self.payout[pos], 0.0), np.where(ok, self.vest[pos], _NONE)
 
 
-def _vesting(inp, A: Assessments, psu_t: np.ndarray, dn: int):
+def _vesting(inp, A: Assessments, psu_t: np.ndarray, dn: int, Q=None):
     """Per tranche: vesting day in force at ``dn``, last day of service, whether vested, payout."""
     pre = inp.prepared()
     g_t = inp.t_grant
-    pay_now, vest_now = A.at(g_t, np.full(len(g_t), dn))
+    as_of = dn if getattr(Q, "as_of", None) is None else min(dn, Q.as_of)
+    pay_now, vest_now = A.at(g_t, np.full(len(g_t), as_of))
     vest_day = np.where(psu_t & (vest_now != _NONE), vest_now, pre.t_vest)
     retire_cap = np.where(pre.t_end < pre.t_vest, pre.t_end, _NONE)
     end = np.minimum(vest_day, retire_cap)
     vested = (vest_day <= dn) & (pre.t_gdate <= dn)
-    pay_final, _ = A.at(g_t, np.minimum(vest_day, dn))
+    pay_final, _ = A.at(g_t, np.minimum(vest_day, as_of))
     return vest_day, end, vested, np.where(vested, pay_final, pay_now)
 
 
@@ -91,7 +92,7 @@ def _cost(inp, A: Assessments, psu: np.ndarray, Q, dn: int, attribution: str) ->
     pre = inp.prepared()
     n_g, gi = inp.n_grants, inp.t_grant
     psu_t = psu[gi]
-    _, end, vested, pay = _vesting(inp, A, psu_t, dn)
+    _, end, vested, pay = _vesting(inp, A, psu_t, dn, Q)
     units = np.where(vested, Q.outstanding, Q.n_exp)
     shares = np.where(vested, np.floor(units * pay + 1e-9), units * pay)
     shares = np.where(psu_t, shares, 0.0)
@@ -130,4 +131,4 @@ def build_hook(ledger, fair_values, inp) -> CostHook | None:
     def cost(inp_, Q, dn, attribution):
         return _cost(inp_, A, psu, Q, dn, attribution)
 
-    return CostHook(grants=psu, cost=cost)
+    return CostHook(grants=psu, cost=cost, state=A)

@@ -19,7 +19,7 @@ MAX_AMOUNT = 1e15
 
 
 def to_cents(amount: np.ndarray) -> np.ndarray:
-    """Round non-negative currency amounts to whole cents (half up) as int64.
+    """Round currency amounts to whole cents, half up on the decimal amount, as int64.
 
     Raises
     ------
@@ -31,7 +31,12 @@ def to_cents(amount: np.ndarray) -> np.ndarray:
     if a.size and not (np.all(np.isfinite(a)) and np.max(np.abs(a)) <= MAX_AMOUNT):
         raise GrantvalError(f"an amount of {np.max(np.abs(a)):g} is beyond what grantval's cents arithmetic "
                             f"holds ({MAX_AMOUNT:g}); check the quantities and fair values")
-    return np.floor(a * 100.0 + 0.5).astype(np.int64)
+    scaled = a * 100.0
+    # half up on the decimal amount: a product such as 2.01 x 365 / 730 is 1.005 exactly in decimals
+    # but 100.49999999999999 cents in binary; amounts within a few units in the last place of a
+    # half cent are ties and round up
+    tie = np.abs(scaled - (np.floor(scaled) + 0.5)) <= 64.0 * np.finfo(float).eps * np.maximum(np.abs(scaled), 1.0)
+    return np.where(tie, np.floor(scaled) + 1.0, np.floor(scaled + 0.5)).astype(np.int64)
 
 
 @dataclass
@@ -122,7 +127,7 @@ def compute_schedule(inp: ExpenseInputs, policy: Policy, through, start=None, fo
         fends = _ends(through + DAY, fthrough, policy)
         fcum = np.empty((inp.n_grants, len(fends)), dtype=np.int64)
         for k, d in enumerate(fends):
-            fcum[:, k] = to_cents(measure(inp, d, events_through=through, **kw).grant_cost)
+            fcum[:, k] = to_cents(measure(inp, d, events_through=through, frozen_at=through, **kw).grant_cost)
         fcents = fcum - np.column_stack([cum[:, -1], fcum[:, :-1]])
     else:
         fends = np.zeros(0, dtype="datetime64[D]")

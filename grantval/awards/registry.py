@@ -18,6 +18,8 @@ MODULES = {
     "option": "grantval.awards.option",
     "rsu": "grantval.awards.rsu",
     "psu": "grantval.awards.psu",
+    "cash_sar": "grantval.awards.cash_sar",
+    "cash_unit": "grantval.awards.cash_unit",
     "espp": "grantval.awards.espp",  # ESPP enrollments (synthesized from espp_enrollments)
 }
 

@@ -13,6 +13,7 @@ from typing import Annotated, Optional
 import typer
 
 from grantval.cli import expense_commands, ledger_commands, market_commands, price, whatif_commands  # noqa: F401
+from grantval.cli import close_commands  # noqa: F401
 from grantval.cli.app import QUIET, app, message, version_callback
 from grantval.errors import GrantvalError
 

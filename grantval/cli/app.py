@@ -19,6 +19,8 @@ OPTION_NAMES = {
     "fiscal_year_end_month": "--fiscal-year-end-month", "dates": "--dates", "ledger": "--ledger",
     "frequency": "--frequency", "peer_weight": "--peer-weight", "expected_term": "--expected-term",
     "contractual_term": "--contractual-term", "ticker": "--ticker", "lookback": "--lookback",
+    "register": "--register",
+    "reason": "--reason",
 }
 
 

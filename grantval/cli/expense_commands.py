@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import pathlib
 from typing import Annotated, Optional
 
 import typer
@@ -31,6 +32,9 @@ def expense_cmd(
     no_timestamp: NoTimestamp = False,
     no_workbook: Annotated[bool, typer.Option("--no-workbook",
                                               help="Write only the CSV tables (with --csv-dir).")] = False,
+    register: Annotated[Optional[pathlib.Path], typer.Option(
+        "--register", metavar="FILE", help="Close register: show what was booked per closed period beside the "
+                                           "recomputed schedule, and warn when a closed period would change.")] = None,
 ) -> None:
     """Compute stock-compensation expense by period and write the workbook and CSV tables."""
     from grantval import api
@@ -46,6 +50,10 @@ def expense_cmd(
     say(f"{run.ledger.n_grants} grants, {len(run.schedule.period_ends)} periods from {run.start} "
         f"through {run.through} ({run.policy.standard}, {run.policy.attribution}, {run.policy.forfeitures}); "
         f"expense {total:,.2f}")
+    if register is not None:
+        from grantval.cli.close_commands import show_comparison
+
+        show_comparison(run, register, csv_dir)
     report_outputs(result)
 
 

@@ -16,7 +16,7 @@ def whatif_cmd(
     ledger: Ledger,
     vary: Annotated[list[str], typer.Option(
         "--vary", metavar="NAME=SPEC", help="NAME is volatility, expected_term_years, risk_free_rate, dividend_yield, "
-        "share_price or forfeiture_rate; SPEC is a comma-separated list of levels (0.45), shifts (+0.05) or "
+        "share_price, forfeiture_rate or payout (performance units); SPEC is a comma-separated list of levels (0.45), shifts (+0.05) or "
         "relative shifts (+10%). Repeat for a grid.")],
     grants_from: Annotated[Optional[str], typer.Option(
         "--grants-from", metavar="DATE", help="Re-value only grants dated on or after this.")] = None,

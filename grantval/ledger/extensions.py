@@ -23,6 +23,8 @@ if TYPE_CHECKING:  # pragma: no cover
 #: feature modules, each defining ``EXTENSION``
 MODULES: tuple[str, ...] = (
     "grantval.ledger.ext.performance",
+    "grantval.ledger.ext.cash",
+    "grantval.ledger.ext.accounts",
     "grantval.ledger.ext.espp",
 )
 

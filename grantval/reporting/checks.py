@@ -129,9 +129,15 @@ def _cost_checks(run, tranches, unrec) -> list[CheckRow]:
     uc = {c: col_letter(i + 1) for i, c in enumerate(unrec.columns)}
     q_name = "quantity_expected_to_vest" if "quantity_expected_to_vest" in cols else "quantity_expensed"
     q_col, fv_col, c_col = cols[q_name], cols["fair_value_per_unit"], cols["cancelled_unvested"]
+    # cash-settled awards carry no grant-date value: their cost is the liability's (checked on its own)
+    from grantval.awards.registry import kinds
+
+    award = run.ledger.grants["award_type"].to_numpy()
+    equity = ~np.isin(award, [k.name for k in kinds() if k.settlement == "cash"])
     expected = float(np.sum(tranches[q_name] * tranches["fair_value_per_unit"]) +
                      np.sum(tranches["cancelled_unvested"] * tranches["fair_value_per_unit"]))
-    rec_plus = float(unrec["recognised_to_date"].sum() + unrec["unrecognised_cost"].sum())
+    rec_plus = float(unrec["recognised_to_date"].to_numpy()[equity].sum()
+                     + unrec["unrecognised_cost"].to_numpy()[equity].sum())
     per_grant = np.abs(sched.cumulative_cents[:, -1] + np.round(unrec["unrecognised_cost"].to_numpy() * 100)
                        - np.floor(sched.at_through.expected_total * 100 + 0.5))
     off = int(np.sum(per_grant > 1))
@@ -156,7 +162,9 @@ def disclosure_ties(disc) -> list[CheckRow]:
         CheckRow("Option roll-forward: start + granted - exercised - forfeited - expired = end", o_a, o_b, 0,
                  o_a == o_b),
         CheckRow("RSU roll-forward: start + granted - vested - forfeited = end", r_a, r_b, 0, r_a == r_b),
-    ]
+    ] + ([CheckRow("Performance-unit roll-forward: start + granted + adjustments - vested - forfeited = end",
+                   disc.psu_tie[0], disc.psu_tie[1], 0, disc.psu_tie[0] == disc.psu_tie[1])]
+         if disc.performance_units is not None else [])
 
 
 def bsm_check(fvt, rc: str) -> CheckRow:

@@ -33,6 +33,9 @@ class Disclosure:
     start: np.datetime64
     through: np.datetime64
     share_price: float | None
+    #: performance-unit activity at target, with the change from performance adjustments (empty when none)
+    performance_units: pd.DataFrame | None = None
+    psu_tie: tuple[int, int] = (0, 0)
 
 
 class _Tranches:
@@ -43,6 +46,7 @@ class _Tranches:
         gi = tr["grant_idx"].to_numpy()
         self.gi = gi
         self.option = in_group(g["award_type"].to_numpy(), "options")[gi]
+        self.performance = in_group(g["award_type"].to_numpy(), "performance_units")[gi]
         self.qty = tr["quantity"].to_numpy(np.int64)
         self.vest = tr["vest_date"].to_numpy("datetime64[D]")
         self.grant_date = g["grant_date"].to_numpy("datetime64[D]")[gi]
@@ -129,7 +133,7 @@ def _option_activity(T: _Tranches, m, start, through, share_price):
 
 def _unit_activity(T: _Tranches, granted, forfeited, start, through):
     """Nonvested-unit roll-forward, its tie, and the units vested in the window per tranche."""
-    units = ~T.option
+    units = ~T.option & ~T.performance
 
     def nonvested(d):
         removed = T.moved(("forfeit", "cancel"), np.datetime64("1900-01-01"), d)
@@ -149,6 +153,42 @@ def _unit_activity(T: _Tranches, granted, forfeited, start, through):
     return frame, tie, vested_q
 
 
+def _performance_activity(ledger: Ledger, T: _Tranches, granted, forfeited, vested_q, start, through):
+    """Performance-unit roll-forward: target units, and the shares issued at the final payout.
+
+    Lines: nonvested at start (target), granted (target), change from performance adjustments
+    (shares issued at vesting less the target units that vested), vested (shares issued),
+    forfeited (target), nonvested at end (target); weighted-average grant-date fair value per
+    target unit.  The adjustment line makes the roll-forward tie.
+    """
+    psu = T.performance
+    if not psu.any():
+        return None, (0, 0)
+    from grantval.attribution.performance import Assessments
+
+    A = Assessments(ledger, in_group(ledger.grants["award_type"].to_numpy(), "performance_units"))
+    vest_day = T.vest.astype(np.int64)
+    payout, _ = A.at(T.gi, vest_day)
+    issued = np.where(psu, np.floor(vested_q * payout + 1e-9), 0).astype(np.int64)
+    adjust = issued - np.where(psu, vested_q, 0)
+
+    def nonvested(d):
+        removed = T.moved(("forfeit", "cancel"), np.datetime64("1900-01-01"), d)
+        return np.where((T.grant_date <= d) & (T.vest > d), T.qty - removed, 0)
+
+    nv0, nv1 = nonvested(start - DAY), nonvested(through)
+    lines = [("Nonvested at start (target units)", nv0), ("Granted (target units)", granted),
+             ("Change from performance adjustments", adjust), ("Vested (shares issued at the final payout)", issued),
+             ("Forfeited (target units)", forfeited), ("Nonvested at end (target units)", nv1)]
+    frame = pd.DataFrame({
+        "line": [x[0] for x in lines],
+        "number": [float(np.sum(x[1][psu])) for x in lines],
+        "weighted_average_grant_date_fair_value": [_wavg(T.fv[psu], np.abs(x[1][psu])) for x in lines],
+    })
+    tie = (int(np.sum((nv0 + granted + adjust - issued - forfeited)[psu])), int(np.sum(nv1[psu])))
+    return frame, tie
+
+
 def _granted_figures(ledger: Ledger, fv: FairValues, start, through) -> list[tuple[str, float]]:
     """Number and weighted-average values of the awards granted in the window, and BSM assumption ranges."""
     g = ledger.grants
@@ -157,7 +197,10 @@ def _granted_figures(ledger: Ledger, fv: FairValues, start, through) -> list[tup
     gd = g["grant_date"].to_numpy("datetime64[D]")
     g_in = (gd >= start) & (gd <= through)
     items: list[tuple[str, float]] = []
-    for label, mask in (("options", in_group(award, "options") & g_in), ("RSUs", in_group(award, "units") & g_in)):
+    groups = [("options", in_group(award, "options") & g_in), ("RSUs", in_group(award, "units") & g_in)]
+    if in_group(award, "performance_units").any():
+        groups.append(("performance units (target)", in_group(award, "performance_units") & g_in))
+    for label, mask in groups:
         items.append((f"{label} granted: number", float(gq[mask].sum())))
         items.append((f"{label} granted: weighted-average grant-date fair value",
                       _wavg(fv.grant_value[mask], gq[mask])))
@@ -181,19 +224,38 @@ def _window_figures(ledger: Ledger, T: _Tranches, inp: ExpenseInputs, m, vested_
     ev_price = ev["share_price"].to_numpy(float)[T.c_event[ex]] if len(ev) else np.zeros(0)
     gain = (ev_price - T.strike[T.c_t[ex]]) * T.c_qty[ex]
     vest_value = vested_q * T.fv
-    unrec = m.unrecognised
+    from grantval.attribution.periods import to_cents
+
+    # the same cents as the expense run's unrecognised table: rounded expected total less rounded cost
+    unrec_cents = np.maximum(to_cents(m.expected_total) - to_cents(m.grant_cost), 0)
+    unrec = unrec_cents / 100.0
     granted_g = inp.grant_date <= through
-    total_unrec = float(np.sum(unrec[granted_g]))
+    total_unrec = float(np.sum(unrec_cents[granted_g])) / 100.0
     return [
         ("Total intrinsic value of options exercised", float(np.nansum(np.maximum(gain, 0.0)))),
         ("Options exercised without an event share price (not in the intrinsic value)",
          float(np.sum(T.c_qty[ex][np.isnan(ev_price)]))),
         ("Total grant-date fair value of options vested", float(np.sum(vest_value[T.option]))),
-        ("Total grant-date fair value of RSUs vested", float(np.sum(vest_value[~T.option]))),
+        ("Total grant-date fair value of RSUs vested", float(np.sum(vest_value[~T.option & ~T.performance]))),
         ("Unrecognised cost at end", total_unrec),
         ("Weighted-average remaining recognition period (years)",
          _wavg(m.remaining_years[granted_g], unrec[granted_g]) if total_unrec > 0 else 0.0),
     ]
+
+
+def _rounded(item: str, value: float) -> float:
+    """One figure, one value: counts whole, money to cents, per-unit values to 4 places, rates to 6."""
+    if np.isnan(value):
+        return value
+    if "number" in item or item.startswith("Options exercised without"):
+        return float(np.round(value, 0))
+    if "weighted-average grant-date fair value" in item:
+        return float(np.round(value, 4))
+    if any(w in item for w in ("intrinsic value", "fair value of", "Unrecognised cost")):
+        return float(np.round(value, 2))
+    if "years" in item:
+        return float(np.round(value, 4))
+    return float(np.round(value, 6))
 
 
 def compute_disclosure(ledger: Ledger, fv: FairValues, inp: ExpenseInputs, policy: Policy, start, through,
@@ -205,7 +267,18 @@ def compute_disclosure(ledger: Ledger, fv: FairValues, inp: ExpenseInputs, polic
     m = measure(inp, through, attribution=policy.attribution, forfeitures=policy.forfeitures)
     options, option_tie, granted, forfeited = _option_activity(T, m, start, through, share_price)
     rsus, rsu_tie, vested_q = _unit_activity(T, granted, forfeited, start, through)
+    perf, psu_tie = _performance_activity(ledger, T, granted, forfeited, np.where(
+        (T.vest >= start) & (T.vest <= through) & (T.grant_date <= through), T.qty - T.removed_before_vest(), 0),
+        start, through)
     items = _granted_figures(ledger, fv, start, through) + _window_figures(ledger, T, inp, m, vested_q, start,
                                                                              through)
-    grants = pd.DataFrame({"item": [i for i, _ in items], "value": [v for _, v in items]})
-    return Disclosure(options, rsus, grants, option_tie, rsu_tie, start, through, share_price)
+    grants = pd.DataFrame({"item": [i for i, _ in items], "value": [_rounded(i, v) for i, v in items]})
+    options["number"] = options["number"].round(0)
+    for col, places in (("weighted_average_exercise_price", 4), ("weighted_average_remaining_term_years", 4),
+                        ("aggregate_intrinsic_value", 2)):
+        options[col] = options[col].round(places)
+    for frame in (rsus, perf):
+        if frame is not None:
+            frame["number"] = frame["number"].round(0)
+            frame["weighted_average_grant_date_fair_value"] = frame["weighted_average_grant_date_fair_value"].round(4)
+    return Disclosure(options, rsus, grants, option_tie, rsu_tie, start, through, share_price, perf, psu_tie)

@@ -53,10 +53,12 @@ EXPENSE_RULES = {
         "Cancellation of unvested awards without a replacement: the unrecognised cost is recognised at the "
         "cancel date (ASC 718-20-35-9; IFRS 2.28(a)). Exercises and expirations of vested awards change no cost."),
     "rounding": (
-        "Each grant's cumulative cost is rounded to cents at every period end and period expense is the "
-        "difference, so each grant's periods sum exactly to its rounded total."),
+        "Each grant's cumulative cost is rounded to cents (half up on the decimal amount) at every period end "
+        "and period expense is the difference, so each grant's periods sum exactly to its rounded total."),
     "forecast": (
-        "The forecast assumes no events after the through date; forfeiture estimates as in force at each date."),
+        "The forecast assumes no events after the through date and keeps the estimates in force at the through "
+        "date (units expected to vest, performance payouts; ASC 718-10-35-3, IFRS 2.20), with no true-up at "
+        "vesting: a forecast to the end of vesting totals the unrecognised cost at the through date to the cent."),
 }
 
 

@@ -70,7 +70,8 @@ def write_disclosure(run: DisclosureRun, xlsx: pathlib.Path | None, csv_dir: pat
     from grantval.reporting.run_sheet import RunInfo, notes_sheet, run_sheet
 
     d = run.disclosure
-    paths = csv_paths(csv_dir, CSV_NAMES)
+    paths = csv_paths(csv_dir, CSV_NAMES + (["performance_unit_activity.csv"] if d.performance_units is not None
+                                            else []))
     outputs = paths + ([pathlib.Path(xlsx)] if xlsx is not None else [])
     refuse_overwriting_inputs(outputs, ledger_inputs(run.ledger))
     checks = _checks(d)
@@ -78,6 +79,8 @@ def write_disclosure(run: DisclosureRun, xlsx: pathlib.Path | None, csv_dir: pat
         pathlib.Path(csv_dir).mkdir(parents=True, exist_ok=True)
         for path, frame in zip(paths, (d.options, d.rsus, d.grants)):
             write_csv(path, frame)
+        if d.performance_units is not None:
+            write_csv(paths[3], d.performance_units)
     if xlsx is not None:
         info = RunInfo("grantval disclose: stock-based compensation disclosure tables", command or "(Python API)",
                        run.ledger.location, run.ledger.files,

@@ -75,13 +75,17 @@ def expense(location, *, through, start=None, forecast_through=None, period=None
         fv = compute_fair_values(ledger, policy)
     with stage("schedule"):
         inp = build_inputs(ledger, fv)
+        if forecast_d is not None:
+            from grantval.attribution.liability import hold_values_after
+
+            hold_values_after(inp, through_d)  # liabilities: the through date's fair values after it
         sched = compute_schedule(inp, policy, through_d, start_d, forecast_d)
     reconcile(ledger, fv, sched)
     return ExpenseRun(ledger, policy, fv, inp, sched, str(sched.period_ends[-1]), str(sched.window_start),
                       None if forecast_d is None else str(forecast_d))
 
 
-def _write_csvs(run: ExpenseRun, paths, by_group, group_sums, tranches, unrec) -> None:
+def _write_csvs(run: ExpenseRun, paths, by_group, group_sums, tranches, unrec, liabilities=None) -> None:
     inp, sched = run.inputs, run.schedule
     pathlib.Path(paths[0]).parent.mkdir(parents=True, exist_ok=True)
     write_csv(paths[0], T.long_expense(inp, sched), money=("expense", "cumulative_expense"))
@@ -90,6 +94,8 @@ def _write_csvs(run: ExpenseRun, paths, by_group, group_sums, tranches, unrec) -
     write_csv(paths[2], tranches)
     write_csv(paths[3], T.long_forecast(inp, sched), money=("expense",))
     write_csv(paths[4], unrec, money=("recognised_to_date", "unrecognised_cost"))
+    if liabilities is not None:
+        write_csv(paths[5], liabilities, money=("liability", "cash_paid"))
 
 
 def _write_book(run: ExpenseRun, xlsx, tables: dict, disc, checks, command, timestamp, share_price) -> None:
@@ -108,6 +114,9 @@ def _write_book(run: ExpenseRun, xlsx, tables: dict, disc, checks, command, time
                                          tables["tranches"], tables["unrec"], tables["unrec_total"],
                                          tables["unrec_wa"], tables["forecast"],
                                          disc if share_price is not None else None, checks, expense_notes(run.policy))
+    if tables.get("liability_sheets"):
+        at = next(i for i, sh in enumerate(sheets) if sh.name == "checks")
+        sheets[at:at] = tables["liability_sheets"]
     write_workbook(pathlib.Path(xlsx), sheets, fixed_time=info.workbook_time())
 
 
@@ -139,8 +148,11 @@ def write_expense(run: ExpenseRun, xlsx: pathlib.Path | None, csv_dir: pathlib.P
     from grantval.reporting.disclosure import compute_disclosure
     from grantval.reporting.fair_value_sheet import recomputed_column
 
+    from grantval.reporting import liability_tables as LT
+
     inp, sched = run.inputs, run.schedule
-    paths = csv_paths(csv_dir, CSV_NAMES)
+    lf = LT.liability_figures(run)
+    paths = csv_paths(csv_dir, CSV_NAMES + (["liabilities.csv"] if lf is not None else []))
     outputs = paths + ([pathlib.Path(xlsx)] if xlsx is not None else [])
     refuse_overwriting_inputs(outputs, ledger_inputs(run.ledger))
     with stage("tables"):
@@ -156,12 +168,15 @@ def write_expense(run: ExpenseRun, xlsx: pathlib.Path | None, csv_dir: pathlib.P
             engine_total_cents=C.engine_total_cents(inp, run.policy, run.start, run.through),
             table_rows=len(by_grant) if by_grant is not None else cells.shape[0])
         checks = C.expense_checks(run, figures, tranches, unrec, disc, recomputed_column(run.fair_values.table))
+        checks += LT.liability_checks(run, lf) if lf is not None else []
     with stage("write csv"):
         if paths:
-            _write_csvs(run, paths, by_group, group_sums, tranches, unrec)
+            _write_csvs(run, paths, by_group, group_sums, tranches, unrec,
+                        LT.liability_table(run, lf) if lf is not None else None)
     with stage("write workbook"):
         if xlsx is not None:
             tables = dict(by_grant=by_grant, by_group=by_group, tranches=tranches, unrec=unrec,
-                          unrec_total=unrec_total, unrec_wa=unrec_wa, forecast=forecast)
+                          unrec_total=unrec_total, unrec_wa=unrec_wa, forecast=forecast,
+                          liability_sheets=LT.liability_sheets(run, lf) if lf is not None else [])
             _write_book(run, xlsx, tables, disc, checks, command, timestamp, share_price)
     return ExpenseOutputs(outputs, checks)

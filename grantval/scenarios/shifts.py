@@ -98,3 +98,25 @@ def forfeiture_adjuster(fn: Callable, mask: np.ndarray) -> Callable:
         rate[m] = fn(np.nan_to_num(rate[m], nan=0.0))
         return rate, frac
     return adjust
+
+
+def adjust_payouts(inp, fn: Callable, mask: np.ndarray, label: str) -> None:
+    """Apply a payout shift to every assessment of the performance units in ``mask`` (in place).
+
+    Raises
+    ------
+    UsageError
+        When no performance unit is in ``mask``, or a payout becomes negative.
+    """
+    from grantval.attribution.performance import Assessments
+
+    hooks = [h for h in inp.cost_hooks if isinstance(h.state, Assessments)]
+    if not hooks or not (hooks[0].grants & mask).any():
+        raise UsageError(f"scenario {label}: payout changes nothing: no performance unit (psu) grant is re-valued")
+    A = hooks[0].state
+    moved = mask[A.grant]
+    new = A.payout.copy()
+    new[moved] = fn(A.payout[moved])
+    if np.any(new < 0):
+        raise UsageError(f"scenario {label}: a payout becomes {new[new < 0][0]:g}; it must be zero or more")
+    A.payout = new

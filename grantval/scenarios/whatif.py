@@ -19,11 +19,12 @@ from grantval.errors import UsageError
 from grantval.attribution.inputs import build_inputs
 from grantval.attribution.periods import ExpenseSchedule, compute_schedule
 from grantval.measurement.fairvalue import FairValues, compute_fair_values
-from grantval.scenarios.shifts import Shifts, forfeiture_adjuster
+from grantval.scenarios.shifts import Shifts, adjust_payouts, forfeiture_adjuster
 from grantval.ledger import Ledger
 from grantval.policy import Policy
 
-NAMES = ("volatility", "expected_term_years", "risk_free_rate", "dividend_yield", "share_price", "forfeiture_rate")
+NAMES = ("volatility", "expected_term_years", "risk_free_rate", "dividend_yield", "share_price", "forfeiture_rate",
+         "payout")
 _NUM = r"(\d+(\.\d*)?|\.\d+)"
 
 
@@ -51,10 +52,10 @@ class Shift:
 def parse_vary(text: str) -> list[Shift]:
     """Parse ``NAME=SPEC[,SPEC...]``: ``0.45`` (level), ``+0.05``/``-0.05`` (add), ``+10%``/``-10%`` (relative)."""
     if "=" not in text:
-        raise UsageError(f"--vary {text!r}: write NAME=SPEC, for example volatility=+0.05,-0.05")
+        raise UsageError(f"{{vary}} {text!r}: write NAME=SPEC, for example volatility=+0.05,-0.05", ("vary",))
     name, spec = (x.strip() for x in text.split("=", 1))
     if name not in NAMES:
-        raise UsageError(f"--vary {text!r}: {name!r} is not one of {', '.join(NAMES)}")
+        raise UsageError(f"{{vary}} {text!r}: {name!r} is not one of {', '.join(NAMES)}", ("vary",))
     shifts = []
     for tok in (t.strip() for t in spec.split(",")):
         if re.fullmatch(rf"[+-]{_NUM}%", tok):
@@ -64,10 +65,10 @@ def parse_vary(text: str) -> list[Shift]:
         elif re.fullmatch(_NUM, tok):
             shifts.append(Shift(name, "level", float(tok), tok))
         else:
-            raise UsageError(f"--vary {text!r}: {tok!r} is not a level (0.45), a shift (+0.05) or a relative "
-                             "shift (+10%); rates and volatilities are decimals")
+            raise UsageError(f"{{vary}} {text!r}: {tok!r} is not a level (0.45), a shift (+0.05) or a relative "
+                             "shift (+10%); rates and volatilities are decimals", ("vary",))
     if len({s.text for s in shifts}) != len(shifts):
-        raise UsageError(f"--vary {text!r}: a shift is listed twice")
+        raise UsageError(f"{{vary}} {text!r}: a shift is listed twice", ("vary",))
     return shifts
 
 
@@ -87,7 +88,7 @@ def grid(varies: list[list[Shift]]) -> list[Scenario]:
     """The base and every combination of the shifts (a full grid)."""
     names = [v[0].name for v in varies]
     if len(set(names)) != len(names):
-        raise UsageError("each assumption may be named in one --vary option only")
+        raise UsageError("each assumption may be named in one {vary} option only", ("vary",))
     out = [Scenario("base", ())]
     for i, combo in enumerate(itertools.product(*varies), start=1):
         out.append(Scenario(f"S{i:02d}", tuple(combo)))
@@ -132,7 +133,7 @@ def run_scenarios(ledger: Ledger, policy: Policy, varies: list[list[Shift]], *, 
         mask &= gd <= np.datetime64(grants_through, "D")
     if any(v[0].name == "forfeiture_rate" for v in varies) and policy.forfeitures != "estimate":
         raise UsageError("forfeiture_rate changes nothing when forfeitures are accounted for as they occur; "
-                         "run with --forfeitures estimate to vary it")
+                         "run with {forfeitures} estimate to vary it", ("forfeitures",))
     if through is None:
         through = ledger.tranches["vest_date"].max()
     through = np.datetime64(through, "D")
@@ -158,6 +159,8 @@ def run_scenarios(ledger: Ledger, policy: Policy, varies: list[list[Shift]], *, 
             if np.any((moved < 0) | (moved >= 1)):
                 raise UsageError(f"scenario {sc.description}: an annual forfeiture rate becomes "
                                  f"{moved[(moved < 0) | (moved >= 1)][0]:g}; it must be at least 0 and below 1")
+        if "payout" in by:
+            adjust_payouts(inp, by["payout"], mask, sc.description)
         sched = compute_schedule(inp, policy, through, start, forecast_through)
         return ScenarioResult(sc, fv, sched)
 

@@ -161,3 +161,18 @@ def test_psu_expense_is_identical_rerun_and_unaffected_ledgers_unchanged(tmp_pat
     a = api.expense(ig_example_2(tmp_path / "a"), through="2027-12-31", period="year", standard="ifrs2")
     b = api.expense(ig_example_2(tmp_path / "b"), through="2027-12-31", period="year", standard="ifrs2")
     assert np.array_equal(a.schedule.expense_cents, b.schedule.expense_cents)
+
+
+def test_performance_unit_roll_forward_ties_with_the_final_payout(tmp_path):
+    folder = probable_then_improbable(tmp_path / "l")
+    _set("performance", 2, "payout", "1.2345")(folder)
+    run = api.disclose(folder, start="2027-01-01", through="2030-06-30")
+    pu = run.disclosure.performance_units.set_index("line")["number"]
+    # invented ledger: 1,000 target units vest on 2030-01-01 at a payout of 1.2345 -> 1,234 shares
+    assert pu["Granted (target units)"] == 1000
+    assert pu["Vested (shares issued at the final payout)"] == 1234
+    assert pu["Change from performance adjustments"] == 234
+    assert pu["Nonvested at end (target units)"] == 0
+    assert run.disclosure.psu_tie[0] == run.disclosure.psu_tie[1]
+    # performance units are not in the RSU table
+    assert run.disclosure.rsus["number"].abs().sum() == 0

@@ -119,7 +119,8 @@ def test_clean_run_passes_every_check(tmp_path):
 def test_every_check_has_a_corruption_case():
     run = RE.expense(SAMPLE, through="2026-12-31")
     names = {c.name for c in RE.write_expense(run, None, None).checks}
-    covered = {name for name, _, _ in CASES} | {"RSU roll-forward: start + granted - vested - forfeited = end"}
+    covered = {name for name, _, _ in CASES} | {"RSU roll-forward: start + granted - vested - forfeited = end",
+                                                 PSU_CHECK}
     assert names == covered
 
 
@@ -147,6 +148,22 @@ def test_rsu_roll_forward_turns_to_fail(tmp_path, monkeypatch):
     monkeypatch.setattr(D, "compute_disclosure", off)
     r = _run(tmp_path)
     assert r.exit_code == 1 and "check failed: RSU roll-forward" in r.output
+
+
+PSU_CHECK = "Performance-unit roll-forward: start + granted + adjustments - vested - forfeited = end"
+
+
+def test_performance_unit_roll_forward_turns_to_fail(tmp_path, monkeypatch):
+    import grantval.reporting.disclosure as D
+
+    real = D.compute_disclosure
+
+    def off(*a, **k):
+        d = real(*a, **k)
+        return dataclasses.replace(d, psu_tie=(d.psu_tie[0], d.psu_tie[1] - 1))
+    monkeypatch.setattr(D, "compute_disclosure", off)
+    r = _run(tmp_path)
+    assert r.exit_code == 1 and f"check failed: {PSU_CHECK}" in r.output
 
 
 def test_second_bsm_implementation_agrees_with_the_pricing_core():

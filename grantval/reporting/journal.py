@@ -1,0 +1,152 @@
+"""Journal lines of a close: debits and credits, in cents, built by contributors.
+
+A *contributor* is a function ``contribute(rows, accounts) -> DataFrame`` that
+returns journal lines for the booked rows it handles (columns :data:`LINE_COLUMNS`).
+The core contributor, :func:`equity_settled_lines`, journalises the awards whose
+kind is settled in shares: debit stock-based compensation expense by group (cost
+centre), credit additional paid-in capital; a reversal (negative net amount)
+credits expense and debits paid-in capital.  A feature adding liability or tax
+accounting appends its own function to :data:`CONTRIBUTORS` (one line) and tags
+its lines with their ``entry`` (``expense`` for lines that carry the booked
+expense, so the close's checks count them).
+"""
+
+from __future__ import annotations
+
+from typing import Callable
+
+import numpy as np
+import pandas as pd
+
+#: columns of the lines a contributor returns; ``entry`` stays inside grantval (the register
+#: stores the others)
+LINE_COLUMNS = ("period_end", "account", "group", "debit_cents", "credit_cents", "description", "entry")
+#: columns of the rows given to contributors
+ROW_COLUMNS = ("grant_id", "group", "award_type", "settlement", "period_end", "booked_cents", "catch_up_cents")
+
+
+def _net_lines(part: pd.DataFrame, keys: list[str]) -> pd.DataFrame:
+    """Net booked cents of ``part`` by ``keys`` (zero nets dropped)."""
+    sums = part.groupby(keys, sort=True, dropna=False)["booked_cents"].sum().reset_index()
+    return sums[sums["booked_cents"] != 0]
+
+
+def _describe(period_end, group, amount: int, what: str) -> str:
+    kind = "Stock-based compensation" if amount > 0 else "Reversal of stock-based compensation"
+    where = f", group {group}" if isinstance(group, str) and group else ""
+    return f"{kind}{what}, period ending {np.datetime64(period_end, 'D')}{where}"
+
+
+def equity_settled_lines(rows: pd.DataFrame, accounts) -> pd.DataFrame:
+    """Expense by group against paid-in capital, for awards settled in shares.
+
+    Parameters
+    ----------
+    rows : DataFrame
+        Columns :data:`ROW_COLUMNS`; only rows with ``settlement == "shares"`` are used.
+    accounts : grantval.ledger.ext.accounts.AccountMap
+        Account names by award type and entry.
+
+    Returns
+    -------
+    DataFrame, columns :data:`LINE_COLUMNS`
+        Per period: one expense line per (group, expense account) with a
+        non-zero net, then one paid-in capital line per equity account.
+    """
+    part = rows[rows["settlement"] == "shares"].copy()
+    if part.empty:
+        return pd.DataFrame(columns=list(LINE_COLUMNS))
+    award = part["award_type"].to_numpy(dtype=object)
+    part["expense_account"] = accounts.accounts(np.where(pd.isna(award), "*", award), "expense")
+    part["equity_account"] = accounts.accounts(np.where(pd.isna(award), "*", award), "equity")
+    part["group"] = part["group"].astype(object).where(part["group"].notna(), None)
+    out = []
+    for pe, per in part.groupby("period_end", sort=True):
+        exp = _net_lines(per.assign(group=per["group"].fillna("")), ["group", "expense_account"])
+        for g, acct, amt in zip(exp["group"], exp["expense_account"], exp["booked_cents"]):
+            amt = int(amt)
+            out.append((pe, acct, g or None, max(amt, 0), max(-amt, 0), _describe(pe, g, amt, ""), "expense"))
+        eq = _net_lines(per, ["equity_account"])
+        for acct, amt in zip(eq["equity_account"], eq["booked_cents"]):
+            amt = int(amt)
+            out.append((pe, acct, None, max(-amt, 0), max(amt, 0),
+                        _describe(pe, None, amt, " (equity-settled awards)"), "equity"))
+    return pd.DataFrame(out, columns=list(LINE_COLUMNS))
+
+
+def cash_settled_lines(rows: pd.DataFrame, accounts) -> pd.DataFrame:
+    """Expense by group against the share-based payment liability, for awards settled in cash.
+
+    The amount booked for a cash-settled award is the change in its liability plus the cash paid
+    (IFRS 2.30-33; ASC 718-30-35): debit expense, credit the liability (a reversal the other
+    way).  The payment itself (debit the liability, credit cash) is the treasury's entry and is
+    not journalised here; ``liabilities.csv`` of the expense run gives the cash paid per period.
+    """
+    part = rows[rows["settlement"] == "cash"].copy()
+    if part.empty:
+        return pd.DataFrame(columns=list(LINE_COLUMNS))
+    award = part["award_type"].to_numpy(dtype=object)
+    part["expense_account"] = accounts.accounts(award, "expense")
+    part["liability_account"] = accounts.accounts(award, "liability")
+    out = []
+    for pe, per in part.groupby("period_end", sort=True):
+        exp = _net_lines(per.assign(group=per["group"].fillna("")), ["group", "expense_account"])
+        for g, acct, amt in zip(exp["group"], exp["expense_account"], exp["booked_cents"]):
+            amt = int(amt)
+            out.append((pe, acct, g or None, max(amt, 0), max(-amt, 0),
+                        _describe(pe, g, amt, " (cash-settled awards)"), "expense"))
+        li = _net_lines(per, ["liability_account"])
+        for acct, amt in zip(li["liability_account"], li["booked_cents"]):
+            amt = int(amt)
+            out.append((pe, acct, None, max(-amt, 0), max(amt, 0),
+                        _describe(pe, None, amt, " (liability of cash-settled awards)"), "liability"))
+    return pd.DataFrame(out, columns=list(LINE_COLUMNS))
+
+
+#: the journal's contributors, in the order their lines are written
+CONTRIBUTORS: list[Callable] = [equity_settled_lines, cash_settled_lines]
+
+
+def build_journal(rows: pd.DataFrame, accounts, contributors: list[Callable] | None = None) -> pd.DataFrame:
+    """Every contributor's lines, ordered by period end (contributors in order within a period).
+
+    Returns
+    -------
+    DataFrame, columns :data:`LINE_COLUMNS`
+        Debits and credits are non-negative int64 cents.
+    """
+    parts = [c(rows, accounts) for c in (CONTRIBUTORS if contributors is None else contributors)]
+    parts = [p for p in parts if len(p)]
+    if not parts:
+        return pd.DataFrame({c: pd.Series([], dtype=("int64" if c.endswith("_cents") else object))
+                             for c in LINE_COLUMNS})
+    lines = pd.concat(parts, ignore_index=True)
+    lines["period_end"] = pd.to_datetime(lines["period_end"]).to_numpy("datetime64[D]")
+    lines = lines.sort_values("period_end", kind="stable").reset_index(drop=True)
+    for c in ("debit_cents", "credit_cents"):
+        lines[c] = lines[c].astype(np.int64)
+    return lines[list(LINE_COLUMNS)]
+
+
+def period_balances(lines: pd.DataFrame) -> pd.DataFrame:
+    """Per period end: total debits and total credits of ``lines``, summed line by line.
+
+    This is the independent side of the balance check: it adds up the lines as
+    written, whatever the contributors meant them to be.
+    """
+    if lines.empty:
+        return pd.DataFrame({"period_end": pd.Series([], dtype="datetime64[ns]"),
+                             "debit_cents": pd.Series([], dtype=np.int64), "credit_cents": pd.Series([], dtype=np.int64)})
+    return lines.groupby("period_end", sort=True)[["debit_cents", "credit_cents"]].sum().reset_index()
+
+
+def journal_csv_frame(lines: pd.DataFrame) -> pd.DataFrame:
+    """The journal as written in ``journal.csv``: amounts in currency (two decimals)."""
+    return pd.DataFrame({
+        "period_end": lines["period_end"].to_numpy("datetime64[D]"),
+        "account": lines["account"].to_numpy(dtype=object),
+        "group": lines["group"].to_numpy(dtype=object),
+        "debit": lines["debit_cents"].to_numpy(np.int64) / 100.0,
+        "credit": lines["credit_cents"].to_numpy(np.int64) / 100.0,
+        "description": lines["description"].to_numpy(dtype=object),
+    })

@@ -1,0 +1,487 @@
+"""Period closes (grantval.runs.close, ``grantval close`` / ``grantval register``).
+
+The behaviour checked is the close's own contract (docs/close.md): amounts booked
+are cumulative recomputed less cumulative booked, catch-ups of closed periods go
+in the first open period (ASC 250-10-45-17, verified in PwC Viewpoint 30.5: a
+change in estimate is accounted for in the period of change, prior periods are
+not restated; booking late-entered events in the open period is common practice),
+closed periods are never restated, journals balance.  Hand values use the
+engine's documented straight-line rule (docs/expense-rules.md; ASC 718-10-35-8):
+elapsed = (date + 1 - grant date) / (last vest - grant date).
+"""
+
+from __future__ import annotations
+
+import pathlib
+import signal
+import sqlite3
+import subprocess
+import sys
+import time
+
+import numpy as np
+import openpyxl
+import pandas as pd
+import pytest
+from typer.testing import CliRunner
+
+from grantval.cli import app
+from grantval.errors import LedgerError
+from grantval.io import register as R
+from grantval.runs import close as C
+from tests.factory import BASE, tables, write_ledger
+
+ROOT = pathlib.Path(__file__).resolve().parents[2]
+SAMPLE = ROOT / "sample_grants"
+runner = CliRunner()
+Q1, Q2, Q3 = "2027-03-31", "2027-06-30", "2027-09-30"
+
+#: one RSU, 1000 units, all vesting 2028-01-01; share price 10, no dividends: fair value 10 a unit
+#: (RSU value S exp(-q t) with q = 0); straight-line over 365 days
+RSU = {"grant_id": "U1", "holder_id": "H9", "group": "eng", "award_type": "rsu", "grant_date": "2027-01-01",
+       "quantity": "1000", "exercise_price": "", "expiration_date": "", "vest_start_date": "", "vest_months": "12",
+       "vest_every_months": "12", "cliff_months": "0", "assumption_set": ""}
+EVENT_HEAD = {"grant_id": "", "event_date": "", "event_type": "", "quantity": "", "share_price": ""}
+
+
+def cli(*args):
+    return runner.invoke(app, [str(a) for a in args])
+
+
+def cents(x: float) -> int:
+    """Half-up rounding to cents, as the engine's to_cents (common practice)."""
+    return int(np.floor(x * 100 + 0.5))
+
+
+def rsu_ledger(folder, events=(), grants=None, **more):
+    data = tables(grants=grants or [dict(RSU)], **more)
+    if events:
+        data["events"] = [dict(EVENT_HEAD, **e) for e in events]
+    return write_ledger(folder, data)
+
+
+def booked(reg_path, close_id=None) -> pd.DataFrame:
+    with R.open_register(reg_path, readonly=True) as reg:
+        return reg.booked(close_id=close_id)
+
+
+# ------------------------------------------------------------ late forfeiture
+
+
+def test_late_forfeiture_is_caught_up_in_the_open_quarter_closed_quarter_unchanged(tmp_path, monkeypatch):
+    monkeypatch.setenv("USER", "alice")
+    reg = tmp_path / "r.gvreg"
+    led = rsu_ledger(tmp_path / "l")
+    first = C.close(led, register=reg, through=Q1)
+    q1 = cents(10_000 * 90 / 365)  # 2027-01-01..03-31 is 90 days of 365
+    assert first.plan.rows["booked_cents"].tolist() == [q1]
+    assert first.plan.record.user == "alice"
+    before = booked(reg, 1)
+    # a forfeiture of 400 units dated in the closed Q1 is entered late
+    rsu_ledger(led, events=[{"grant_id": "U1", "event_date": "2027-02-15", "event_type": "forfeit", "quantity": "400"}])
+    second = C.close(led, register=reg, through=Q2)
+    q1_now = cents(6_000 * 90 / 365)
+    q2_cum = cents(6_000 * 181 / 365)
+    row = second.plan.rows.iloc[0]
+    assert str(row["period_end"])[:10] == Q2
+    assert row["catch_up_cents"] == q1_now - q1  # the closed quarter's restatement, booked in Q2
+    assert row["booked_cents"] == q2_cum - q1   # cumulative recomputed - cumulative booked
+    assert booked(reg, 1).equals(before)        # Q1 as booked
+    with R.open_register(reg, readonly=True) as r:
+        assert r.cumulative_booked()["booked_cents"].tolist() == [q2_cum]
+        assert r.verify() == []
+    assert not second.failed
+
+
+def test_cli_close_writes_csvs_workbook_and_head_digest(tmp_path):
+    reg = tmp_path / "r.gvreg"
+    r = cli("close", SAMPLE, "--through", "2025-12-31", "--register", reg, "-o", tmp_path / "c.xlsx",
+            "--csv-dir", tmp_path / "csv", "--no-timestamp")
+    assert r.exit_code == 0, r.output
+    with R.open_register(reg, readonly=True) as rr:
+        head = rr.head_digest()
+        c = rr.closes()[0]
+    assert f"register head digest {head}" in r.output
+    assert c.policies["forfeitures"] == "estimate" and c.options["through"] == "2025-12-31"
+    assert set(c.ledger_digests) and all(len(v) == 64 for v in c.ledger_digests.values())
+    exp = pd.read_csv(tmp_path / "csv" / "close_expense.csv")
+    assert list(exp.columns) == ["grant_id", "group", "period_end", "expense", "catch_up"]
+    jr = pd.read_csv(tmp_path / "csv" / "journal.csv")
+    assert list(jr.columns) == ["period_end", "account", "group", "debit", "credit", "description"]
+    assert round(jr["debit"].sum() - jr["credit"].sum(), 2) == 0
+    assert round(exp["expense"].sum(), 2) == round(jr.loc[jr.account.str.contains("expense"), "debit"].sum(), 2)
+    wb = openpyxl.load_workbook(tmp_path / "c.xlsx", read_only=True)
+    assert wb.sheetnames == ["run", "close", "booked", "journal", "catch_ups", "bridge", "checks", "notes"]
+    verdicts = [row[6] for row in wb["checks"].iter_rows(min_row=2, values_only=True)]
+    assert verdicts and set(verdicts) == {"PASS"}
+    notes = " ".join(str(c) for row in wb["notes"].iter_rows(values_only=True) for c in row if c)
+    assert "ASC 250-10-45-17" in notes and "forfeitures" in notes
+
+
+# ---------------------------------------------------------------- refusals
+
+
+def test_double_close_is_refused_naming_the_close(tmp_path, monkeypatch):
+    monkeypatch.setenv("USER", "bob")
+    reg, led = tmp_path / "r.gvreg", write_ledger(tmp_path / "l", BASE)
+    assert cli("close", led, "--through", Q2, "--register", reg).exit_code == 0
+    r = cli("close", led, "--through", Q1, "--register", reg)
+    assert r.exit_code == 1
+    assert "the period ending 2027-03-31 is already closed: close 1" in r.output and "by bob" in r.output
+    with pytest.raises(R.PeriodClosedError) as err:
+        C.close(led, register=reg, through=Q2)
+    assert err.value.close_id == 1
+    assert len(booked(reg)) > 0 and [c.close_id for c in C.register_closes(reg)[0]] == [1]
+
+
+@pytest.mark.parametrize("args, words", [
+    (("--through", "2027-05-31"), "is not the last day of a quarter"),
+    (("--through", Q2, "--from", "2027-02-01"), "is not the first day of a quarter"),
+])
+def test_partial_periods_are_refused(tmp_path, args, words):
+    r = cli("close", write_ledger(tmp_path / "l", BASE), "--register", tmp_path / "r.gvreg", *args)
+    assert r.exit_code == 2 and words in r.output
+    assert not (tmp_path / "r.gvreg").exists() or C.register_closes(tmp_path / "r.gvreg")[0] == []
+
+
+def test_later_close_keeps_the_period_and_its_start(tmp_path):
+    reg, led = tmp_path / "r.gvreg", write_ledger(tmp_path / "l", BASE)
+    C.close(led, register=reg, through=Q1)
+    r = cli("close", led, "--through", "2027-12-31", "--register", reg, "--period", "month")
+    assert r.exit_code == 2 and "closes of one register share their periods" in r.output
+    r = cli("close", led, "--through", Q2, "--register", reg, "--from", "2027-01-01")
+    assert r.exit_code == 2 and "not the day after the last closed period" in r.output
+
+
+# ------------------------------------------------------------------ reopen
+
+
+def test_reopen_with_reason_keeps_rows_superseded_then_recloses(tmp_path, monkeypatch):
+    monkeypatch.setenv("USER", "carol")
+    reg = tmp_path / "r.gvreg"
+    led = rsu_ledger(tmp_path / "l")
+    C.close(led, register=reg, through=Q1)
+    r = cli("close", "--reopen", "--register", reg)
+    assert r.exit_code == 2 and "--reason" in r.output
+    r = cli("close", led, "--reopen", "--register", reg, "--reason", "x")
+    assert r.exit_code == 2 and "leave out LEDGER" in r.output
+    r = cli("close", "--reopen", "--register", reg, "--reason", "late forfeiture in Q1")
+    assert r.exit_code == 0, r.output
+    assert "reopened close 1 by carol" in r.output
+    closes, _ = C.register_closes(reg)
+    assert closes[0].status == "superseded" and closes[0].reopen.reason == "late forfeiture in Q1"
+    assert closes[0].reopen.user == "carol"
+    assert len(booked(reg, 1)) == 1 and booked(reg).empty  # kept, but no longer active
+    rsu_ledger(led, events=[{"grant_id": "U1", "event_date": "2027-02-15", "event_type": "forfeit", "quantity": "400"}])
+    again = C.close(led, register=reg, through=Q1)  # Q1 re-closed with the late event, no catch-up
+    assert again.close_id == 2
+    assert again.plan.rows["booked_cents"].tolist() == [cents(6_000 * 90 / 365)]
+    assert again.plan.rows["catch_up_cents"].tolist() == [0]
+    r = cli("register", reg)
+    assert "close 1  superseded" in r.output and "late forfeiture in Q1" in r.output and "close 2  booked" in r.output
+
+
+# ----------------------------------------------------------------- journal
+
+
+def test_journal_balances_and_books_a_reversal_as_credit_to_expense(tmp_path):
+    reg = tmp_path / "r.gvreg"
+    other = dict(RSU, grant_id="U2", group="ops", quantity="100")
+    led = rsu_ledger(tmp_path / "l", grants=[dict(RSU), other])
+    C.close(led, register=reg, through=Q1)
+    rsu_ledger(led, grants=[dict(RSU), other],
+               events=[{"grant_id": "U1", "event_date": "2027-03-01", "event_type": "forfeit", "quantity": ""}])
+    res = C.close(led, register=reg, through=Q2)
+    j = res.plan.journal
+    assert (j.groupby("period_end")["debit_cents"].sum() == j.groupby("period_end")["credit_cents"].sum()).all()
+    eng = j[(j["entry"] == "expense") & (j["group"] == "eng")].iloc[0]
+    assert eng["debit_cents"] == 0 and eng["credit_cents"] == cents(10_000 * 90 / 365)  # the whole Q1 cost reversed
+    ops = j[(j["entry"] == "expense") & (j["group"] == "ops")].iloc[0]
+    assert ops["debit_cents"] == cents(1_000 * 181 / 365) - cents(1_000 * 90 / 365) and ops["credit_cents"] == 0
+    apic = j[j["entry"] == "equity"].iloc[0]
+    assert apic["account"] == "Additional paid-in capital"
+    assert apic["debit_cents"] == eng["credit_cents"] - ops["debit_cents"]  # net reversal debits paid-in capital
+    with R.open_register(reg, readonly=True) as rr:
+        stored = rr.journal(close_id=2)
+    assert stored["debit_cents"].sum() == stored["credit_cents"].sum()
+
+
+def test_accounts_table_names_the_accounts(tmp_path):
+    accounts = [{"award_type": "*", "entry": "expense", "account": "6100 SBC"},
+                {"award_type": "rsu", "entry": "expense", "account": "6110 SBC units"},
+                {"award_type": "*", "entry": "equity", "account": "3200 APIC"}]
+    led = write_ledger(tmp_path / "l", tables(accounts=accounts))
+    res = C.close(led, register=tmp_path / "r.gvreg", through=Q2)
+    names = set(res.plan.journal["account"])
+    assert names == {"6100 SBC", "6110 SBC units", "3200 APIC"}
+    opt = res.plan.journal[res.plan.journal["account"] == "6100 SBC"]["debit_cents"].sum()
+    rows = res.plan.rows
+    assert opt == rows.loc[rows["award_type"] == "option", "booked_cents"].sum()
+
+
+@pytest.mark.parametrize("rows, words", [
+    ([{"award_type": "warrant", "entry": "expense", "account": "x"}], "'warrant' is not an award type"),
+    ([{"award_type": "*", "entry": "expense", "account": "a"}, {"award_type": "*", "entry": "Expense", "account": "b"}],
+     "is set twice"),
+])
+def test_accounts_table_is_checked(tmp_path, rows, words):
+    led = write_ledger(tmp_path / "l", tables(accounts=rows))
+    with pytest.raises(LedgerError, match=words):
+        C.close(led, register=tmp_path / "r.gvreg", through=Q1)
+
+
+# ------------------------------------------------------------------ checks
+
+
+def _plan(tmp_path, ledger=SAMPLE, through="2026-06-30", earlier="2025-12-31"):
+    path = tmp_path / "r.gvreg"
+    C.close(ledger, register=path, through=earlier)
+    reg = R.open_register(path)
+    plan = C.plan_close(reg, ledger, through=through)
+    reg.close_file()
+    return plan
+
+
+def _verdicts(plan, word):
+    from grantval.reporting.close_book import close_checks
+
+    return [c.tool_pass for c in close_checks(plan) if word in c.name]
+
+
+def test_each_close_check_passes_then_turns_to_fail(tmp_path):
+    plan = _plan(tmp_path)
+    assert all(c.tool_pass for c in plan.checks) and len(plan.checks) >= 8
+    j = plan.journal.copy()
+    plan.journal = j.assign(debit_cents=j["debit_cents"] + np.where(np.arange(len(j)) == 0, 1, 0))
+    assert False in _verdicts(plan, "debits = credits") and False in _verdicts(plan, "expense debits less credits")
+    plan.journal = j
+    rows = plan.rows.copy()
+    plan.rows = rows.assign(booked_cents=rows["booked_cents"] + np.where(np.arange(len(rows)) == 3, 1, 0))
+    assert _verdicts(plan, "Booked this close + booked before") == [False]
+    assert False in _verdicts(plan, "Bridge lines")
+    plan.rows = rows.assign(catch_up_cents=rows["catch_up_cents"] + np.where(np.arange(len(rows)) == 0, 5, 0))
+    assert _verdicts(plan, "Catch-up =") == [False]
+    plan.rows = rows
+    plan.bridge.cents[1, 0] += 1
+    assert _verdicts(plan, "Bridge lines")[0] is False
+
+
+def test_failed_check_stops_the_booking(tmp_path, monkeypatch):
+    from grantval.reporting import close_book
+
+    path = tmp_path / "r.gvreg"
+    monkeypatch.setattr(close_book, "_bridge_checks", lambda plan, rows: [
+        close_book.CheckRow("forced", 1, 2, 0, False)])
+    with pytest.raises(Exception, match="the close was not booked: its checks failed: forced"):
+        C.close(write_ledger(tmp_path / "l", BASE), register=path, through=Q1)
+    assert C.register_closes(path)[0] == []
+
+
+# ---------------------------------------------------------- other situations
+
+
+def test_from_starts_the_register_with_an_opening_balance(tmp_path):
+    reg = tmp_path / "r.gvreg"
+    led = rsu_ledger(tmp_path / "l")
+    first = C.close(led, register=reg, through=Q2, start="2027-04-01")
+    assert first.plan.rows["booked_cents"].tolist() == [cents(10_000 * 181 / 365) - cents(10_000 * 90 / 365)]
+    second = C.close(led, register=reg, through=Q3)
+    assert second.plan.rows["catch_up_cents"].tolist() == [0]
+    assert second.plan.rows["booked_cents"].tolist() == [cents(10_000 * 273 / 365) - cents(10_000 * 181 / 365)]
+
+
+def test_grant_removed_from_the_ledger_is_reversed(tmp_path):
+    reg = tmp_path / "r.gvreg"
+    other = dict(RSU, grant_id="U2", group="ops")
+    led = rsu_ledger(tmp_path / "l", grants=[dict(RSU), other])
+    C.close(led, register=reg, through=Q1)
+    rsu_ledger(led, grants=[dict(RSU)])
+    res = C.close(led, register=reg, through=Q2)
+    gone = res.plan.rows[res.plan.rows["grant_id"] == "U2"].iloc[0]
+    assert gone["booked_cents"] == gone["catch_up_cents"] == -cents(10_000 * 90 / 365)
+    assert res.warnings and "U2" in res.warnings[0]
+    with R.open_register(reg, readonly=True) as rr:
+        cum = rr.cumulative_booked().set_index("grant_id")["booked_cents"]
+    assert cum["U2"] == 0
+
+
+def test_expense_with_register_shows_booked_and_warns_of_a_changed_closed_period(tmp_path):
+    reg = tmp_path / "r.gvreg"
+    led = rsu_ledger(tmp_path / "l")
+    C.close(led, register=reg, through=Q1)
+    r = cli("expense", led, "--through", Q2, "--register", reg, "--csv-dir", tmp_path / "e")
+    assert r.exit_code == 0, r.output
+    assert "warning" not in r.output and "2027-03-31" in r.output
+    rsu_ledger(led, events=[{"grant_id": "U1", "event_date": "2027-02-15", "event_type": "forfeit", "quantity": "400"}])
+    r = cli("expense", led, "--through", Q2, "--register", reg, "--csv-dir", tmp_path / "e")
+    assert r.exit_code == 0, r.output
+    assert "warning: the closed period ending 2027-03-31 would change" in r.output
+    t = pd.read_csv(tmp_path / "e" / "booked_vs_recomputed.csv")
+    diff = (cents(6_000 * 90 / 365) - cents(10_000 * 90 / 365)) / 100
+    assert t["difference"].tolist() == [diff] and t["cumulative_difference"].tolist() == [diff]
+    C.close(led, register=reg, through=Q2)  # the catch-up is booked: nothing left to warn of
+    r = cli("expense", led, "--through", Q2, "--register", reg, "--csv-dir", tmp_path / "e")
+    assert r.exit_code == 0 and "warning" not in r.output
+
+
+# ------------------------------------------------- tamper, crash, concurrency
+
+
+def test_tampered_register_is_reported_by_verify_and_refused_by_close(tmp_path):
+    reg, led = tmp_path / "r.gvreg", write_ledger(tmp_path / "l", BASE)
+    C.close(led, register=reg, through=Q1)
+    assert cli("register", reg, "--verify").exit_code == 0
+    con = sqlite3.connect(reg, isolation_level=None)
+    con.execute("DROP TRIGGER booked_no_update")
+    con.execute("UPDATE booked SET booked_cents = booked_cents + 100 WHERE grant_id = 'G1'")
+    con.close()
+    r = cli("register", reg, "--verify")
+    assert r.exit_code == 1
+    assert "close 1 (through 2027-03-31): its booked rows were changed outside grantval" in r.output
+    r = cli("close", led, "--through", Q2, "--register", reg)
+    assert r.exit_code == 1 and "fails its verification; nothing was booked" in r.output
+    r = cli("register", reg, "--export", tmp_path / "x")
+    assert r.exit_code == 0 and (tmp_path / "x" / "booked.csv").exists()
+
+
+CHILD = r"""
+import pathlib, sys, time
+sys.path.insert(0, {root!r})
+from grantval.io import register as R
+marker, hold = sys.argv[1], float(sys.argv[2])
+def hook(stage, n):
+    if stage == "commit" and float(hold) > 0:
+        pathlib.Path(marker).write_text(stage)
+        time.sleep(hold)
+R._hook = hook
+from grantval.cli import main
+main(sys.argv[3:])
+"""
+
+
+def _child(tmp_path, name, hold, *args):
+    script = tmp_path / "child.py"
+    script.write_text(CHILD.format(root=str(ROOT)))
+    marker = tmp_path / f"marker-{name}"
+    proc = subprocess.Popen([sys.executable, str(script), str(marker), str(hold), *map(str, args)],
+                            stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, cwd=str(ROOT))
+    return proc, marker
+
+
+def _wait(marker, proc, limit=120.0):
+    end = time.monotonic() + limit
+    while not marker.exists():
+        if proc.poll() is not None:
+            pytest.fail(f"child ended early: {proc.communicate()}")
+        if time.monotonic() > end:
+            proc.kill()
+            proc.communicate()
+            pytest.fail("child never reached its hook")
+        time.sleep(0.05)
+
+
+def test_killed_close_command_leaves_the_register_as_it_was(tmp_path):
+    reg, led = tmp_path / "r.gvreg", write_ledger(tmp_path / "l", BASE)
+    C.close(led, register=reg, through=Q1)
+    with R.open_register(reg, readonly=True) as rr:
+        before, head = rr.booked(), rr.head_digest()
+    proc, marker = _child(tmp_path, "kill", 120, "close", led, "--through", Q2, "--register", reg)
+    _wait(marker, proc)
+    proc.send_signal(signal.SIGKILL)
+    proc.communicate(timeout=30)
+    assert proc.returncode == -signal.SIGKILL
+    with R.open_register(reg) as rr:
+        assert rr.booked().equals(before) and rr.head_digest() == head and rr.verify() == []
+    assert C.close(led, register=reg, through=Q2).close_id == 2
+
+
+def test_concurrent_closes_of_the_same_quarter_book_it_once(tmp_path):
+    reg, led = tmp_path / "r.gvreg", write_ledger(tmp_path / "l", BASE)
+    first, marker = _child(tmp_path, "a", 8, "close", led, "--through", Q1, "--register", reg)
+    _wait(marker, first)  # the first close holds the write lock, about to commit
+    second, _ = _child(tmp_path, "b", 0, "close", led, "--through", Q1, "--register", reg)
+    _, err1 = first.communicate(timeout=120)
+    _, err2 = second.communicate(timeout=120)
+    assert first.returncode == 0, err1
+    assert second.returncode == 1 and "already closed: close 1" in err2
+    closes, _ = C.register_closes(reg)
+    assert [c.close_id for c in closes] == [1]
+
+
+def test_close_workbook_checks_recalculate_to_pass_in_a_spreadsheet(tmp_path):
+    """LibreOffice (headless) recalculates the checks sheet's live formulas: every Status is PASS and
+    figure A equals the tool's figure (same helper as tests/io/test_recalculation.py)."""
+    from tests.io.test_recalculation import ERRORS, SOFFICE, recalculate
+
+    if SOFFICE is None:
+        pytest.skip("LibreOffice is not installed")
+    reg = tmp_path / "r.gvreg"
+    C.close(SAMPLE, register=reg, through="2025-12-31")
+    led = tmp_path / "l"
+    import shutil
+
+    shutil.copytree(SAMPLE, led)
+    with open(led / "events.csv", "a") as fh:
+        fh.write("CV-0030,2025-11-20,forfeit,,\n")  # a late forfeiture: a catch-up in 2026 Q1
+    res = C.close(led, register=reg, through="2026-06-30", xlsx=tmp_path / "c.xlsx", timestamp=False)
+    book = openpyxl.load_workbook(recalculate(tmp_path / "c.xlsx", tmp_path), data_only=True)
+    rows = list(book["checks"].iter_rows(min_row=2, values_only=True))
+    assert len(rows) == len(res.checks)
+    for (name, a, b, diff, tol, status, verdict), check in zip(rows, res.checks):
+        assert not any(str(v).startswith(ERRORS) for v in (a, b, diff, status)), name
+        assert status == "PASS" and verdict == "PASS", (name, a, b)
+    bridge = list(book["bridge"].iter_rows(min_row=2, values_only=True))
+    sums = [r[2] for r in bridge if str(r[1]).startswith("Booked expense of the period")]
+    per = res.plan.rows.groupby("period_end")["booked_cents"].sum().to_numpy() / 100
+    assert np.allclose(sums, per, atol=0.005)
+
+
+def test_policy_change_between_closes_is_caught_up_with_a_warning(tmp_path):
+    reg, led = tmp_path / "r.gvreg", write_ledger(tmp_path / "l", BASE)
+    C.close(led, register=reg, through=Q1)
+    res = C.close(led, register=reg, through=Q2, attribution="graded")
+    assert any("attribution policy is graded but close 1 used straight-line" in w for w in res.warnings)
+    assert res.plan.rows["catch_up_cents"].sum() != 0 and not res.failed
+    r = cli("expense", led, "--through", Q2, "--register", reg, "--period", "month", "--csv-dir", tmp_path / "e")
+    assert r.exit_code == 0 and "nothing to compare" in r.output
+
+
+def test_cash_settled_awards_are_journalised_against_the_liability(tmp_path, monkeypatch):
+    from grantval.reporting import journal as J
+    from tests.attribution.cash_ledgers import mixed_ledger
+
+    led = mixed_ledger(tmp_path / "l")
+    # without the cash contributor the expense lines fall short of the amounts booked: nothing is booked
+    monkeypatch.setattr(J, "CONTRIBUTORS", [J.equity_settled_lines])
+    with pytest.raises(Exception, match="expense debits less credits = amount booked"):
+        C.close(led, register=tmp_path / "r.gvreg", through="2029-12-31", period="year")
+    monkeypatch.setattr(J, "CONTRIBUTORS", [J.equity_settled_lines, J.cash_settled_lines])
+    res = C.close(led, register=tmp_path / "r.gvreg", through="2029-12-31", period="year")
+    journal = res.plan.journal
+    assert not res.failed and "Share-based payment liability" in set(journal["account"])
+    liability = journal[journal["entry"] == "liability"]["credit_cents"].sum()
+    cash = res.plan.rows["settlement"] == "cash"
+    assert liability == res.plan.rows.loc[cash, "booked_cents"].sum()
+
+
+def test_register_command_refuses_a_file_that_is_not_a_register(tmp_path):
+    bad = tmp_path / "notes.txt"
+    bad.write_text("hello")
+    r = cli("register", bad)
+    assert r.exit_code == 1 and "is not a grantval close register" in r.output
+    r = cli("register", tmp_path / "missing.gvreg", "--verify")
+    assert r.exit_code == 1 and "does not exist" in r.output
+
+
+def test_read_back_check_turns_to_fail_when_the_register_holds_other_rows(tmp_path):
+    path = tmp_path / "r.gvreg"
+    res = C.close(write_ledger(tmp_path / "l", BASE), register=path, through=Q1)
+    with R.open_register(path, readonly=True) as reg:
+        assert C._read_back_check(reg, 1, res.plan).tool_pass
+
+        class Altered:
+            def booked(self, close_id):
+                rows = reg.booked(close_id=close_id)
+                return rows.assign(booked_cents=rows["booked_cents"] + np.where(np.arange(len(rows)) == 0, 1, 0))
+
+        assert not C._read_back_check(Altered(), 1, res.plan).tool_pass
