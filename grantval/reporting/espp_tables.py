@@ -93,3 +93,72 @@ def espp_sheet(table: pd.DataFrame) -> Sheet:
     """The ``purchase_plans`` worksheet of :func:`espp_table`."""
     return Sheet("purchase_plans", frame=table, formats=FORMATS, widths={"grant_id": 24, "status": 22},
                  text_columns=("offering_id", "holder_id", "grant_id", "group"))
+
+
+def _flows(ledger, through_lo, through_hi):
+    """Per ESPP tranche: shares withdrawn and forfeited (or cancelled) with dates in [lo, hi]."""
+    ch, tr = ledger.changes, ledger.tranches
+    n = len(tr)
+    if not len(ch):
+        return np.zeros(n, np.int64), np.zeros(n, np.int64)
+    d = ch["date"].to_numpy("datetime64[D]")
+    in_win = (d >= through_lo) & (d <= through_hi)
+    by_withdraw = ledger.events["event_type"].to_numpy(object)[ch["event_idx"].to_numpy()] == "withdraw"
+    t, q = ch["tranche_idx"].to_numpy(), ch["quantity"].to_numpy(np.int64)
+    w = np.bincount(t[in_win & by_withdraw], weights=q[in_win & by_withdraw], minlength=n).astype(np.int64)
+    f = np.bincount(t[in_win & ~by_withdraw], weights=q[in_win & ~by_withdraw], minlength=n).astype(np.int64)
+    return w, f
+
+
+def purchase_plan_activity(ledger, fair_values, start, through) -> tuple[pd.DataFrame, tuple[int, int]]:
+    """Roll-forward of ESPP purchase rights (shares at the start purchase price) from ``start`` to ``through``.
+
+    Lines: open at start, granted (enrolled), purchase date reached, withdrawn, forfeited or cancelled,
+    open at end; then shares bought (``purchase`` events) and their weighted-average price.  Returns
+    the table and the tie ``(start + granted - reached - withdrawn - forfeited, end)``.
+    """
+    start, through = np.datetime64(start, "D"), np.datetime64(through, "D")
+    g, tr = ledger.grants, ledger.tranches
+    gi = tr["grant_idx"].to_numpy()
+    espp = (g["award_type"] == "espp").to_numpy()[gi]
+    qty = tr["quantity"].to_numpy(np.int64)
+    vest = tr["vest_date"].to_numpy("datetime64[D]")
+    gdate = g["grant_date"].to_numpy("datetime64[D]")[gi]
+    early = np.datetime64("1900-01-01")
+    before = start - np.timedelta64(1, "D")
+
+    def open_at(d):
+        w, f = _flows(ledger, early, d)
+        return np.where((gdate <= d) & (vest > d), qty - w - f, 0)
+
+    w_in, f_in = _flows(ledger, start, through)
+    w_all, f_all = _flows(ledger, early, through)
+    reached = np.where((vest >= start) & (vest <= through), qty - w_all - f_all, 0)
+    granted = np.where((gdate >= start) & (gdate <= through), qty, 0)
+    o0, o1 = open_at(before), open_at(through)
+    lines = [("Open at start", o0), ("Granted (enrolled)", granted), ("Purchase date reached", reached),
+             ("Withdrawn", w_in), ("Forfeited or cancelled", f_in), ("Open at end", o1)]
+    fv = np.asarray(fair_values.tranche_value, float)
+    rows = [(name, float(np.sum(x[espp])), _wavg(fv[espp], x[espp])) for name, x in lines]
+    ev = ledger.events
+    m = ((ev["event_type"] == "purchase").to_numpy() & (ev["event_date"].to_numpy("datetime64[D]") >= start)
+         & (ev["event_date"].to_numpy("datetime64[D]") <= through)) if len(ev) else np.zeros(0, bool)
+    bought = ev["quantity"].to_numpy(float)[m] if len(ev) else np.zeros(0)
+    paid = ev["share_price"].to_numpy(float)[m] if len(ev) else np.zeros(0)
+    rows.append(("Shares bought (purchase events)", float(bought.sum()), float("nan")))
+    rows.append(("Weighted-average purchase price", _wavg(paid, bought), float("nan")))
+    frame = pd.DataFrame(rows, columns=["line", "number", "weighted_average_grant_date_fair_value"])
+    tie = (int(np.sum((o0 + granted - reached - w_in - f_in)[espp])), int(np.sum(o1[espp])))
+    return frame, tie
+
+
+def _wavg(values, weights) -> float:
+    w = np.asarray(weights, float)
+    return float(np.sum(np.asarray(values, float) * w) / w.sum()) if w.sum() > 0 else float("nan")
+
+
+def activity_sheet(frame: pd.DataFrame) -> Sheet:
+    """The ``purchase_plan_activity`` worksheet of :func:`purchase_plan_activity`."""
+    return Sheet("purchase_plan_activity", frame=frame,
+                 formats={"number": "#,##0.####", "weighted_average_grant_date_fair_value": "#,##0.000000"},
+                 widths={"line": 36})

@@ -346,3 +346,23 @@ def test_core_event_after_a_withdrawal_is_refused(tmp_path):
     found = problems_of(ledger(tmp_path / "l", [offering(purchase_dates="2027-07-01;2028-01-01")], [enrol()],
                                [event("O27/H1", "2027-03-01", "withdraw"), event("O27/H1", "2027-04-01", "forfeit")]))
     assert [(s, r, c) for s, r, c, m in found if "after the withdrawal" in m] == [("events.csv", 3, "event_date")]
+
+
+def test_purchase_plan_activity_rolls_forward_and_ties(tmp_path):
+    from grantval.reporting.espp_tables import purchase_plan_activity
+
+    offs = [offering(purchase_dates="2027-07-01;2028-01-01")]
+    folder = ledger(tmp_path / "l", offs, [enrol(withholding="3400"), enrol(holder="H2", withholding="1700")],
+                    [event("O27/H2", "2027-09-30", "withdraw"), event("O27/H1", "2027-07-01", "purchase", "100", "17"),
+                     event("O27/H1", "2028-01-01", "purchase", "100", "16")])
+    run = api.expense(folder, through="2028-12-31")
+    year1, tie1 = purchase_plan_activity(run.ledger, run.fair_values, "2027-01-01", "2027-12-31")
+    assert year1["number"].tolist()[:6] == [0, 300, 150, 50, 0, 100]  # counted by hand from the ledger above
+    assert tie1 == (100, 100)
+    assert year1["number"].iloc[6] == 100 and year1["number"].iloc[7] == 17
+    year2, tie2 = purchase_plan_activity(run.ledger, run.fair_values, "2028-01-01", "2028-12-31")
+    assert year2["number"].tolist()[:6] == [100, 0, 100, 0, 0, 0] and tie2 == (0, 0)
+    assert year2["number"].iloc[7] == 16
+    from grantval.reporting.espp_tables import activity_sheet
+
+    assert activity_sheet(year2).name == "purchase_plan_activity"
