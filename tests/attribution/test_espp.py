@@ -366,3 +366,30 @@ def test_purchase_plan_activity_rolls_forward_and_ties(tmp_path):
     from grantval.reporting.espp_tables import activity_sheet
 
     assert activity_sheet(year2).name == "purchase_plan_activity"
+
+
+def test_cap_on_fixed_shares_limits_the_shares_not_the_value(tmp_path):
+    # fixed shares buy min(N_0, M) shares whatever the price: 80 of the 100 shares, same value per share
+    off = offering(max_shares="80")
+    run = api.expense(ledger(tmp_path / "l", [off], [enrol()]), through="2027-12-31")
+    assert run.ledger.tranches["quantity"].tolist()[-1] == 80
+    assert run.fair_values.grant_value[1] == pytest.approx(ql_espp(20, 181, 0.05, 0.3, 0.01, 0.15, "fixed_shares"),
+                                                           rel=1e-10)
+
+
+def test_capped_fixed_withholding_value_rises_with_the_cap_to_the_uncapped_value():
+    # properties (derived): the cap takes value away, less as it rises; at k <= 1 it is a fixed-shares right
+    from grantval.awards.espp import _capped
+    from grantval.pricing import espp_value
+
+    ks = np.array([0.5, 0.9, 1.0, 1.000001, 1.2, 1.5, 2.0, 5.0, 50.0])
+    n = len(ks)
+    args = {"share_price": np.full(n, 20.0), "term": np.full(n, 0.5), "rate": np.full(n, 0.05),
+            "volatility": np.full(n, 0.4), "dividend_yield": np.full(n, 0.01), "discount": np.full(n, 0.15)}
+    free = espp_value(**args, lookback=True, basis="fixed_withholding")
+    fixed = espp_value(**args, lookback=True, basis="fixed_shares")
+    got = _capped(args, free, ks, True, None)
+    assert np.all(got[ks <= 1] == fixed[ks <= 1])
+    assert np.all(np.diff(got) >= -1e-12) and np.all(got <= free + 1e-12)
+    assert got[-1] == pytest.approx(free[-1], rel=1e-9)
+    assert got[3] == pytest.approx(fixed[3], rel=1e-5)  # continuous at k = 1
