@@ -20,6 +20,7 @@ MODULES = {
     "psu": "grantval.awards.psu",
     "cash_sar": "grantval.awards.cash_sar",
     "cash_unit": "grantval.awards.cash_unit",
+    "espp": "grantval.awards.espp",  # ESPP enrollments (synthesized from espp_enrollments)
 }
 
 #: the award types accepted in the grants table, in the order documented

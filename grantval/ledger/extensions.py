@@ -27,6 +27,7 @@ MODULES: tuple[str, ...] = (
     "grantval.ledger.ext.accounts",
     "grantval.ledger.ext.tax",
     "grantval.ledger.ext.modifications",
+    "grantval.ledger.ext.espp",
 )
 
 
@@ -84,6 +85,40 @@ class Extension:
     check: Callable[[LedgerParts], list["Problem"]] | None = None
     #: ``adjust(parts) -> Adjustment | None``: terms in force after the feature's changes (modifications)
     adjust: Callable[[LedgerParts], "Adjustment | None"] | None = None
+    # (espp) grants a feature synthesizes from its own tables; see :class:`Contribution`
+    contribute: Callable[[dict, dict], "Contribution"] | None = None
+    # (espp) tranche changes of the feature's own event types:
+    # ``changes(parts, events, grant_pos, core_changes) -> (extra changes, problems)``
+    changes: Callable | None = None
+
+
+@dataclass
+class Contribution:
+    """Grants, tranches and assumption rows a feature synthesizes from its own tables (ESPP enrollments).
+
+    They join the ledger after the core checks of the grants table, so the feature checks its own
+    rows (``check`` and the problems returned here).
+
+    Attributes
+    ----------
+    grants : DataFrame
+        Rows in the grants format (missing columns blank) with ``_row`` and ``_source`` naming the
+        feature's table row, and ``assumption_row``: position in ``assumptions``.
+    tranches : DataFrame
+        ``grant`` (position in ``grants``), ``vest_date``, ``quantity`` (int64).
+    assumptions : DataFrame
+        Rows in the assumptions format (the valuation inputs of the synthesized grants).
+    problems : list of Problem
+    withheld : set of str
+        Grant ids the feature would have built but could not (their problems are reported), so
+        events naming them are not also reported as unknown grants.
+    """
+
+    grants: "pd.DataFrame"
+    tranches: "pd.DataFrame"
+    assumptions: "pd.DataFrame"
+    problems: list
+    withheld: set = field(default_factory=set)
 
 
 def extensions() -> list[Extension]:
@@ -109,3 +144,61 @@ def adjust_extensions(parts: LedgerParts) -> list[Adjustment]:
             if a is not None:
                 out.append(a)
     return out
+
+
+def contribute_extensions(g, a, pos, tables: dict, sources: dict):
+    """Append every extension's synthesized grants and assumption rows (ESPP enrollments, ...).
+
+    Returns the grants, the assumptions, the assumptions row of each grant, the synthesized
+    tranches (``grant_idx`` into the returned grants, ``vest_date``, ``quantity``), the problems and
+    the grant ids withheld (see :class:`Contribution`).
+    """
+    import numpy as np
+    import pandas as pd
+
+    from grantval.errors import Problem
+
+    problems: list = []
+    extra = []
+    withheld: set = set()
+    for ext in extensions():
+        if ext.contribute is None:
+            continue
+        c = ext.contribute(tables, sources)
+        problems += c.problems
+        withheld |= c.withheld
+        if not len(c.grants):
+            continue
+        clash = c.grants["grant_id"].isin(set(g["grant_id"].dropna())).to_numpy()
+        for r, s, k in zip(c.grants["_row"][clash], c.grants["_source"][clash], c.grants["grant_id"][clash]):
+            problems.append(Problem(s, int(r), "grant_id", f"{k!r} is also a grant of the grants table"))
+        n_g, n_a = len(g), len(a)
+        rows = c.grants.drop(columns="assumption_row").reset_index(drop=True)
+        for col in g.columns:  # blanks of each missing column's own type (NaT, NaN, None)
+            if col not in rows:
+                rows[col] = g[col].iloc[:0].reindex(range(len(rows))).to_numpy()
+        rows = rows[list(g.columns) + [x for x in rows.columns if x not in g.columns]]
+        g = pd.concat([g, rows], ignore_index=True) if len(g) else rows.reset_index(drop=True)
+        a = pd.concat([a, c.assumptions.reindex(columns=a.columns)], ignore_index=True)
+        pos = np.concatenate([pos, n_a + c.grants["assumption_row"].to_numpy(np.int64)])
+        t = c.tranches
+        extra.append(pd.DataFrame({"grant_idx": n_g + t["grant"].to_numpy(np.int64),
+                                   "vest_date": t["vest_date"].to_numpy("datetime64[D]"),
+                                   "quantity": t["quantity"].to_numpy(np.int64)}))
+    tranches = pd.concat(extra, ignore_index=True) if extra else None
+    return g, a, pos, tranches, problems, withheld
+
+
+def extension_changes(parts: LedgerParts, events, grant_pos, changes):
+    """Add the tranche changes of the extensions' own event types to the core's ``changes``."""
+    import pandas as pd
+
+    problems: list = []
+    for ext in extensions():
+        if ext.changes is None:
+            continue
+        more, probs = ext.changes(parts, events, grant_pos, changes)
+        problems += probs
+        if len(more):
+            changes = pd.concat([changes, more], ignore_index=True) if len(changes) else more.reset_index(drop=True)
+    return changes, problems

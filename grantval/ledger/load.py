@@ -13,7 +13,8 @@ from grantval.io.ledger_files import missing_table, read_ledger_files
 from grantval.io.tables import RawTable
 import grantval.ledger.validate as v
 from grantval.ledger.events import apply_events
-from grantval.ledger.extensions import LedgerParts, adjust_extensions, check_extensions
+from grantval.ledger.extensions import (LedgerParts, adjust_extensions, check_extensions, contribute_extensions,
+                                       extension_changes)
 from grantval.ledger.model import Ledger
 from grantval.ledger.parse import parse_table
 from grantval.ledger.schedule import combine_schedules, generate_tranches
@@ -120,17 +121,21 @@ def read_ledger(location, planned=None) -> tuple[Ledger | None, list[Problem]]:
         pframe["planned"] = True
         g = pd.concat([g, pframe], ignore_index=True)
         pos = np.concatenate([pos, ppos])
+    # grants the extensions synthesize from their own tables (ESPP enrollments), after the core grant checks
+    g, a, pos, own_tranches, probs, withheld = contribute_extensions(g, a, pos, frames, sources)
+    problems += probs
     problems += v.check_grant_assumptions(g, a, pos, sources["assumptions"])
 
     ok, tranches, probs = _tranches(g, frames["tranches"], sources["tranches"])
     problems += probs
+    tranches = combine_schedules(tranches, own_tranches)  # the extensions' own tranches replace generated ones
     problems += v.check_last_vest(g, tranches, sources["grants"])
 
     ev = frames["events"]
     index = {k: i for i, k in enumerate(g["grant_id"])}
     epos = np.array([index.get(k, -1) for k in ev["grant_id"]], dtype=np.int64)
     for r, k in zip(ev["_row"][epos < 0], ev["grant_id"][epos < 0]):
-        if k is not None:
+        if k is not None and k not in withheld:  # withheld: an extension already reported why (ESPP)
             problems.append(Problem(sources["events"], int(r), "grant_id", f"{k!r} is not a grant in the grants table"))
     # events are only allocated for grants whose schedule is complete
     valid = epos >= 0
@@ -144,6 +149,9 @@ def read_ledger(location, planned=None) -> tuple[Ledger | None, list[Problem]]:
         epos = np.array([index.get(k, -1) for k in ev["grant_id"]], dtype=np.int64)
         epos = np.where(epos >= 0, np.where(ok[np.maximum(epos, 0)], epos, -1), -1)
         changes, probs = apply_events(adj.grants, adj.tranches, ev, epos, sources["events"])
+    problems += probs
+    # tranche changes of the extensions' event types (ESPP withdraw)
+    changes, probs = extension_changes(LedgerParts(g, frames, sources, tranches, ok), ev, epos, changes)
     problems += probs
 
     est = frames["estimates"]

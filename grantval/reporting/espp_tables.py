@@ -1,0 +1,164 @@
+"""The purchase-plan table: one row per ESPP enrollment and purchase date, and its worksheet.
+
+Columns: the offering's terms, the shares of each purchase period at the start purchase price
+(exact and whole, with what rounding down dropped), the grant-date fair value used for cost, what
+happened by the ``through`` date (withdrawn, forfeited, cancelled, purchased, open) and the
+purchases recorded (shares bought and price paid).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+from grantval.io.xlsx.sheet import Sheet
+
+COLUMNS = (
+    "offering_id", "holder_id", "grant_id", "group", "start_date", "purchase_date", "discount", "lookback",
+    "shares_basis", "start_purchase_price", "exact_shares", "shares", "shares_dropped_by_rounding",
+    "fair_value_per_share", "grant_date_fair_value", "status", "shares_bought", "purchase_price")
+
+FORMATS = {
+    "discount": "0.00%", "start_purchase_price": "#,##0.0000", "exact_shares": "#,##0.000000",
+    "shares": "#,##0", "shares_dropped_by_rounding": "0.000000", "fair_value_per_share": "#,##0.000000",
+    "grant_date_fair_value": "#,##0.00", "shares_bought": "#,##0", "purchase_price": "#,##0.0000",
+}
+
+
+def _status(ledger, t_idx: np.ndarray, vest: np.ndarray, through) -> np.ndarray:
+    """What happened to each purchase period by ``through``."""
+    ch = ledger.changes
+    status = np.where(vest <= through, "purchase date reached", "open").astype(object)
+    if not len(ch):
+        return status
+    pos = {t: i for i, t in enumerate(t_idx)}
+    ev = ledger.events
+    kinds = ev["event_type"].to_numpy(object)
+    for t, e, d, k in zip(ch["tranche_idx"], ch["event_idx"], ch["date"].to_numpy("datetime64[D]"), ch["kind"]):
+        if t in pos and d <= through:
+            status[pos[t]] = "withdrawn" if kinds[e] == "withdraw" else {"forfeit": "forfeited"}.get(k, "cancelled")
+    return status
+
+
+def _purchases(ledger, gi: np.ndarray, vest: np.ndarray, through):
+    """Shares bought and price paid recorded by ``purchase`` events, per row (NaN where none)."""
+    ev = ledger.events
+    bought, price = np.full(len(gi), np.nan), np.full(len(gi), np.nan)
+    if not len(ev):
+        return bought, price
+    index = {k: i for i, k in enumerate(ledger.grants["grant_id"])}
+    key = {(g, v): j for j, (g, v) in enumerate(zip(gi, vest))}
+    m = (ev["event_type"] == "purchase").to_numpy()
+    for k, d, q, p in zip(ev["grant_id"][m], ev["event_date"][m].to_numpy("datetime64[D]"),
+                          ev["quantity"][m].to_numpy(float), ev["share_price"][m].to_numpy(float)):
+        j = key.get((index.get(k, -1), d))
+        if j is not None and d <= through:
+            bought[j], price[j] = q, p
+    return bought, price
+
+
+def espp_table(ledger, fair_values, through) -> pd.DataFrame:
+    """One row per ESPP enrollment and purchase date, status and purchases as of ``through``."""
+    g, tr = ledger.grants, ledger.tranches
+    through = np.datetime64(through, "D")
+    if "_espp_offering" not in g.columns:
+        return pd.DataFrame({c: [] for c in COLUMNS})
+    is_espp = (g["award_type"] == "espp").to_numpy()
+    t_all = tr["grant_idx"].to_numpy()
+    t_idx = np.flatnonzero(is_espp[t_all])
+    gi = t_all[t_idx]
+    vest = tr["vest_date"].to_numpy("datetime64[D]")[t_idx]
+    a = ledger.assumptions
+    price = a["share_price"].to_numpy(float)[ledger.grant_assumption][gi]
+    disc = g["_espp_discount"].to_numpy(float)[gi]
+    exact = g["_espp_exact_shares"].to_numpy(float)[gi]
+    shares = tr["quantity"].to_numpy(np.int64)[t_idx]
+    fv = np.asarray(fair_values.tranche_value, float)[t_idx]
+    bought, paid = _purchases(ledger, gi, vest, through)
+    frame = pd.DataFrame({
+        "offering_id": g["_espp_offering"].to_numpy(object)[gi], "holder_id": g["holder_id"].to_numpy(object)[gi],
+        "grant_id": g["grant_id"].to_numpy(object)[gi], "group": g["group"].to_numpy(object)[gi],
+        "start_date": g["grant_date"].to_numpy("datetime64[D]")[gi], "purchase_date": vest, "discount": disc,
+        "lookback": np.where(g["_espp_lookback"].to_numpy(object)[gi].astype(bool), "yes", "no"),
+        "shares_basis": g["_espp_basis"].to_numpy(object)[gi], "start_purchase_price": (1 - disc) * price,
+        "exact_shares": exact, "shares": shares,
+        "shares_dropped_by_rounding": np.maximum(exact - np.floor(np.round(exact, 9)), 0.0),
+        "fair_value_per_share": fv, "grant_date_fair_value": fv * shares,
+        "status": _status(ledger, t_idx, vest, through), "shares_bought": bought, "purchase_price": paid,
+    })
+    return frame[list(COLUMNS)]
+
+
+def espp_sheet(table: pd.DataFrame) -> Sheet:
+    """The ``purchase_plans`` worksheet of :func:`espp_table`."""
+    return Sheet("purchase_plans", frame=table, formats=FORMATS, widths={"grant_id": 24, "status": 22},
+                 text_columns=("offering_id", "holder_id", "grant_id", "group"))
+
+
+def _flows(ledger, through_lo, through_hi):
+    """Per ESPP tranche: shares withdrawn and forfeited (or cancelled) with dates in [lo, hi]."""
+    ch, tr = ledger.changes, ledger.tranches
+    n = len(tr)
+    if not len(ch):
+        return np.zeros(n, np.int64), np.zeros(n, np.int64)
+    d = ch["date"].to_numpy("datetime64[D]")
+    in_win = (d >= through_lo) & (d <= through_hi)
+    by_withdraw = ledger.events["event_type"].to_numpy(object)[ch["event_idx"].to_numpy()] == "withdraw"
+    t, q = ch["tranche_idx"].to_numpy(), ch["quantity"].to_numpy(np.int64)
+    w = np.bincount(t[in_win & by_withdraw], weights=q[in_win & by_withdraw], minlength=n).astype(np.int64)
+    f = np.bincount(t[in_win & ~by_withdraw], weights=q[in_win & ~by_withdraw], minlength=n).astype(np.int64)
+    return w, f
+
+
+def purchase_plan_activity(ledger, fair_values, start, through) -> tuple[pd.DataFrame, tuple[int, int]]:
+    """Roll-forward of ESPP purchase rights (shares at the start purchase price) from ``start`` to ``through``.
+
+    Lines: open at start, granted (enrolled), purchase date reached, withdrawn, forfeited or cancelled,
+    open at end; then shares bought (``purchase`` events) and their weighted-average price.  Returns
+    the table and the tie ``(start + granted - reached - withdrawn - forfeited, end)``.
+    """
+    start, through = np.datetime64(start, "D"), np.datetime64(through, "D")
+    g, tr = ledger.grants, ledger.tranches
+    gi = tr["grant_idx"].to_numpy()
+    espp = (g["award_type"] == "espp").to_numpy()[gi]
+    qty = tr["quantity"].to_numpy(np.int64)
+    vest = tr["vest_date"].to_numpy("datetime64[D]")
+    gdate = g["grant_date"].to_numpy("datetime64[D]")[gi]
+    early = np.datetime64("1900-01-01")
+    before = start - np.timedelta64(1, "D")
+
+    def open_at(d):
+        w, f = _flows(ledger, early, d)
+        return np.where((gdate <= d) & (vest > d), qty - w - f, 0)
+
+    w_in, f_in = _flows(ledger, start, through)
+    w_all, f_all = _flows(ledger, early, through)
+    reached = np.where((vest >= start) & (vest <= through), qty - w_all - f_all, 0)
+    granted = np.where((gdate >= start) & (gdate <= through), qty, 0)
+    o0, o1 = open_at(before), open_at(through)
+    lines = [("Open at start", o0), ("Granted (enrolled)", granted), ("Purchase date reached", reached),
+             ("Withdrawn", w_in), ("Forfeited or cancelled", f_in), ("Open at end", o1)]
+    fv = np.asarray(fair_values.tranche_value, float)
+    rows = [(name, float(np.sum(x[espp])), _wavg(fv[espp], x[espp])) for name, x in lines]
+    ev = ledger.events
+    m = ((ev["event_type"] == "purchase").to_numpy() & (ev["event_date"].to_numpy("datetime64[D]") >= start)
+         & (ev["event_date"].to_numpy("datetime64[D]") <= through)) if len(ev) else np.zeros(0, bool)
+    bought = ev["quantity"].to_numpy(float)[m] if len(ev) else np.zeros(0)
+    paid = ev["share_price"].to_numpy(float)[m] if len(ev) else np.zeros(0)
+    rows.append(("Shares bought (purchase events)", float(bought.sum()), float("nan")))
+    rows.append(("Weighted-average purchase price", _wavg(paid, bought), float("nan")))
+    frame = pd.DataFrame(rows, columns=["line", "number", "weighted_average_grant_date_fair_value"])
+    tie = (int(np.sum((o0 + granted - reached - w_in - f_in)[espp])), int(np.sum(o1[espp])))
+    return frame, tie
+
+
+def _wavg(values, weights) -> float:
+    w = np.asarray(weights, float)
+    return float(np.sum(np.asarray(values, float) * w) / w.sum()) if w.sum() > 0 else float("nan")
+
+
+def activity_sheet(frame: pd.DataFrame) -> Sheet:
+    """The ``purchase_plan_activity`` worksheet of :func:`purchase_plan_activity`."""
+    return Sheet("purchase_plan_activity", frame=frame,
+                 formats={"number": "#,##0.####", "weighted_average_grant_date_fair_value": "#,##0.000000"},
+                 widths={"line": 36})
