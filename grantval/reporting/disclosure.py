@@ -47,6 +47,7 @@ class _Tranches:
         self.gi = gi
         self.option = in_group(g["award_type"].to_numpy(), "options")[gi]
         self.performance = in_group(g["award_type"].to_numpy(), "performance_units")[gi]
+        self.units = in_group(g["award_type"].to_numpy(), "units")[gi]  # RSUs (not purchase plans or cash)
         self.qty = tr["quantity"].to_numpy(np.int64)
         self.vest = tr["vest_date"].to_numpy("datetime64[D]")
         self.grant_date = g["grant_date"].to_numpy("datetime64[D]")[gi]
@@ -133,7 +134,7 @@ def _option_activity(T: _Tranches, m, start, through, share_price):
 
 def _unit_activity(T: _Tranches, granted, forfeited, start, through):
     """Nonvested-unit roll-forward, its tie, and the units vested in the window per tranche."""
-    units = ~T.option & ~T.performance
+    units = T.units
 
     def nonvested(d):
         removed = T.moved(("forfeit", "cancel"), np.datetime64("1900-01-01"), d)
@@ -236,7 +237,7 @@ def _window_figures(ledger: Ledger, T: _Tranches, inp: ExpenseInputs, m, vested_
         ("Options exercised without an event share price (not in the intrinsic value)",
          float(np.sum(T.c_qty[ex][np.isnan(ev_price)]))),
         ("Total grant-date fair value of options vested", float(np.sum(vest_value[T.option]))),
-        ("Total grant-date fair value of RSUs vested", float(np.sum(vest_value[~T.option & ~T.performance]))),
+        ("Total grant-date fair value of RSUs vested", float(np.sum(vest_value[T.units]))),
         ("Unrecognised cost at end", total_unrec),
         ("Weighted-average remaining recognition period (years)",
          _wavg(m.remaining_years[granted_g], unrec[granted_g]) if total_unrec > 0 else 0.0),
