@@ -6,7 +6,7 @@ from typing import Annotated, Optional
 
 import typer
 
-from grantval.cli.app import app, check_outputs, echo_outputs, output_set, say, writing
+from grantval.cli.app import app, check_outputs, command_line, echo_outputs, output_set, say, writing
 from grantval.cli.options import CsvDir, Ledger, NoTimestamp, ValuationUnit, Workbook, choice
 
 
@@ -44,7 +44,7 @@ def value_cmd(
                     timestamp=not no_timestamp) as plan:
         run = api.value(ledger, valuation_unit=choice(valuation_unit), lattice_steps=lattice_steps)
         with writing(plan):
-            written = api.write_fair_values(run, output, csv_dir, timestamp=not no_timestamp)
+            written = api.write_fair_values(run, output, csv_dir, timestamp=not no_timestamp, command=command_line())
     fv = run.fair_values
     total = float(fv.table["grant_date_fair_value"].sum())
     say(f"grants read {run.ledger.n_grants}, valued {fv.table['grant_id'].nunique()} "

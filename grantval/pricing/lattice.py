@@ -50,6 +50,8 @@ from grantval.pricing.bsm import _bsm
 #: total time steps used when ``steps`` is None; with Richardson extrapolation
 #: this meets the accuracy documented in DEVELOPERS.md (see tests/pricing/test_lattice*.py).
 DEFAULT_STEPS = 256
+#: vesting periods shorter than this (years, about 0.4 day) are valued as no vesting period
+MIN_VESTING = 1e-3
 #: smallest accepted explicit ``steps`` (the extrapolation needs steps // 2 >= 2)
 MIN_STEPS = 4
 #: largest accepted explicit ``steps`` (work grows as steps squared)
@@ -225,6 +227,9 @@ def lattice_value(
             f"range it must span would overflow); got volatility {float(np.ravel(sigma)[bad])!r} "
             f"with term {float(np.ravel(t)[bad])!r}"
         )
+    # a vesting period shorter than MIN_VESTING (well under a day: ledger dates give 0 or at least one
+    # day) is valued as none; the vesting-date integral is not reliable for a near-zero spread
+    v = np.where(v < MIN_VESTING, 0.0, v)
     n = DEFAULT_STEPS if steps is None else _check_steps(steps)
     shape = s.shape
     flat = [np.ravel(a) for a in (s, k, t, r, sigma, q, v, mult, lam, lam_pre)]

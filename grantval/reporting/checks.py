@@ -33,8 +33,9 @@ def checks_sheet(rows: list[CheckRow]) -> Sheet:
                     Formula(f'=IF(ABS(D{r})<=E{r},"PASS","FAIL")'), "PASS" if c.tool_pass else "FAIL"])
         for j in (1, 2, 3):
             fmts[(i + 1, j)] = "#,##0.00########"
-        fmts[(i + 1, 4)] = "0.00E+00"
-    return Sheet("checks", rows=out, widths={1: 70, 2: 20, 3: 20, 4: 14, 5: 12, 6: 10, 7: 14}, row_formats=fmts)
+        fmts[(i + 1, 4)] = "#,##0.00########"
+    return Sheet("checks", rows=out, widths={1: 70, 2: 20, 3: 20, 4: 14, 5: 12, 6: 10, 7: 14}, row_formats=fmts,
+                 verdicts=f"F2:G{len(rows) + 1}")
 
 
 def _bsm_by_erf(s, k, t, r, v, q) -> np.ndarray:

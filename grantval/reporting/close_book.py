@@ -215,4 +215,4 @@ def write_close_book(result, path: pathlib.Path, command: str, timestamp: bool) 
                     ("register", str(plan.register)), ("close id", str(result.close_id)),
                     ("register head digest", result.head_digest)],
                    plan.run.policy.describe(), timestamp)
-    write_workbook(path, close_sheets(result, info), fixed_time=info.workbook_time())
+    write_workbook(path, close_sheets(result, info), fixed_time=info.workbook_time(), footer=info.footer())

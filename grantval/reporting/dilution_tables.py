@@ -114,7 +114,7 @@ def write_dilution_book(run, xlsx: pathlib.Path, totals, by_grant, checks, comma
         checks_sheet(rows),
         notes_sheet(DILUTION_NOTES, run.ledger.warnings),
     ]
-    write_workbook(xlsx, sheets, fixed_time=info.workbook_time())
+    write_workbook(xlsx, sheets, fixed_time=info.workbook_time(), footer=info.footer())
 
 
 DILUTION_NOTES = [

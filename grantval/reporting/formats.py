@@ -14,7 +14,7 @@ FORMATS = {
     "exercise_price": "#,##0.00", "share_price": "#,##0.00", "volatility": "0.00%", "risk_free_rate": "0.000%",
     "dividend_yield": "0.00%", "post_vest_exit_rate": "0.00%", "contractual_term_years": "0.0000",
     "expected_term_years": "0.0000", "fair_value_per_unit": UNIT, "grant_date_fair_value": MONEY,
-    "tool_fair_value_per_unit": "0.000000", "recomputed_fair_value_per_unit": "0.000000", "difference": "0.00E+00",
+    "tool_fair_value_per_unit": "0.000000", "recomputed_fair_value_per_unit": "0.000000", "difference": "0.000000000",
     "quantity": "#,##0", "quantity_granted": "#,##0", "forfeited": "#,##0", "cancelled_unvested": "#,##0",
     "quantity_expensed": "#,##0.00", "service_elapsed": "0.00%", "recognised_to_date": MONEY,
     "unrecognised_cost": MONEY, "remaining_years": "0.00", "total": MONEY, "grant_date": "yyyy-mm-dd",

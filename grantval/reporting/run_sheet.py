@@ -21,6 +21,13 @@ class RunInfo:
     policies: list[tuple[str, str]]
     timestamp: bool = True
 
+    def footer(self) -> str:
+        """The run's identity for printed pages: tool version, command and a digest of the input files."""
+        import hashlib
+
+        digest = hashlib.sha256("".join(sorted(d for _, d in self.files)).encode()).hexdigest()[:12]
+        return f"grantval {__version__} | {self.title.split(':')[0]} | inputs SHA-256 {digest}"
+
     def workbook_time(self) -> _dt.datetime:
         return _dt.datetime.now().replace(microsecond=0) if self.timestamp else FIXED_TIME
 

@@ -50,5 +50,5 @@ def write_assumptions(derived, csv_path: pathlib.Path, xlsx: pathlib.Path | None
                 "expected_term_years": "0.0000"}
         sheets = [run_sheet(info, info.workbook_time()), Sheet("assumptions", frame=derived.table, formats=fmts),
                   notes_sheet(MARKET_NOTES, [])]
-        write_workbook(pathlib.Path(xlsx), sheets, fixed_time=info.workbook_time())
+        write_workbook(pathlib.Path(xlsx), sheets, fixed_time=info.workbook_time(), footer=info.footer())
     return outputs

@@ -89,5 +89,5 @@ def write_disclosure(run: DisclosureRun, xlsx: pathlib.Path | None, csv_dir: pat
                        run.policy.describe(), timestamp)
         sheets = [run_sheet(info, info.workbook_time()), *disclosure_sheets(d), checks_sheet(checks),
                   notes_sheet([], run.ledger.warnings)]
-        write_workbook(pathlib.Path(xlsx), sheets, fixed_time=info.workbook_time())
+        write_workbook(pathlib.Path(xlsx), sheets, fixed_time=info.workbook_time(), footer=info.footer())
     return ExpenseOutputs(outputs, checks)

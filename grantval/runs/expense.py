@@ -120,7 +120,7 @@ def _write_book(run: ExpenseRun, xlsx, tables: dict, disc, checks, command, time
     if tables.get("liability_sheets"):
         at = next(i for i, sh in enumerate(sheets) if sh.name == "checks")
         sheets[at:at] = tables["liability_sheets"]
-    write_workbook(pathlib.Path(xlsx), sheets, fixed_time=info.workbook_time())
+    write_workbook(pathlib.Path(xlsx), sheets, fixed_time=info.workbook_time(), footer=info.footer())
 
 
 def _modification_sheets(run: ExpenseRun) -> list:

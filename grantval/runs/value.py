@@ -49,7 +49,7 @@ def value(location, *, valuation_unit: str | None = None, lattice_steps: int | N
 
 
 def write_fair_values(run: ValueRun, xlsx: pathlib.Path | None, csv_dir: pathlib.Path | None,
-                      timestamp: bool = True) -> list[pathlib.Path]:
+                      timestamp: bool = True, command: str = "") -> list[pathlib.Path]:
     """Write the fair-value table to a workbook and/or ``fair_values.csv``; returns the paths written."""
     from grantval.reporting.value_book import value_sheets
 
@@ -64,7 +64,10 @@ def write_fair_values(run: ValueRun, xlsx: pathlib.Path | None, csv_dir: pathlib
         pathlib.Path(csv_dir).mkdir(parents=True, exist_ok=True)
         write_csv(csv_path, run.fair_values.table)
     if xlsx is not None:
-        from grantval.io.xlsx.sheet import FIXED_TIME
+        from grantval.reporting.run_sheet import RunInfo, run_sheet
 
-        write_workbook(pathlib.Path(xlsx), value_sheets(run), fixed_time=None if timestamp else FIXED_TIME)
+        info = RunInfo("grantval value: grant-date fair values", command or "(Python API)", run.ledger.location,
+                       run.ledger.files, [], run.policy.describe(), timestamp)
+        write_workbook(pathlib.Path(xlsx), [run_sheet(info, info.workbook_time()), *value_sheets(run)],
+                       fixed_time=info.workbook_time(), footer=info.footer())
     return outputs

@@ -92,5 +92,5 @@ def write_whatif(run, xlsx: pathlib.Path | None, csv_dir: pathlib.Path | None, c
                        run.policy.describe(), timestamp)
         sheets = whatif_sheets(info, t["scen"], t["sens"], t["torn"], t["fvs"], t["exp"], t["greeks"], t["curve"],
                                run.ledger.warnings)
-        write_workbook(pathlib.Path(xlsx), sheets, fixed_time=info.workbook_time())
+        write_workbook(pathlib.Path(xlsx), sheets, fixed_time=info.workbook_time(), footer=info.footer())
     return outputs

@@ -83,6 +83,8 @@ class Sheet:
     text_columns: tuple[str, ...] = ()
     charts: list = field(default_factory=list)
     row_formats: dict = field(default_factory=dict)  # rows sheets: (row index, column index) -> number format
+    #: cells holding PASS/FAIL verdicts (for example ``F2:G20``), coloured green and red
+    verdicts: str | None = None
 
 
 def label(column: str) -> str:

@@ -40,99 +40,160 @@ def _cell_value(v):
     return v
 
 
-def write_workbook(path: pathlib.Path, sheets: Sequence[Sheet], fixed_time: _dt.datetime | None = None) -> None:
+def _frame_sheet(ws, sh: Sheet, index: int, big: dict) -> None:
+    """A table sheet: widths, frozen and filtered header, then the rows (long tables finished by bigsheet)."""
+    from openpyxl.cell import WriteOnlyCell
+    from openpyxl.styles import Alignment, Border, Font, Side
+    from openpyxl.utils import get_column_letter
+
+    bold, top = Font(bold=True), Border(top=Side(style="thin"))
+    cols = list(sh.frame.columns)
+    if len(cols) > EXCEL_COLUMNS:
+        raise OutputError(f"the sheet {sh.name} would have {len(cols):,} columns, more than Excel's "
+                          f"{EXCEL_COLUMNS:,}; use fewer periods (a longer --period) or --csv-dir")
+    for j, c in enumerate(cols, start=1):
+        width = sh.widths.get(c, max(10, min(40, len(sh.labels.get(c, label(c))) + 2)))
+        ws.column_dimensions[get_column_letter(j)].width = width
+    ws.freeze_panes = "A2"
+    if len(sh.frame):
+        ws.auto_filter.ref = f"A1:{get_column_letter(len(cols))}{len(sh.frame) + 1}"
+    header = []
+    for c in cols:
+        cell = WriteOnlyCell(ws, value=sh.labels.get(c, label(c)))
+        cell.font = bold
+        cell.alignment = Alignment(wrap_text=True, vertical="top")
+        header.append(cell)
+    ws.append(header)
+    frame = sh.frame
+    if len(frame) > FAST_ROWS:
+        big[f"xl/worksheets/sheet{index + 1}.xml"] = frame
+        frame = frame.iloc[:1]
+    values = [_column_values(frame[c]) for c in cols]
+    fmts = [sh.formats.get(c) for c in cols]
+    texts = [c in sh.text_columns for c in cols]
+    for row in zip(*values):
+        total = any(isinstance(v, str) and v == "Total" for v in row)
+        out = [_frame_cell(ws, v, fmt, is_text) for v, fmt, is_text in zip(row, fmts, texts)]
+        if total:  # a totals row: bold, with a rule above
+            out = [c if hasattr(c, "font") else WriteOnlyCell(ws, value=c) for c in out]
+            for c in out:
+                c.font, c.border = bold, top
+        ws.append(out)
+
+
+def _frame_cell(ws, v, fmt, is_text):
+    """One cell of a table row: formulas as formulas, ledger text as text, numbers with their format."""
+    from openpyxl.cell import WriteOnlyCell
+
+    v = _cell_value(v)
+    if isinstance(v, Formula):
+        cell = WriteOnlyCell(ws, value=str(v))
+        if fmt:
+            cell.number_format = fmt
+        return cell
+    if isinstance(v, str) or is_text:
+        cell = WriteOnlyCell(ws, value=None if v is None else str(v))
+        if v is not None:
+            cell.data_type = "s"  # never a formula
+        return cell
+    if fmt:
+        cell = WriteOnlyCell(ws, value=v)  # a styled cell even when empty
+        cell.number_format = fmt
+        return cell
+    return v
+
+
+def _rows_sheet(ws, sh: Sheet) -> None:
+    """A free-form sheet (notes, summaries, checks): rows as given, the first bold."""
+    from openpyxl.cell import WriteOnlyCell
+    from openpyxl.styles import Font
+    from openpyxl.utils import get_column_letter
+
+    bold = Font(bold=True)
+    for j, w in sh.widths.items():
+        if isinstance(j, int):
+            ws.column_dimensions[get_column_letter(j)].width = w
+    for i, row in enumerate(sh.rows):
+        out = []
+        for j, v in enumerate(row):
+            v = _cell_value(v)
+            fmt = sh.row_formats.get((i, j))
+            if isinstance(v, Formula):
+                cell = WriteOnlyCell(ws, value=str(v))
+            elif isinstance(v, str):
+                cell = WriteOnlyCell(ws, value=v)
+                cell.data_type = "s"
+                if i == 0 or (isinstance(row[0], str) and row[0] == "Total"):
+                    cell.font = bold
+            elif fmt is not None and v is not None:
+                cell = WriteOnlyCell(ws, value=v)
+            else:
+                out.append(v)
+                continue
+            if fmt:
+                cell.number_format = fmt
+            out.append(cell)
+        ws.append(out)
+
+
+def _page_setup(ws, sh: Sheet, footer: str) -> None:
+    """Print set-up: landscape where wide, one page wide, header row repeated, a footer with the run and pages."""
+    n_cols = len(sh.frame.columns) if sh.frame is not None else max((len(r) for r in sh.rows or [[]]), default=1)
+    ws.page_setup.orientation = "landscape" if n_cols > 6 or sh.rows is not None and n_cols > 3 else "portrait"
+    ws.page_setup.paperSize = "9"  # A4
+    ws.page_setup.fitToWidth = 1
+    ws.page_setup.fitToHeight = 0
+    ws.sheet_properties.pageSetUpPr.fitToPage = True
+    ws.print_options.gridLines = sh.frame is not None
+    ws.page_margins.left = ws.page_margins.right = 0.4
+    if sh.frame is not None:
+        ws.print_title_rows = "1:1"
+    ws.oddFooter.left.text = footer.replace("&", "&&")
+    ws.oddFooter.left.size = 8
+    ws.oddFooter.right.text = "&A, page &P of &N"
+    ws.oddFooter.right.size = 8
+    if sh.verdicts is not None:
+        _colour_verdicts(ws, sh.verdicts)
+
+
+def _colour_verdicts(ws, ref: str) -> None:
+    """PASS green, FAIL red, in the cells ``ref`` (conditional formats, so recalculated verdicts colour too)."""
+    from openpyxl.formatting.rule import CellIsRule
+    from openpyxl.styles import Font, PatternFill
+
+    ws.conditional_formatting.add(ref, CellIsRule(operator="equal", formula=['"PASS"'], font=Font(color="006100"),
+                                                  fill=PatternFill("solid", fgColor="C6EFCE")))
+    ws.conditional_formatting.add(ref, CellIsRule(operator="equal", formula=['"FAIL"'], font=Font(color="9C0006"),
+                                                  fill=PatternFill("solid", fgColor="FFC7CE")))
+
+
+def write_workbook(path: pathlib.Path, sheets: Sequence[Sheet], fixed_time: _dt.datetime | None = None,
+                   footer: str | None = None) -> None:
     """Write ``sheets`` to an .xlsx workbook atomically (openpyxl write-only mode).
 
-    ``fixed_time`` sets the workbook's created/modified properties (for
-    reproducible files); default is the current time.
+    ``fixed_time`` sets the workbook's created/modified properties (for reproducible files);
+    default is the current time.  ``footer`` is printed at the foot of every page (the run's
+    identity: tool version, ledger digest), beside the sheet name and page numbers.
     """
     from openpyxl import Workbook
-    from openpyxl.cell import WriteOnlyCell
-    from openpyxl.styles import Alignment, Font
-    from openpyxl.utils import get_column_letter
+
+    from grantval import __version__
 
     wb = Workbook(write_only=True)
     stamp = fixed_time or _dt.datetime.now().replace(microsecond=0)
     wb.properties.created = stamp
     wb.properties.modified = stamp
     wb.properties.creator = "grantval"
-    bold = Font(bold=True)
     big: dict[str, pd.DataFrame] = {}
     for index, sh in enumerate(_split_long(sheets)):
         ws = wb.create_sheet(sh.name)
         if sh.frame is not None:
-            cols = list(sh.frame.columns)
-            if len(cols) > EXCEL_COLUMNS:
-                raise OutputError(f"the sheet {sh.name} would have {len(cols):,} columns, more than Excel's "
-                                  f"{EXCEL_COLUMNS:,}; use fewer periods (a longer --period) or --csv-dir")
-            for j, c in enumerate(cols, start=1):
-                width = sh.widths.get(c, max(10, min(40, len(sh.labels.get(c, label(c))) + 2)))
-                ws.column_dimensions[get_column_letter(j)].width = width
-            ws.freeze_panes = "A2"
-            if len(sh.frame):
-                ws.auto_filter.ref = f"A1:{get_column_letter(len(cols))}{len(sh.frame) + 1}"
-            header = []
-            for c in cols:
-                cell = WriteOnlyCell(ws, value=sh.labels.get(c, label(c)))
-                cell.font = bold
-                cell.alignment = Alignment(wrap_text=True, vertical="top")
-                header.append(cell)
-            ws.append(header)
-            frame = sh.frame
-            if len(frame) > FAST_ROWS:
-                big[f"xl/worksheets/sheet{index + 1}.xml"] = frame
-                frame = frame.iloc[:1]
-            values = [_column_values(frame[c]) for c in cols]
-            fmts = [sh.formats.get(c) for c in cols]
-            texts = [c in sh.text_columns for c in cols]
-            for row in zip(*values):
-                out = []
-                for v, fmt, is_text in zip(row, fmts, texts):
-                    v = _cell_value(v)
-                    if isinstance(v, Formula):
-                        cell = WriteOnlyCell(ws, value=str(v))
-                        if fmt:
-                            cell.number_format = fmt
-                        out.append(cell)
-                    elif isinstance(v, str) or is_text:
-                        cell = WriteOnlyCell(ws, value=None if v is None else str(v))
-                        if v is not None:
-                            cell.data_type = "s"  # never a formula
-                        out.append(cell)
-                    elif fmt:
-                        cell = WriteOnlyCell(ws, value=v)  # a styled cell even when empty
-                        cell.number_format = fmt
-                        out.append(cell)
-                    else:
-                        out.append(v)
-                ws.append(out)
+            _frame_sheet(ws, sh, index, big)
         if sh.rows is not None:
-            for j, w in sh.widths.items():
-                if isinstance(j, int):
-                    ws.column_dimensions[get_column_letter(j)].width = w
-            for i, row in enumerate(sh.rows):
-                out = []
-                for j, v in enumerate(row):
-                    v = _cell_value(v)
-                    fmt = sh.row_formats.get((i, j))
-                    if isinstance(v, Formula):
-                        cell = WriteOnlyCell(ws, value=str(v))
-                    elif isinstance(v, str):
-                        cell = WriteOnlyCell(ws, value=v)
-                        cell.data_type = "s"
-                        if i == 0:
-                            cell.font = bold
-                    elif fmt is not None and v is not None:
-                        cell = WriteOnlyCell(ws, value=v)
-                    else:
-                        out.append(v)
-                        continue
-                    if fmt:
-                        cell.number_format = fmt
-                    out.append(cell)
-                ws.append(out)
+            _rows_sheet(ws, sh)
         for ch in sh.charts:
             ws.add_chart(_build_chart(ch, wb, ws), ch.anchor)
+        _page_setup(ws, sh, footer or f"grantval {__version__}")
     with atomic_path(path) as tmp:
         wb.save(tmp)
         _normalise_zip(tmp, stamp, big)
