@@ -187,13 +187,13 @@ def write_workbook(path: pathlib.Path, sheets: Sequence[Sheet], fixed_time: _dt.
     big: dict[str, pd.DataFrame] = {}
     for index, sh in enumerate(_split_long(sheets)):
         ws = wb.create_sheet(sh.name)
+        _page_setup(ws, sh, footer or f"grantval {__version__}")  # before the rows: the sheet's head is streamed first
         if sh.frame is not None:
             _frame_sheet(ws, sh, index, big)
         if sh.rows is not None:
             _rows_sheet(ws, sh)
         for ch in sh.charts:
             ws.add_chart(_build_chart(ch, wb, ws), ch.anchor)
-        _page_setup(ws, sh, footer or f"grantval {__version__}")
     with atomic_path(path) as tmp:
         wb.save(tmp)
         _normalise_zip(tmp, stamp, big)
