@@ -54,7 +54,7 @@ def test_value_writes_workbook_and_csv(tmp_path):
         rows = list(csv.DictReader(fh))
     assert {"grant_id", "fair_value_per_unit", "grant_date_fair_value"} <= set(rows[0])
     wb = openpyxl.load_workbook(out, read_only=True)
-    assert wb.sheetnames == ["fair_values", "notes"]
+    assert wb.sheetnames == ["run", "fair_values", "notes"]  # every workbook has a run sheet
     notes = [c for row in wb["notes"].iter_rows(values_only=True) for c in row if c]
     assert any("qualified accounting staff" in str(c) for c in notes)
 
