@@ -65,6 +65,19 @@ def _planned_table(path) -> RawTable:
     return t
 
 
+def _typed_tables(raw) -> tuple[dict[str, pd.DataFrame], dict[str, str], list[Problem]]:
+    """Every table of the format typed (empty when absent), how problems name each, and the typing problems."""
+    frames: dict[str, pd.DataFrame] = {}
+    sources: dict[str, str] = {}
+    problems: list[Problem] = []
+    for name, cols in TABLES.items():
+        table = raw.tables.get(name) or _empty(name)
+        frames[name], probs = parse_table(table, cols)
+        sources[name] = table.source
+        problems.extend(probs)
+    return frames, sources, problems
+
+
 def read_ledger(location, planned=None) -> tuple[Ledger | None, list[Problem]]:
     """Read and check a ledger; never raises for problems in the data.
 
@@ -86,14 +99,8 @@ def read_ledger(location, planned=None) -> tuple[Ledger | None, list[Problem]]:
     if any(p.severity == "error" for p in problems) and not raw.tables:
         return None, problems
 
-    frames: dict[str, pd.DataFrame] = {}
-    sources: dict[str, str] = {}
-    for name, cols in TABLES.items():
-        table = raw.tables.get(name) or _empty(name)
-        frame, probs = parse_table(table, cols)
-        frames[name] = frame
-        sources[name] = table.source
-        problems.extend(probs)
+    frames, sources, probs = _typed_tables(raw)
+    problems += probs
 
     g = v.fill_grant_defaults(frames["grants"])
     a = frames["assumptions"]
