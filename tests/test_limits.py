@@ -55,3 +55,12 @@ def test_whatif_window_without_grants_warns(tmp_path):
     r = run("whatif", write_ledger(tmp_path / "l", BASE), "--vary", "volatility=+0.05", "--grants-from", "2099-01-01",
             "--csv-dir", tmp_path / "o")
     assert r.exit_code == 0 and "nothing was re-valued" in r.output
+
+
+def test_share_price_option_is_bounded_and_finite(tmp_path):
+    # robustness issue, item 8: -5, nan, inf and 1e308 were accepted
+    led = write_ledger(tmp_path / "l", BASE)
+    for bad in ("-5", "nan", "inf", "1e308"):
+        r = run("expense", led, "--through", "2028-12-31", "--csv-dir", tmp_path / "o", f"--share-price={bad}")
+        assert r.exit_code == 2 and "--share-price" in r.output, r.output
+        assert not (tmp_path / "o").exists()

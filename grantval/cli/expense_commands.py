@@ -41,9 +41,10 @@ def expense_cmd(
 
     if no_workbook and (output is not None or csv_dir is None):
         usage("--no-workbook goes with --csv-dir and without -o")
-    from grantval.runs.expense import CSV_NAMES
+    from grantval.runs.expense import CSV_NAMES, check_share_price
 
     check_outputs(output, csv_dir)
+    check_share_price(share_price)
     names = CSV_NAMES + ["liabilities.csv", "deferred_tax.csv", "tax_rollforward.csv", "tax_journal.csv"] + (
         ["booked_vs_recomputed.csv"] if register is not None else [])
     with output_set({"-o": output}, {"--csv-dir": (csv_dir, names)}, inputs=[ledger, register], ledgers=[ledger],

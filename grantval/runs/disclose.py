@@ -39,8 +39,9 @@ def disclose(location, *, start, through, share_price: float | None = None, peri
         raise UsageError("give both {start} and {through}", ("start", "through"))
     if s > t:
         raise UsageError(f"{{start}} {s} is after {{through}} {t}", ("start", "through"))
-    if share_price is not None and not share_price > 0:
-        raise UsageError(f"{{share_price}} must be greater than zero; got {share_price}", ("share_price",))
+    from grantval.runs.expense import check_share_price
+
+    check_share_price(share_price)
     ledger = load_ledger(location)
     policy = resolve_policy(ledger.policy_values, period=period, standard=standard, attribution=attribution,
                             forfeitures=forfeitures)

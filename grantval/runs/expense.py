@@ -123,6 +123,28 @@ def _write_book(run: ExpenseRun, xlsx, tables: dict, disc, checks, command, time
     write_workbook(pathlib.Path(xlsx), sheets, fixed_time=info.workbook_time(), footer=info.footer())
 
 
+def _espp_sheets(run: ExpenseRun) -> list:
+    """The purchase-plan table and activity (none when the ledger has no offerings)."""
+    from grantval.reporting import espp_tables as E
+
+    if not (run.ledger.grants["award_type"] == "espp").any():
+        return []
+    activity, _ = E.purchase_plan_activity(run.ledger, run.fair_values, run.start, run.through)
+    return [E.espp_sheet(E.espp_table(run.ledger, run.fair_values, run.through)), E.activity_sheet(activity)]
+
+
+def _espp_check(run: ExpenseRun) -> list:
+    """The purchase-plan roll-forward tie (flows against the end balance counted on its own)."""
+    from grantval.reporting import espp_tables as E
+    from grantval.reporting.checks import CheckRow
+
+    if not (run.ledger.grants["award_type"] == "espp").any():
+        return []
+    _, (a, b) = E.purchase_plan_activity(run.ledger, run.fair_values, run.start, run.through)
+    return [CheckRow("Purchase-plan roll-forward: start + granted - reached - withdrawn - forfeited = end", a, b, 0,
+                     a == b)]
+
+
 def _modification_sheets(run: ExpenseRun) -> list:
     """Each modification's terms, fair values and incremental cost (none when the ledger has none)."""
     from grantval.reporting.modification_tables import modification_sheets
@@ -140,6 +162,15 @@ def _wide_tables(run: ExpenseRun) -> tuple:
     forecast = T.wide_by_grant(inp, award, run.fair_values.grant_value, qty, sched.forecast_ends,
                                sched.forecast_cents)
     return by_grant, forecast
+
+
+def check_share_price(share_price) -> None:
+    """A share price for intrinsic values must be a positive, finite price within the limits."""
+    from grantval import plausibility
+    from grantval.errors import UsageError
+
+    if share_price is not None and bool(plausibility.bad("share_price", share_price) | (share_price != share_price)):
+        raise UsageError(f"{{share_price}} {share_price} {plausibility.LIMITS['share_price'].words}", ("share_price",))
 
 
 def write_expense(run: ExpenseRun, xlsx: pathlib.Path | None, csv_dir: pathlib.Path | None,
@@ -161,6 +192,7 @@ def write_expense(run: ExpenseRun, xlsx: pathlib.Path | None, csv_dir: pathlib.P
 
     from grantval.reporting import liability_tables as LT
 
+    check_share_price(share_price)
     inp, sched = run.inputs, run.schedule
     from grantval.reporting import tax_tables as TX
     from grantval.runs.tax import tax_effects
@@ -186,7 +218,7 @@ def write_expense(run: ExpenseRun, xlsx: pathlib.Path | None, csv_dir: pathlib.P
         checks = C.expense_checks(run, figures, tranches, unrec, disc, recomputed_column(run.fair_values.table))
         checks += LT.liability_checks(run, lf) if lf is not None else []
         tax_sheets, tax_checks = TX.tax_sheets(inp, tax) if tax is not None else ([], [])
-        checks += tax_checks
+        checks += tax_checks + _espp_check(run)
     with stage("write csv"):
         if paths:
             _write_csvs(run, paths, by_group, group_sums, tranches, unrec,
@@ -196,6 +228,6 @@ def write_expense(run: ExpenseRun, xlsx: pathlib.Path | None, csv_dir: pathlib.P
             tables = dict(by_grant=by_grant, by_group=by_group, tranches=tranches, unrec=unrec,
                           unrec_total=unrec_total, unrec_wa=unrec_wa, forecast=forecast,
                           liability_sheets=(LT.liability_sheets(run, lf) if lf is not None else []) + tax_sheets
-                          + _modification_sheets(run))
+                          + _modification_sheets(run) + _espp_sheets(run))
             _write_book(run, xlsx, tables, disc, checks, command, timestamp, share_price)
     return ExpenseOutputs(outputs, checks)
