@@ -127,9 +127,11 @@ def resolve_policy(ledger_values: dict | None = None, **overrides) -> Policy:
         For a value outside its choices or a combination IFRS 2 does not allow.
     """
     explicit = dict(ledger_values or {})
+    origin = {k: "the ledger's policy table" for k in explicit}
     for k, v in overrides.items():
         if v is None:
             continue
+        origin[k] = f"the option {{{k}}}"
         if k == "lattice_steps":
             from grantval.pricing.lattice import MAX_STEPS
 
@@ -140,13 +142,17 @@ def resolve_policy(ledger_values: dict | None = None, **overrides) -> Policy:
             raise UsageError(f"{{{k}}} must be one of: {', '.join(_CHOICES[k])}; got {v!r}", (k,))
         explicit[k] = v
     if explicit.get("standard") == "ifrs2":
+        where = lambda k: f"{k} {explicit[k]} came from {origin[k]}"  # noqa: E731
+        names = tuple(k for k in ("standard", "attribution", "forfeitures") if k in overrides)
         if explicit.get("attribution", "graded") != "graded":
             raise UsageError(
                 "IFRS 2 requires graded attribution (IFRS 2.IG11: each tranche is recognised over its "
-                "own vesting period); straight-line cannot be combined with the ifrs2 standard")
+                "own vesting period); straight-line cannot be combined with the ifrs2 standard: "
+                f"{where('standard')}, {where('attribution')}", names)
         if explicit.get("forfeitures", "estimate") != "estimate":
             raise UsageError(
                 "IFRS 2 requires estimated forfeitures (IFRS 2.20: recognise the number of instruments "
-                "expected to vest, revised as estimates change); as-occur cannot be combined with the ifrs2 standard")
+                "expected to vest, revised as estimates change); as-occur cannot be combined with the ifrs2 standard: "
+                f"{where('standard')}, {where('forfeitures')}", names)
         explicit.update(attribution="graded", forfeitures="estimate")
     return replace(Policy(), **explicit)

@@ -64,3 +64,13 @@ def test_share_price_option_is_bounded_and_finite(tmp_path):
         r = run("expense", led, "--through", "2028-12-31", "--csv-dir", tmp_path / "o", f"--share-price={bad}")
         assert r.exit_code == 2 and "--share-price" in r.output, r.output
         assert not (tmp_path / "o").exists()
+
+
+def test_conflicting_ifrs2_settings_name_where_each_came_from(tmp_path):
+    # close-ready issue, item 8: the ledger's policy table said straight-line, the option said ifrs2
+    data = dict(BASE, policy=[{"key": "attribution", "value": "straight-line"}])
+    r = run("expense", write_ledger(tmp_path / "l", data), "--through", "2028-12-31", "--standard", "ifrs2",
+            "--csv-dir", tmp_path / "o")
+    assert r.exit_code == 2
+    assert "standard ifrs2 came from the option --standard" in r.output
+    assert "attribution straight-line came from the ledger's policy table" in r.output
