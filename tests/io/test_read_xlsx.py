@@ -291,3 +291,14 @@ def test_office_escapes_are_decoded(tmp_path, written, read):
     rezip(path, lambda parts: parts.update({part: parts[part].replace(b"<t>G1</t>", f"<t>{written}</t>".encode())}))
     tables, problems = R.read_xlsx(path, ("grants",))
     assert tables["grants"].cells[0][0] == read
+
+
+def test_saved_values_are_shown_as_a_person_types_them():
+    # close-ready issue, item 6: warnings showed datetime.date(2033, 3, 14)
+    import datetime as dt
+
+    from grantval.io.xlsx.read import _as_typed
+
+    assert _as_typed(dt.datetime(2033, 3, 14)) == "2033-03-14"
+    assert _as_typed(dt.date(2033, 3, 14)) == "2033-03-14"
+    assert _as_typed(0.008) == "0.008"

@@ -153,7 +153,7 @@ def _sheet_problems(table: RawTable, found: _SheetRead) -> list[Problem]:
                                     "value; enter the value itself, or open and save the workbook in Excel first"))
         else:
             problems.append(Problem(src, number, name, f"the cell holds a formula ({formula[:40]}); its saved value "
-                                    f"{saved!r} was used", "warning"))
+                                    f"{_as_typed(saved)} was used", "warning"))
     if found.beyond:
         problems.append(Problem(src, None, None, f"cells beyond column {get_column_letter(limits.MAX_COLUMNS)} hold "
                                 f"values ({', '.join(found.beyond[:5])}); a table has at most "
@@ -277,3 +277,16 @@ def _read_xlsx(path: pathlib.Path, names, known: dict):
     finally:
         wb.close()
     return tables, problems, found
+
+
+def _as_typed(value) -> str:
+    """A cell value as a person types it: ISO dates, plain numbers, quoted text."""
+    import datetime as _dt
+
+    if isinstance(value, _dt.datetime):
+        return value.date().isoformat() if value.time() == _dt.time() else value.isoformat(sep=" ")
+    if isinstance(value, _dt.date):
+        return value.isoformat()
+    if isinstance(value, (int, float)):
+        return f"{value:g}"
+    return repr(value)
