@@ -192,7 +192,12 @@ def derive_assumptions(prices, curve, *, dates=None, ledger=None, dividends=None
                             lambda t: "" if (t == own_ticker or (t == "" and not own_ticker)) else t)
     problems += probs
     if "" not in series:
-        problems.append(Problem(psrc, None, "ticker", "no closes of the company's own shares (blank ticker, or --ticker)"))
+        named = sorted(t for t in series if t)
+        hint = (f"; the file holds closes of {', '.join(named[:8])}{' ...' if len(named) > 8 else ''}: name the "
+                "company's own with --ticker" if named else "")
+        problems.append(Problem(psrc, None, "ticker", "no closes of the company's own shares (rows with a blank "
+                                f"ticker, or the ticker given with --ticker{' ' + repr(opt.ticker) if opt.ticker else ''})"
+                                + hint))
     curve_rows, probs, csrc, units = _curve(curve, opt.curve_units)
     problems += probs
     divs = None
@@ -236,7 +241,32 @@ def derive_assumptions(prices, curve, *, dates=None, ledger=None, dividends=None
     if any(p.severity == "error" for p in problems):
         raise LedgerError(problems, "market data")
     table = pd.DataFrame(rows)
+    if ledger is not None:
+        table = _with_named_sets(table, ledger)
     return Derived(table, [("curve units", units), ("frequency", opt.frequency), ("lookback", str(opt.lookback))])
+
+
+def _with_named_sets(table: pd.DataFrame, ledger) -> pd.DataFrame:
+    """The ledger's named assumption sets, kept unchanged after the derived rows.
+
+    A grant that names an ``assumption_set`` does not use the grant-date row, so its set must stay
+    in the table for the result to be accepted unchanged as the ledger's ``assumptions``.
+    """
+    from grantval.io.ledger_files import read_ledger_files
+
+    raw = read_ledger_files(ledger, ("assumptions",)).tables.get("assumptions")
+    if raw is None or "assumption_set" not in raw.headers:
+        return table
+    rows = [dict(zip(raw.headers, cells)) for cells in raw.cells]
+    kept = [r for r in rows if r.get("assumption_set") not in (None, "")]
+    if not kept:
+        return table
+    extra = pd.DataFrame(kept).astype(object)
+    extra = extra[[c for c in extra.columns if not c.startswith("source_")]]
+    extra["source_note"] = "named assumption set kept from the ledger unchanged"
+    if "assumption_set" not in table.columns:
+        table.insert(0, "assumption_set", "")
+    return pd.concat([table.astype(object), extra], ignore_index=True)
 
 
 def _dates_terms(dates, opt: MarketOptions):

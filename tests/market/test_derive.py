@@ -26,7 +26,8 @@ def _derive(**kw):
 
 def test_sample_dates_and_provenance():
     d = _derive(ledger=SAMPLE).table
-    assert len(d) == 11
+    assert len(d) == 12  # 11 grant dates and the named set exec-2025 kept from the ledger
+    assert list(d["assumption_set"].fillna(""))[-1] == "exec-2025"
     row = d.iloc[0]
     assert row["share_price"] == 18.40 and row["source_price_note"] == "close on the grant date"
     assert row["source_return_count"] > 1000 and row["source_lookback_end"] == "2024-02-15"
@@ -135,3 +136,28 @@ def test_usage_errors():
         derive_assumptions(MARKET / "prices.csv", MARKET / "curve.csv")
     with pytest.raises(UsageError, match="--expected-term"):
         _derive(dates=["2026-05-15"])
+
+
+def test_ledger_mode_keeps_named_sets_so_the_table_is_accepted_unchanged(tmp_path):
+    # close-ready issue, item 9: the demo's named set exec-2025 was dropped, so the derived table could
+    # not replace the ledger's assumptions; now it keeps it and the ledger checks clean (common practice)
+    import shutil
+
+    from grantval.io.csv import write_csv
+
+    sample = pathlib.Path(__file__).resolve().parents[2] / "sample_grants"
+    derived = api.assumptions(sample / "market" / "prices.csv", sample / "market" / "curve.csv",
+                              ledger=sample, dividends=sample / "market" / "dividends.csv", ticker="CRVN")
+    assert "exec-2025" in set(derived.table["assumption_set"])
+    ledger = tmp_path / "l"
+    shutil.copytree(sample, ledger, ignore=shutil.ignore_patterns("*.xlsx", "*.py", "market"))
+    write_csv(ledger / "assumptions.csv", derived.table)
+    report = api.check(ledger)
+    assert report.ok, report.errors
+
+
+def test_missing_ticker_names_the_tickers_found():
+    sample = pathlib.Path(__file__).resolve().parents[2] / "sample_grants"
+    with pytest.raises(LedgerError) as info:
+        api.assumptions(sample / "market" / "prices.csv", sample / "market" / "curve.csv", ledger=sample)
+    assert "name the company's own with --ticker" in str(info.value.problems[0])
