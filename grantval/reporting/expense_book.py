@@ -11,6 +11,38 @@ from grantval.reporting.checks import CheckRow, checks_sheet
 from grantval.reporting.disclosure_book import disclosure_sheets
 
 
+def _with_total_row(frame, columns) -> "pd.DataFrame":
+    """``frame`` with a Total row of live SUM formulas under ``columns``."""
+    import pandas as pd
+
+    from grantval.io.cells import col_letter
+    from grantval.io.xlsx.sheet import Formula
+
+    n = len(frame)
+    row = {c: None for c in frame.columns}
+    row[frame.columns[0]] = "Total"
+    for c in columns:
+        letter = col_letter(list(frame.columns).index(c) + 1)
+        row[c] = Formula(f"=SUM({letter}2:{letter}{n + 1})")
+    return pd.concat([frame.astype(object), pd.DataFrame([row])], ignore_index=True)
+
+
+def _estimates_in_force(run) -> list[list]:
+    """Summary rows: the forfeiture estimates in force at the through date (most specific first)."""
+    est = run.ledger.estimates
+    if run.policy.forfeitures != "estimate" or not len(est):
+        return []
+    through = np.datetime64(run.through, "D")
+    live = est[est["effective_date"].to_numpy("datetime64[D]") <= through]
+    latest = live.sort_values("effective_date").groupby("applies_to", sort=True).tail(1)
+    rows = [["Forfeiture estimates in force at the through date", "applies to / effective / rate or fraction"]]
+    for k, d, r, f in zip(latest["applies_to"], latest["effective_date"], latest["annual_forfeiture_rate"],
+                          latest["expected_vest_fraction"]):
+        what = f"annual rate {r:.2%}" if r == r else f"expected to vest {f:.2%}"
+        rows.append([str(k), f"effective {np.datetime64(d, 'D')}: {what}"])
+    return rows + [[]]
+
+
 def expense_sheets(run, info: RunInfo, fv_frame, by_grant, by_group, tranches, unrec, unrec_total, unrec_wa, forecast,
                    disclosure, checks: list[CheckRow], rules: list[tuple[str, str]]) -> list[Sheet]:
     """Sheets of the expense workbook, in order."""
@@ -27,14 +59,18 @@ def expense_sheets(run, info: RunInfo, fv_frame, by_grant, by_group, tranches, u
         ["Forecast through", run.forecast_through or "(none)"],
         ["Grants", run.ledger.n_grants], ["Tranches", len(run.inputs.t_qty)], [],
         ["Policies"], *[[k, v] for k, v in run.policy.describe()], [],
-        ["Expense in the window", total_cents / 100.0],
+        [f"Expense in the current period (ending {run.through})", int(period_totals[-1]) / 100.0],
+        ["Expense in the window, all periods", total_cents / 100.0],
         ["Unrecognised cost at the through date", unrec_total],
         ["Weighted-average remaining recognition period (years)", unrec_wa], [],
     ]
+    summary += _estimates_in_force(run)
     head = len(summary) + 1  # 1-based row of the period table's header
     summary.append(["Period end", "Expense"])
     summary += [[str(d), int(c) / 100.0] for d, c in zip(sched.period_ends, period_totals)]
-    sfmt = {(head - 5, 1): MONEY, (head - 4, 1): MONEY, (head - 3, 1): "0.00"}  # 0-based rows of the totals
+    first_total = next(i for i, r in enumerate(summary) if r and str(r[0]).startswith("Expense in the current"))
+    sfmt = {(first_total, 1): MONEY, (first_total + 1, 1): MONEY, (first_total + 2, 1): MONEY,
+            (first_total + 3, 1): "0.00"}  # 0-based rows of the totals
     sfmt.update({(head + k, 1): MONEY for k in range(p)})
     charts = [Chart("bar", "Expense by period", (2, head, 2, head + p), (1, head + 1, 1, head + p), "D2",
                     y_title="Expense", x_title="Period end")]
@@ -53,7 +89,8 @@ def expense_sheets(run, info: RunInfo, fv_frame, by_grant, by_group, tranches, u
         Sheet("tranches", frame=tranches, formats=FORMATS, text_columns=("grant_id",)),
         Sheet("forecast", frame=with_sum_formulas(forecast, 7, "grant_id"),
               formats={**FORMATS, **fperiod_fmt, "total": MONEY}, text_columns=("grant_id", "group")),
-        Sheet("unrecognized", frame=unrec, formats=FORMATS, text_columns=("grant_id", "group")),
+        Sheet("unrecognized", frame=_with_total_row(unrec, ("recognised_to_date", "unrecognised_cost")),
+              formats=FORMATS, text_columns=("grant_id", "group")),
     ]
     if disclosure is not None:
         sheets += disclosure_sheets(disclosure)

@@ -70,6 +70,14 @@ def long_forecast(inp: ExpenseInputs, sched: ExpenseSchedule) -> pd.DataFrame:
                  {"expense": sched.forecast_cents})
 
 
+def _status(inp: ExpenseInputs, m, granted) -> np.ndarray:
+    """Per tranche at the through date: not granted, vested, unvested, forfeited or cancelled (all units gone)."""
+    gone = m.outstanding <= 0
+    cancelled = gone & (m.cancelled > 0)
+    return np.select([~granted, cancelled, gone & ~m.vested, m.vested], ["not granted", "cancelled", "forfeited",
+                                                                          "vested"], "unvested").astype(object)
+
+
 def tranche_table(inp: ExpenseInputs, sched: ExpenseSchedule, tranche_no) -> pd.DataFrame:
     """Tranches with their vest dates, quantities, fair values and state at the through date."""
     m = sched.at_through
@@ -87,7 +95,8 @@ def tranche_table(inp: ExpenseInputs, sched: ExpenseSchedule, tranche_no) -> pd.
         "forfeited": forfeited.astype(np.int64),
         "cancelled_unvested": m.cancelled.astype(np.int64),
         "vested": m.vested,
-        "quantity_expensed": np.where(granted, m.n_expensed, 0.0),
+        "status": _status(inp, m, granted),
+        "quantity_expected_to_vest": np.where(granted, m.n_expensed, 0.0),
         "fair_value_per_unit": fv_in_force,  # grant-date value plus modifications in force (else = t_fv)
         "grant_date_fair_value": inp.t_qty * inp.t_fv,
         "service_elapsed": m.elapsed,

@@ -16,7 +16,7 @@ FORMATS = {
     "expected_term_years": "0.0000", "fair_value_per_unit": UNIT, "grant_date_fair_value": MONEY,
     "tool_fair_value_per_unit": "0.000000", "recomputed_fair_value_per_unit": "0.000000", "difference": "0.000000000",
     "quantity": "#,##0", "quantity_granted": "#,##0", "forfeited": "#,##0", "cancelled_unvested": "#,##0",
-    "quantity_expensed": "#,##0.00", "service_elapsed": "0.00%", "recognised_to_date": MONEY,
+    "quantity_expected_to_vest": "#,##0.00", "service_elapsed": "0.00%", "recognised_to_date": MONEY,
     "unrecognised_cost": MONEY, "remaining_years": "0.00", "total": MONEY, "grant_date": "yyyy-mm-dd",
     "expiration_date": "yyyy-mm-dd", "vest_date": "yyyy-mm-dd", "number": "#,##0",
     "weighted_average_exercise_price": "#,##0.00", "weighted_average_remaining_term_years": "0.00",
