@@ -60,6 +60,12 @@ def _tables(run) -> dict:
                 curve=WI.volatility_curve(run))
 
 
+def _money_columns(frame) -> tuple[str, ...]:
+    """Currency columns of a what-if table (written to cents): amounts and their changes, not percentages."""
+    return tuple(c for c in frame.columns if not c.endswith("percent") and frame[c].dtype.kind == "f"
+                 and any(w in c for w in ("fair_value", "expense", "forecast", "change", "range")))
+
+
 def write_whatif(run, xlsx: pathlib.Path | None, csv_dir: pathlib.Path | None, command: str = "",
                  timestamp: bool = True) -> list[pathlib.Path]:
     """Write the what-if workbook and/or its CSV tables; returns the paths written."""
@@ -74,8 +80,8 @@ def write_whatif(run, xlsx: pathlib.Path | None, csv_dir: pathlib.Path | None, c
     if paths:
         pathlib.Path(csv_dir).mkdir(parents=True, exist_ok=True)
         write_csv(paths[0], t["scen"])
-        write_csv(paths[1], t["sens"])
-        write_csv(paths[2], t["torn"])
+        write_csv(paths[1], t["sens"], money=_money_columns(t["sens"]))
+        write_csv(paths[2], t["torn"], money=_money_columns(t["torn"]))
         write_csv(paths[3], t["fvs"].melt(id_vars="grant_id", var_name="scenario", value_name="fair_value_per_unit"))
         write_csv(paths[4], t["exp"].melt(id_vars="period_end", var_name="scenario", value_name="expense"),
                   money=("expense",))
