@@ -160,7 +160,7 @@ def parse_table(table: RawTable, columns: tuple[Column, ...]) -> tuple[pd.DataFr
         if col.required and not present and table.headers:
             problems.append(Problem(src, 1, col.name, "required column is missing"))
         cells = table.column(col.name)
-        if any(isinstance(c, bool) for c in cells):
+        if "sheet" in src and any(isinstance(c, bool) for c in cells):  # CSV cells are text: no booleans
             cells = [_Bool(c) if isinstance(c, bool) else c for c in cells]  # True must not merge with 1
         # each distinct cell is typed once; results and problems are spread back to every row holding it
         codes, uniques = pd.factorize(pd.Series(cells, dtype=object), use_na_sentinel=True)

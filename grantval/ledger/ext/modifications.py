@@ -200,9 +200,12 @@ def replacements(grants: pd.DataFrame) -> tuple[np.ndarray, np.ndarray]:
     """Positions of the replacement grants and of the grants they replace (known ids only)."""
     if "replaces_grant_id" not in grants:
         return np.zeros(0, np.int64), np.zeros(0, np.int64)
-    index = {k: i for i, k in enumerate(grants["grant_id"])}
     rep = grants["replaces_grant_id"].to_numpy(dtype=object)
-    new = [i for i, k in enumerate(rep) if not pd.isna(k) and k in index and index[k] != i]
+    given = np.flatnonzero(pd.notna(rep))
+    if not given.size:  # the common case: no replacements (skip the per-grant index)
+        return np.zeros(0, np.int64), np.zeros(0, np.int64)
+    index = {k: i for i, k in enumerate(grants["grant_id"].to_numpy(dtype=object))}
+    new = [i for i in given if rep[i] in index and index[rep[i]] != i]
     return np.array(new, dtype=np.int64), np.array([index[rep[i]] for i in new], dtype=np.int64)
 
 
