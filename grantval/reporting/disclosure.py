@@ -78,6 +78,11 @@ class _Tranches:
         m = np.isin(self.c_kind, ("forfeit", "cancel")) & (self.c_date < self.vest[self.c_t])
         return np.bincount(self.c_t[m], weights=self.c_qty[m], minlength=len(self.qty)).astype(np.int64)
 
+    def nonvested(self, d) -> np.ndarray:
+        """Quantity per tranche granted, not yet vested and not forfeited or cancelled at the end of ``d``."""
+        removed = self.moved(("forfeit", "cancel"), np.datetime64("1900-01-01"), d)
+        return np.where((self.grant_date <= d) & (self.vest > d), self.qty - removed, 0)
+
     def outstanding(self, d) -> np.ndarray:
         """Quantity per tranche outstanding at the end of ``d``."""
         early = np.datetime64("1900-01-01")
@@ -136,11 +141,7 @@ def _unit_activity(T: _Tranches, granted, forfeited, start, through):
     """Nonvested-unit roll-forward, its tie, and the units vested in the window per tranche."""
     units = T.units
 
-    def nonvested(d):
-        removed = T.moved(("forfeit", "cancel"), np.datetime64("1900-01-01"), d)
-        return np.where((T.grant_date <= d) & (T.vest > d), T.qty - removed, 0)
-
-    nv0, nv1 = nonvested(start - DAY), nonvested(through)
+    nv0, nv1 = T.nonvested(start - DAY), T.nonvested(through)
     vest_in = (T.vest >= start) & (T.vest <= through) & (T.grant_date <= through)
     vested_q = np.where(vest_in, T.qty - T.removed_before_vest(), 0)
     lines = [("Nonvested at start", nv0), ("Granted", granted), ("Vested", vested_q),
@@ -173,11 +174,7 @@ def _performance_activity(ledger: Ledger, T: _Tranches, granted, forfeited, vest
     issued = np.where(psu, np.floor(vested_q * payout + 1e-9), 0).astype(np.int64)
     adjust = issued - np.where(psu, vested_q, 0)
 
-    def nonvested(d):
-        removed = T.moved(("forfeit", "cancel"), np.datetime64("1900-01-01"), d)
-        return np.where((T.grant_date <= d) & (T.vest > d), T.qty - removed, 0)
-
-    nv0, nv1 = nonvested(start - DAY), nonvested(through)
+    nv0, nv1 = T.nonvested(start - DAY), T.nonvested(through)
     lines = [("Nonvested at start (target units)", nv0), ("Granted (target units)", granted),
              ("Change from performance adjustments", adjust), ("Vested (shares issued at the final payout)", issued),
              ("Forfeited (target units)", forfeited), ("Nonvested at end (target units)", nv1)]
@@ -268,9 +265,7 @@ def compute_disclosure(ledger: Ledger, fv: FairValues, inp: ExpenseInputs, polic
     m = measure(inp, through, attribution=policy.attribution, forfeitures=policy.forfeitures)
     options, option_tie, granted, forfeited = _option_activity(T, m, start, through, share_price)
     rsus, rsu_tie, vested_q = _unit_activity(T, granted, forfeited, start, through)
-    perf, psu_tie = _performance_activity(ledger, T, granted, forfeited, np.where(
-        (T.vest >= start) & (T.vest <= through) & (T.grant_date <= through), T.qty - T.removed_before_vest(), 0),
-        start, through)
+    perf, psu_tie = _performance_activity(ledger, T, granted, forfeited, vested_q, start, through)
     items = _granted_figures(ledger, fv, start, through) + _window_figures(ledger, T, inp, m, vested_q, start,
                                                                              through)
     grants = pd.DataFrame({"item": [i for i, _ in items], "value": [_rounded(i, v) for i, v in items]})

@@ -37,6 +37,34 @@ def _describe(period_end, group, amount: int, what: str) -> str:
     return f"{kind}{what}, period ending {np.datetime64(period_end, 'D')}{where}"
 
 
+def _settled_lines(rows: pd.DataFrame, accounts, settlement: str, entry: str, expense_what: str,
+                   credit_what: str) -> pd.DataFrame:
+    """Per period: expense by (group, expense account) against one credit line per ``entry`` account.
+
+    Only rows whose award kind settles in ``settlement`` are used; a net reversal swaps debit and credit.
+    """
+    part = rows[rows["settlement"] == settlement].copy()
+    if part.empty:
+        return pd.DataFrame(columns=list(LINE_COLUMNS))
+    award = part["award_type"].to_numpy(dtype=object)
+    award = np.where(pd.isna(award), "*", award)
+    part["expense_account"] = accounts.accounts(award, "expense")
+    part["credit_account"] = accounts.accounts(award, entry)
+    part["group"] = part["group"].astype(object).where(part["group"].notna(), None)
+    out = []
+    for pe, per in part.groupby("period_end", sort=True):
+        exp = _net_lines(per.assign(group=per["group"].fillna("")), ["group", "expense_account"])
+        for g, acct, amt in zip(exp["group"], exp["expense_account"], exp["booked_cents"]):
+            amt = int(amt)
+            out.append((pe, acct, g or None, max(amt, 0), max(-amt, 0), _describe(pe, g, amt, expense_what),
+                        "expense"))
+        credit = _net_lines(per, ["credit_account"])
+        for acct, amt in zip(credit["credit_account"], credit["booked_cents"]):
+            amt = int(amt)
+            out.append((pe, acct, None, max(-amt, 0), max(amt, 0), _describe(pe, None, amt, credit_what), entry))
+    return pd.DataFrame(out, columns=list(LINE_COLUMNS))
+
+
 def equity_settled_lines(rows: pd.DataFrame, accounts) -> pd.DataFrame:
     """Expense by group against paid-in capital, for awards settled in shares.
 
@@ -53,25 +81,7 @@ def equity_settled_lines(rows: pd.DataFrame, accounts) -> pd.DataFrame:
         Per period: one expense line per (group, expense account) with a
         non-zero net, then one paid-in capital line per equity account.
     """
-    part = rows[rows["settlement"] == "shares"].copy()
-    if part.empty:
-        return pd.DataFrame(columns=list(LINE_COLUMNS))
-    award = part["award_type"].to_numpy(dtype=object)
-    part["expense_account"] = accounts.accounts(np.where(pd.isna(award), "*", award), "expense")
-    part["equity_account"] = accounts.accounts(np.where(pd.isna(award), "*", award), "equity")
-    part["group"] = part["group"].astype(object).where(part["group"].notna(), None)
-    out = []
-    for pe, per in part.groupby("period_end", sort=True):
-        exp = _net_lines(per.assign(group=per["group"].fillna("")), ["group", "expense_account"])
-        for g, acct, amt in zip(exp["group"], exp["expense_account"], exp["booked_cents"]):
-            amt = int(amt)
-            out.append((pe, acct, g or None, max(amt, 0), max(-amt, 0), _describe(pe, g, amt, ""), "expense"))
-        eq = _net_lines(per, ["equity_account"])
-        for acct, amt in zip(eq["equity_account"], eq["booked_cents"]):
-            amt = int(amt)
-            out.append((pe, acct, None, max(-amt, 0), max(amt, 0),
-                        _describe(pe, None, amt, " (equity-settled awards)"), "equity"))
-    return pd.DataFrame(out, columns=list(LINE_COLUMNS))
+    return _settled_lines(rows, accounts, "shares", "equity", "", " (equity-settled awards)")
 
 
 def cash_settled_lines(rows: pd.DataFrame, accounts) -> pd.DataFrame:
@@ -82,25 +92,8 @@ def cash_settled_lines(rows: pd.DataFrame, accounts) -> pd.DataFrame:
     way).  The payment itself (debit the liability, credit cash) is the treasury's entry and is
     not journalised here; ``liabilities.csv`` of the expense run gives the cash paid per period.
     """
-    part = rows[rows["settlement"] == "cash"].copy()
-    if part.empty:
-        return pd.DataFrame(columns=list(LINE_COLUMNS))
-    award = part["award_type"].to_numpy(dtype=object)
-    part["expense_account"] = accounts.accounts(award, "expense")
-    part["liability_account"] = accounts.accounts(award, "liability")
-    out = []
-    for pe, per in part.groupby("period_end", sort=True):
-        exp = _net_lines(per.assign(group=per["group"].fillna("")), ["group", "expense_account"])
-        for g, acct, amt in zip(exp["group"], exp["expense_account"], exp["booked_cents"]):
-            amt = int(amt)
-            out.append((pe, acct, g or None, max(amt, 0), max(-amt, 0),
-                        _describe(pe, g, amt, " (cash-settled awards)"), "expense"))
-        li = _net_lines(per, ["liability_account"])
-        for acct, amt in zip(li["liability_account"], li["booked_cents"]):
-            amt = int(amt)
-            out.append((pe, acct, None, max(-amt, 0), max(amt, 0),
-                        _describe(pe, None, amt, " (liability of cash-settled awards)"), "liability"))
-    return pd.DataFrame(out, columns=list(LINE_COLUMNS))
+    return _settled_lines(rows, accounts, "cash", "liability", " (cash-settled awards)",
+                          " (liability of cash-settled awards)")
 
 
 #: the journal's contributors, in the order their lines are written

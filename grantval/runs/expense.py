@@ -123,26 +123,18 @@ def _write_book(run: ExpenseRun, xlsx, tables: dict, disc, checks, command, time
     write_workbook(pathlib.Path(xlsx), sheets, fixed_time=info.workbook_time(), footer=info.footer())
 
 
-def _espp_sheets(run: ExpenseRun) -> list:
-    """The purchase-plan table and activity (none when the ledger has no offerings)."""
-    from grantval.reporting import espp_tables as E
-
-    if not (run.ledger.grants["award_type"] == "espp").any():
-        return []
-    activity, _ = E.purchase_plan_activity(run.ledger, run.fair_values, run.start, run.through)
-    return [E.espp_sheet(E.espp_table(run.ledger, run.fair_values, run.through)), E.activity_sheet(activity)]
-
-
-def _espp_check(run: ExpenseRun) -> list:
-    """The purchase-plan roll-forward tie (flows against the end balance counted on its own)."""
+def _espp_parts(run: ExpenseRun) -> tuple[list, list]:
+    """The purchase-plan sheets and the roll-forward tie (flows against the end balance counted on its own)."""
     from grantval.reporting import espp_tables as E
     from grantval.reporting.checks import CheckRow
 
     if not (run.ledger.grants["award_type"] == "espp").any():
-        return []
-    _, (a, b) = E.purchase_plan_activity(run.ledger, run.fair_values, run.start, run.through)
-    return [CheckRow("Purchase-plan roll-forward: start + granted - reached - withdrawn - forfeited = end", a, b, 0,
-                     a == b)]
+        return [], []
+    activity, (a, b) = E.purchase_plan_activity(run.ledger, run.fair_values, run.start, run.through)
+    sheets = [E.espp_sheet(E.espp_table(run.ledger, run.fair_values, run.through)), E.activity_sheet(activity)]
+    check = CheckRow("Purchase-plan roll-forward: start + granted - reached - withdrawn - forfeited = end", a, b, 0,
+                     a == b)
+    return sheets, [check]
 
 
 def _modification_sheets(run: ExpenseRun) -> list:
@@ -218,7 +210,8 @@ def write_expense(run: ExpenseRun, xlsx: pathlib.Path | None, csv_dir: pathlib.P
         checks = C.expense_checks(run, figures, tranches, unrec, disc, recomputed_column(run.fair_values.table))
         checks += LT.liability_checks(run, lf) if lf is not None else []
         tax_sheets, tax_checks = TX.tax_sheets(inp, tax) if tax is not None else ([], [])
-        checks += tax_checks + _espp_check(run)
+        espp_sheets, espp_checks = _espp_parts(run)
+        checks += tax_checks + espp_checks
     with stage("write csv"):
         if paths:
             _write_csvs(run, paths, by_group, group_sums, tranches, unrec,
@@ -228,6 +221,6 @@ def write_expense(run: ExpenseRun, xlsx: pathlib.Path | None, csv_dir: pathlib.P
             tables = dict(by_grant=by_grant, by_group=by_group, tranches=tranches, unrec=unrec,
                           unrec_total=unrec_total, unrec_wa=unrec_wa, forecast=forecast,
                           liability_sheets=(LT.liability_sheets(run, lf) if lf is not None else []) + tax_sheets
-                          + _modification_sheets(run) + _espp_sheets(run))
+                          + _modification_sheets(run) + espp_sheets)
             _write_book(run, xlsx, tables, disc, checks, command, timestamp, share_price)
     return ExpenseOutputs(outputs, checks)

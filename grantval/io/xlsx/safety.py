@@ -24,21 +24,24 @@ class SheetInfo:
 _SCAN_CHUNK = 1 << 20
 
 
-def _scan_part(zf: zipfile.ZipFile, name: str, needles: tuple[bytes, ...]) -> set[bytes]:
-    """Which of ``needles`` occur in one zip member (read in chunks)."""
-    found: set[bytes] = set()
+def _windows(zf: zipfile.ZipFile, name: str, keep: int):
+    """One zip member read in chunks, each yielded with the last ``keep`` bytes of the one before it in front."""
     tail = b""
-    keep = max(len(n) for n in needles)
     with zf.open(name) as fh:
         while True:
             chunk = fh.read(_SCAN_CHUNK)
             if not chunk:
-                break
+                return
             data = tail + chunk
-            for n in needles:
-                if n in data:
-                    found.add(n)
-            tail = data[-keep:]
+            yield data
+            tail = data[-keep:] if keep else b""
+
+
+def _scan_part(zf: zipfile.ZipFile, name: str, needles: tuple[bytes, ...]) -> set[bytes]:
+    """Which of ``needles`` occur in one zip member (read in chunks)."""
+    found: set[bytes] = set()
+    for data in _windows(zf, name, max(len(n) for n in needles)):
+        found.update(n for n in needles if n in data)
     return found
 
 
@@ -101,18 +104,8 @@ def inspect_xlsx(path: pathlib.Path) -> tuple[list[SheetInfo], list[Problem]]:
 
 def _count_part(zf: zipfile.ZipFile, name: str, needles: tuple[bytes, ...]) -> int:
     """How many times ``needles`` occur in one zip member, read in chunks (a needle split by a chunk end counts once)."""
-    count = 0
-    keep = max(len(n) for n in needles) - 1
-    tail = b""
-    with zf.open(name) as fh:
-        while True:
-            chunk = fh.read(_SCAN_CHUNK)
-            if not chunk:
-                break
-            data = tail + chunk
-            count += sum(data.count(n) for n in needles)
-            tail = data[-keep:] if keep else b""
-    return count
+    keep = max(len(n) for n in needles) - 1  # shorter than a needle: none is counted twice
+    return sum(sum(data.count(n) for n in needles) for data in _windows(zf, name, keep))
 
 
 def _unused_strings(zf: zipfile.ZipFile, infos) -> str | None:
