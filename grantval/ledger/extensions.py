@@ -121,6 +121,13 @@ class Contribution:
     withheld: set = field(default_factory=set)
 
 
+def rows_where(frame: "pd.DataFrame", mask) -> list[int]:
+    """Spreadsheet row numbers (the ``_row`` column) of the rows of ``frame`` where ``mask`` holds."""
+    import numpy as np
+
+    return [int(r) for r in frame["_row"].to_numpy()[np.asarray(mask, dtype=bool)]]
+
+
 def extensions() -> list[Extension]:
     """Every registered extension, in :data:`MODULES` order."""
     return [importlib.import_module(m).EXTENSION for m in MODULES]

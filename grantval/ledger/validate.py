@@ -10,6 +10,7 @@ import numpy as np
 
 from grantval import plausibility
 from grantval.awards.registry import flag
+from grantval.ledger.extensions import rows_where
 import pandas as pd
 
 from grantval.dates import year_fraction
@@ -17,10 +18,6 @@ from grantval.errors import Problem
 
 #: largest quantity of one grant (keeps the tranche arithmetic exact in 64-bit integers)
 MAX_QUANTITY = 1e12
-
-
-def _at(frame: pd.DataFrame, mask) -> list[int]:
-    return frame["_row"].to_numpy()[np.asarray(mask, dtype=bool)].tolist()
 
 
 def check_grants(g: pd.DataFrame, src: str) -> list[Problem]:
@@ -33,41 +30,41 @@ def check_grants(g: pd.DataFrame, src: str) -> list[Problem]:
         for r, gid in zip(g["_row"][dup], ids[dup]):
             p.append(Problem(src, int(r), "grant_id", f"{gid!r} is used twice (first in row {first_row.get(gid)})"))
     q = g["quantity"].to_numpy()
-    for r, x in zip(_at(g, q <= 0), q[q <= 0]):
+    for r, x in zip(rows_where(g, q <= 0), q[q <= 0]):
         p.append(Problem(src, r, "quantity", f"must be a positive whole number; got {x:g}"))
-    for r, x in zip(_at(g, q > MAX_QUANTITY), q[q > MAX_QUANTITY]):
+    for r, x in zip(rows_where(g, q > MAX_QUANTITY), q[q > MAX_QUANTITY]):
         p.append(Problem(src, r, "quantity", f"{x:g} is too large (more than {MAX_QUANTITY:,.0f})"))
     option = flag(g["award_type"].to_numpy(), "option_terms")
     price = g["exercise_price"].to_numpy()
     exp = g["expiration_date"].to_numpy("datetime64[D]")
     gd = g["grant_date"].to_numpy("datetime64[D]")
-    for r in _at(g, option & np.isnan(price)):
+    for r in rows_where(g, option & np.isnan(price)):
         p.append(Problem(src, r, "exercise_price", "is required for an option grant"))
     wrong = option & plausibility.bad("exercise_price", price)
-    for r, x in zip(_at(g, wrong), price[wrong]):
+    for r, x in zip(rows_where(g, wrong), price[wrong]):
         p.append(Problem(src, r, "exercise_price", f"{plausibility.LIMITS['exercise_price'].words}; got {x:g}"))
-    for r in _at(g, option & np.isnat(exp)):
+    for r in rows_where(g, option & np.isnat(exp)):
         p.append(Problem(src, r, "expiration_date", "is required for an option grant"))
     bad = ~np.isnat(exp) & ~np.isnat(gd) & (exp <= gd)
-    for r, e, d in zip(_at(g, bad), exp[bad], gd[bad]):
+    for r, e, d in zip(rows_where(g, bad), exp[bad], gd[bad]):
         p.append(Problem(src, r, "expiration_date", f"{e} is not after the grant date {d}"))
     months = g["vest_months"].to_numpy()
     every = g["vest_every_months"].to_numpy()
     cliff = g["cliff_months"].to_numpy()
-    for r, x in zip(_at(g, months < 0), months[months < 0]):
+    for r, x in zip(rows_where(g, months < 0), months[months < 0]):
         p.append(Problem(src, r, "vest_months", f"must be zero or more; got {x:g}"))
-    for r, x in zip(_at(g, months > 1200), months[months > 1200]):
+    for r, x in zip(rows_where(g, months > 1200), months[months > 1200]):
         p.append(Problem(src, r, "vest_months", f"{x:g} months is more than 100 years"))
-    for r, x in zip(_at(g, every < 1), every[every < 1]):
+    for r, x in zip(rows_where(g, every < 1), every[every < 1]):
         p.append(Problem(src, r, "vest_every_months", f"must be at least 1; got {x:g}"))
     with np.errstate(invalid="ignore", divide="ignore"):
         notmult = (every >= 1) & (months >= 0) & (np.mod(months, np.where(every >= 1, every, 1)) != 0)
-    for r, m, e in zip(_at(g, notmult), months[notmult], every[notmult]):
+    for r, m, e in zip(rows_where(g, notmult), months[notmult], every[notmult]):
         p.append(Problem(src, r, "vest_months", f"{m:g} is not a multiple of vest_every_months ({e:g})"))
-    for r, x in zip(_at(g, cliff < 0), cliff[cliff < 0]):
+    for r, x in zip(rows_where(g, cliff < 0), cliff[cliff < 0]):
         p.append(Problem(src, r, "cliff_months", f"must be zero or more; got {x:g}"))
     over = (cliff > months) & (months >= 0)
-    for r, c, m in zip(_at(g, over), cliff[over], months[over]):
+    for r, c, m in zip(rows_where(g, over), cliff[over], months[over]):
         p.append(Problem(src, r, "cliff_months", f"{c:g} is more than vest_months ({m:g})"))
     return p
 
@@ -108,7 +105,7 @@ def check_assumptions(a: pd.DataFrame, src: str) -> list[Problem]:
     p: list[Problem] = []
     key_set = a["assumption_set"].notna().to_numpy()
     key_date = ~np.isnat(a["grant_date"].to_numpy("datetime64[D]"))
-    for r in _at(a, ~key_set & ~key_date):
+    for r in rows_where(a, ~key_set & ~key_date):
         p.append(Problem(src, r, "assumption_set", "each row needs an assumption_set name or a grant_date"))
     named = a[key_set]
     dup = named["assumption_set"].duplicated()
@@ -121,24 +118,24 @@ def check_assumptions(a: pd.DataFrame, src: str) -> list[Problem]:
 
     def rule(col, bad_mask, words):
         vals = a[col].to_numpy()
-        for r, x in zip(_at(a, bad_mask), vals[np.asarray(bad_mask)]):
+        for r, x in zip(rows_where(a, bad_mask), vals[np.asarray(bad_mask)]):
             p.append(Problem(src, r, col, f"{words}; got {x:g}"))
 
     for col in ("share_price", "volatility", "risk_free_rate", "dividend_yield", "expected_term_years", "fair_value"):
         vals = a[col].to_numpy(float)
         rule(col, plausibility.bad(col, vals), plausibility.LIMITS[col].words)
-        for r, x in zip(_at(a, plausibility.odd(col, vals)), vals[plausibility.odd(col, vals)]):
+        for r, x in zip(rows_where(a, plausibility.odd(col, vals)), vals[plausibility.odd(col, vals)]):
             p.append(Problem(src, r, col, f"{x:g} {plausibility.LIMITS[col].unusual}", "warning"))
     bsm = (a["model"] == "bsm").to_numpy()
     em = a["exercise_multiple"].to_numpy()
     ex = a["post_vest_exit_rate"].to_numpy()
     for col, vals in (("exercise_multiple", em), ("post_vest_exit_rate", ex)):
-        for r in _at(a, bsm & ~np.isnan(vals)):
+        for r in rows_where(a, bsm & ~np.isnan(vals)):
             p.append(Problem(src, r, col, "is a lattice parameter but the row's model is bsm; set model to lattice or clear it"))
     rule("exercise_multiple", ~bsm & (em < 1), "must be at least 1")
     rule("post_vest_exit_rate", ~bsm & (ex < 0), "must be zero or more")
     lat = (a["model"] == "lattice").to_numpy()
-    for r in _at(a, lat & ~np.isnan(a["expected_term_years"].to_numpy(float))):
+    for r in rows_where(a, lat & ~np.isnan(a["expected_term_years"].to_numpy(float))):
         p.append(Problem(src, r, "expected_term_years",
                          "is not used by the lattice, which runs to the contractual term; leave it blank"))
     return p
@@ -228,12 +225,12 @@ def check_tranches_table(t: pd.DataFrame, g: pd.DataFrame, src: str) -> tuple[pd
     p: list[Problem] = []
     index = {k: i for i, k in enumerate(g["grant_id"])}
     gpos = np.array([index.get(k, -1) for k in t["grant_id"]], dtype=np.int64)
-    for r, k in zip(_at(t, (gpos < 0) & t["grant_id"].notna().to_numpy()), t["grant_id"][(gpos < 0) & t["grant_id"].notna()]):
+    for r, k in zip(rows_where(t, (gpos < 0) & t["grant_id"].notna().to_numpy()), t["grant_id"][(gpos < 0) & t["grant_id"].notna()]):
         p.append(Problem(src, r, "grant_id", f"{k!r} is not a grant in the grants table"))
     q = t["quantity"].to_numpy()
-    for r, x in zip(_at(t, q > MAX_QUANTITY), q[q > MAX_QUANTITY]):
+    for r, x in zip(rows_where(t, q > MAX_QUANTITY), q[q > MAX_QUANTITY]):
         p.append(Problem(src, r, "quantity", f"{x:g} is too large (more than {MAX_QUANTITY:,.0f})"))
-    for r, x in zip(_at(t, q <= 0), q[q <= 0]):
+    for r, x in zip(rows_where(t, q <= 0), q[q <= 0]):
         p.append(Problem(src, r, "quantity", f"must be a positive whole number; got {x:g}"))
     ok = (gpos >= 0) & ~np.isnan(q) & ~np.isnat(t["vest_date"].to_numpy("datetime64[D]"))
     given = pd.DataFrame({"grant_idx": gpos[ok], "vest_date": t["vest_date"].to_numpy("datetime64[D]")[ok],
@@ -254,13 +251,13 @@ def check_estimates(e: pd.DataFrame, g: pd.DataFrame, src: str) -> list[Problem]
     frac = e["expected_vest_fraction"].to_numpy()
     both = ~np.isnan(rate) & ~np.isnan(frac)
     neither = np.isnan(rate) & np.isnan(frac)
-    for r in _at(e, both):
+    for r in rows_where(e, both):
         p.append(Problem(src, r, "annual_forfeiture_rate", "give either annual_forfeiture_rate or expected_vest_fraction, not both"))
-    for r in _at(e, neither):
+    for r in rows_where(e, neither):
         p.append(Problem(src, r, "annual_forfeiture_rate", "give one of annual_forfeiture_rate or expected_vest_fraction"))
-    for r, x in zip(_at(e, (rate < 0) | (rate >= 1)), rate[(rate < 0) | (rate >= 1)]):
+    for r, x in zip(rows_where(e, (rate < 0) | (rate >= 1)), rate[(rate < 0) | (rate >= 1)]):
         p.append(Problem(src, r, "annual_forfeiture_rate", f"must be at least 0 and below 1 (a decimal: 0.05 is 5%); got {x:g}"))
-    for r, x in zip(_at(e, (frac <= 0) | (frac > 1)), frac[(frac <= 0) | (frac > 1)]):
+    for r, x in zip(rows_where(e, (frac <= 0) | (frac > 1)), frac[(frac <= 0) | (frac > 1)]):
         p.append(Problem(src, r, "expected_vest_fraction", f"must be above 0 and at most 1; got {x:g}"))
     ids = set(g["grant_id"].dropna())
     groups = set(g["group"].dropna())

@@ -28,7 +28,7 @@ import pandas as pd
 
 from grantval.errors import Problem
 from grantval.ledger.columns import Column
-from grantval.ledger.extensions import Adjustment, Extension, LedgerParts
+from grantval.ledger.extensions import Adjustment, Extension, LedgerParts, rows_where
 
 MODIFICATIONS = (
     Column("grant_id", "text", required=True),
@@ -123,49 +123,45 @@ def vest_in_force(tranches: pd.DataFrame, grants: pd.DataFrame, mods: pd.DataFra
     return np.where(~np.isnat(acc) & (acc < vest), acc, vest)
 
 
-def _rows(frame: pd.DataFrame, mask) -> list[int]:
-    return [int(r) for r in frame["_row"].to_numpy()[np.asarray(mask, dtype=bool)]]
-
-
 def _row_problems(m: pd.DataFrame, g: pd.DataFrame, a: pd.DataFrame, src: str) -> list[Problem]:
     """Checks of each modification row against its grant and the assumptions."""
     p: list[Problem] = []
     gp = grant_positions(g, m)
-    for r, k in zip(_rows(m, gp < 0), m["grant_id"][gp < 0]):
+    for r, k in zip(rows_where(m, gp < 0), m["grant_id"][gp < 0]):
         if k is not None:
             p.append(Problem(src, r, "grant_id", f"{k!r} is not a grant in the grants table"))
     known = gp >= 0
     d = m["modification_date"].to_numpy("datetime64[D]")
     gd = np.where(known, g["grant_date"].to_numpy("datetime64[D]")[np.maximum(gp, 0)], np.datetime64("NaT"))
-    for r, x, y in zip(_rows(m, known & (d < gd)), d[known & (d < gd)], gd[known & (d < gd)]):
+    for r, x, y in zip(rows_where(m, known & (d < gd)), d[known & (d < gd)], gd[known & (d < gd)]):
         p.append(Problem(src, r, "modification_date", f"{x} is before the grant date {y}"))
     new_exp = m["expiration_date"].to_numpy("datetime64[D]")
     bad = ~np.isnat(new_exp) & (new_exp <= d)
-    for r in _rows(m, bad):
+    for r in rows_where(m, bad):
         p.append(Problem(src, r, "expiration_date", "the new expiration date is not after the modification date"))
     before, after = m["fair_value_before"].notna().to_numpy(), m["fair_value_after"].notna().to_numpy()
-    for r in _rows(m, before & ~after):
+    for r in rows_where(m, before & ~after):
         p.append(Problem(src, r, "fair_value_after", "is required when fair_value_before is given (per-unit values "
                          "of the modified award and of the original award immediately before)"))
-    for r in _rows(m, after & ~before):
+    for r in rows_where(m, after & ~before):
         p.append(Problem(src, r, "fair_value_before", "is required when fair_value_after is given"))
     for col in ("fair_value_before", "fair_value_after"):
         v = m[col].to_numpy(float)
-        for r in _rows(m, ~np.isnan(v) & (v < 0)):
+        for r in rows_where(m, ~np.isnan(v) & (v < 0)):
             p.append(Problem(src, r, col, "must be zero or more (currency per unit)"))
     aset = m["assumption_set"].to_numpy(dtype=object)
     names = set(a["assumption_set"].dropna())
     has_set = m["assumption_set"].notna().to_numpy()
-    for r, k in zip(_rows(m, has_set & ~np.isin(aset, list(names))), aset[has_set & ~np.isin(aset, list(names))]):
+    for r, k in zip(rows_where(m, has_set & ~np.isin(aset, list(names))), aset[has_set & ~np.isin(aset, list(names))]):
         p.append(Problem(src, r, "assumption_set", f"{k!r} is not an assumption_set of the assumptions table"))
-    for r in _rows(m, has_set & before):
+    for r in rows_where(m, has_set & before):
         p.append(Problem(src, r, "assumption_set", "give either an assumption_set or fair_value_before and "
                          "fair_value_after, not both"))
-    for r in _rows(m, ~has_set & ~before & ~after):
+    for r in rows_where(m, ~has_set & ~before & ~after):
         p.append(Problem(src, r, "assumption_set", "is required (the valuation inputs on the modification date), "
                          "or give fair_value_before and fair_value_after from an outside valuation"))
     dup = m[["grant_id", "modification_date"]].astype(str).duplicated().to_numpy() & known
-    for r in _rows(m, dup):
+    for r in rows_where(m, dup):
         p.append(Problem(src, r, "modification_date", "the grant already has a modification on this date: give "
                          "all the changes of one date in one row"))
     return p + _kind_problems(m, g, gp, src)
@@ -181,17 +177,17 @@ def _kind_problems(m: pd.DataFrame, g: pd.DataFrame, gp: np.ndarray, src: str) -
     options = np.zeros(len(m), dtype=bool)
     options[known] = flag(award[known], "option_terms")
     for col in ("exercise_price", "expiration_date"):
-        for r in _rows(m, known & ~options & m[col].notna().to_numpy()):
+        for r in rows_where(m, known & ~options & m[col].notna().to_numpy()):
             p.append(Problem(src, r, col, "only options have an exercise price and an expiration date"))
-    for r in _rows(m, known & ~np.isin(award, ("option", "rsu"))):
+    for r in rows_where(m, known & ~np.isin(award, ("option", "rsu"))):
         p.append(Problem(src, r, "grant_id", "modifications of this award type are not supported yet "
                          "(options and RSUs only)"))
     for col in NOT_SUPPORTED:
-        for r in _rows(m, m[col].notna().to_numpy()):
+        for r in rows_where(m, m[col].notna().to_numpy()):
             p.append(Problem(src, r, col, "changes of the vesting schedule are not supported yet (use accelerate "
                              "= yes to vest every unvested tranche on the modification date)"))
     q = m["quantity"].to_numpy(float)
-    for r in _rows(m, ~np.isnan(q) & (q < 0)):
+    for r in rows_where(m, ~np.isnan(q) & (q < 0)):
         p.append(Problem(src, r, "quantity", "must be zero or more (units outstanding after the modification)"))
     return p
 

@@ -14,7 +14,7 @@ import pandas as pd
 
 from grantval.errors import Problem
 from grantval.ledger.columns import Column
-from grantval.ledger.extensions import Extension, LedgerParts
+from grantval.ledger.extensions import Extension, LedgerParts, rows_where
 
 PERFORMANCE = (
     Column("condition_set", "text", required=True),
@@ -31,10 +31,6 @@ GRANT_COLUMNS = (
 )
 
 
-def _rows(frame: pd.DataFrame, mask) -> list[int]:
-    return [int(r) for r in frame["_row"].to_numpy()[np.asarray(mask, dtype=bool)]]
-
-
 def _grant_problems(g: pd.DataFrame, src: str) -> list[Problem]:
     """Row checks of the new grant columns."""
     p: list[Problem] = []
@@ -44,21 +40,21 @@ def _grant_problems(g: pd.DataFrame, src: str) -> list[Problem]:
         if col not in g:
             continue
         d = g[col].to_numpy("datetime64[D]")
-        for r in _rows(g, ~np.isnat(d) & (d < gd)):
+        for r in rows_where(g, ~np.isnat(d) & (d < gd)):
             p.append(Problem(src, r, col, "is before the grant date"))
     inception = g["service_inception_date"].to_numpy("datetime64[D]")
-    for r in _rows(g, ~np.isnat(inception) & (inception > gd)):
+    for r in rows_where(g, ~np.isnat(inception) & (inception > gd)):
         p.append(Problem(src, r, "service_inception_date", "is after the grant date; service that begins after the "
                          "grant date needs no inception date"))
-    for r in _rows(g, psu & g["exercise_price"].notna().to_numpy()):
+    for r in rows_where(g, psu & g["exercise_price"].notna().to_numpy()):
         p.append(Problem(src, r, "exercise_price", "a psu (performance share unit) has no exercise price; leave it blank"))
-    for r in _rows(g, psu & g["condition_set"].isna().to_numpy()):
+    for r in rows_where(g, psu & g["condition_set"].isna().to_numpy()):
         p.append(Problem(src, r, "condition_set", "is required for a psu grant (a key into the performance table)"))
     cs = g["condition_set"].notna().to_numpy()
-    for r in _rows(g, cs & ~psu):
+    for r in rows_where(g, cs & ~psu):
         p.append(Problem(src, r, "condition_set", "only psu grants carry a performance condition here"))
     mp = g["max_payout"].to_numpy(float)
-    for r in _rows(g, ~np.isnan(mp) & (mp < 0)):
+    for r in rows_where(g, ~np.isnan(mp) & (mp < 0)):
         p.append(Problem(src, r, "max_payout", "must be zero or more"))
     return p
 
@@ -67,13 +63,13 @@ def _table_problems(perf: pd.DataFrame, src: str) -> list[Problem]:
     """Row checks of the performance table."""
     p: list[Problem] = []
     pay = perf["payout"].to_numpy(float)
-    for r, x in zip(_rows(perf, pay < 0), pay[pay < 0]):
+    for r, x in zip(rows_where(perf, pay < 0), pay[pay < 0]):
         p.append(Problem(src, r, "payout", f"must be zero or more (a decimal share of target: 1.5 is 150%); got {x:g}"))
-    for r, x in zip(_rows(perf, pay > 10), pay[pay > 10]):
+    for r, x in zip(rows_where(perf, pay > 10), pay[pay > 10]):
         p.append(Problem(src, r, "payout", f"{x:g} is over 10 (1,000% of target): write the payout as a decimal "
                          "share of target (1.5 is 150%)"))
     dup = perf[["condition_set", "assessed_on"]].astype(str).duplicated().to_numpy()
-    for r in _rows(perf, dup):
+    for r in rows_where(perf, dup):
         p.append(Problem(src, r, "assessed_on", "the condition set already has an assessment on this date"))
     return p
 
@@ -92,18 +88,18 @@ def _cross_problems(g: pd.DataFrame, perf: pd.DataFrame, gsrc: str, psrc: str) -
         f = by_set[cs]
         gd = np.datetime64(gdate, "D")
         assessed = f["assessed_on"].to_numpy("datetime64[D]")
-        for r in _rows(f, assessed < gd):
+        for r in rows_where(f, assessed < gd):
             p.append(Problem(psrc, r, "assessed_on", f"is before the grant date {gd} of grant(s) using {cs!r}"))
         if not np.any(assessed == gd):
             p.append(Problem(gsrc, int(row), "condition_set",
                              f"{cs!r} has no assessment on the grant date {gd}: give the payout judged probable "
                              "(ASC 718) or the best estimate (IFRS 2) at the grant date"))
         ev = f["expected_vest_date"].to_numpy("datetime64[D]")
-        for r in _rows(f, ~np.isnat(ev) & (ev <= gd)):
+        for r in rows_where(f, ~np.isnat(ev) & (ev <= gd)):
             p.append(Problem(psrc, r, "expected_vest_date", f"is not after the grant date {gd}"))
         if mp is not None and not np.isnan(mp):
             over = f["payout"].to_numpy(float) > mp + 1e-12
-            for r in _rows(f, over):
+            for r in rows_where(f, over):
                 p.append(Problem(psrc, r, "payout", f"is above the grant's max_payout {mp:g}"))
     return p
 
