@@ -29,6 +29,7 @@ class DisclosureRun:
     policy: Policy
     fair_values: FairValues
     disclosure: Disclosure
+    sections: object = None
 
 
 def disclose(location, *, start, through, share_price: float | None = None, period=None, standard=None,
@@ -47,7 +48,10 @@ def disclose(location, *, start, through, share_price: float | None = None, peri
                             forfeitures=forfeitures)
     fv = compute_fair_values(ledger, policy)
     inp = build_inputs(ledger, fv, policy)
-    return DisclosureRun(ledger, policy, fv, compute_disclosure(ledger, fv, inp, policy, s, t, share_price))
+    from grantval.reporting.disclosure_features import feature_sections
+
+    return DisclosureRun(ledger, policy, fv, compute_disclosure(ledger, fv, inp, policy, s, t, share_price),
+                         feature_sections(ledger, policy, fv, inp, s, t))
 
 
 def _checks(d) -> list:
@@ -63,6 +67,12 @@ def _checks(d) -> list:
     return ties
 
 
+def _feature_sheets(run) -> list:
+    from grantval.reporting.disclosure_features import feature_sheets
+
+    return feature_sheets(run.sections) if run.sections is not None else []
+
+
 def write_disclosure(run: DisclosureRun, xlsx: pathlib.Path | None, csv_dir: pathlib.Path | None,
                      command: str = "", timestamp: bool = True) -> ExpenseOutputs:
     """Write the disclosure workbook and/or ``option_activity.csv``, ``rsu_activity.csv``, ``grant_disclosures.csv``."""
@@ -71,24 +81,27 @@ def write_disclosure(run: DisclosureRun, xlsx: pathlib.Path | None, csv_dir: pat
     from grantval.reporting.run_sheet import RunInfo, notes_sheet, run_sheet
 
     d = run.disclosure
-    paths = csv_paths(csv_dir, CSV_NAMES + (["performance_unit_activity.csv"] if d.performance_units is not None
-                                            else []))
+    extra = dict(run.sections.tables) if run.sections is not None else {}
+    names = CSV_NAMES + (["performance_unit_activity.csv"] if d.performance_units is not None else [])
+    paths = csv_paths(csv_dir, names + list(extra))
     outputs = paths + ([pathlib.Path(xlsx)] if xlsx is not None else [])
     refuse_overwriting_inputs(outputs, ledger_inputs(run.ledger))
-    checks = _checks(d)
+    checks = _checks(d) + (list(run.sections.checks) if run.sections is not None else [])
     if paths:
         pathlib.Path(csv_dir).mkdir(parents=True, exist_ok=True)
         for path, frame in zip(paths, (d.options, d.rsus, d.grants)):
             write_csv(path, frame)
         if d.performance_units is not None:
             write_csv(paths[3], d.performance_units)
+        for path, frame in zip(paths[len(names):], extra.values()):
+            write_csv(path, frame)
     if xlsx is not None:
         info = RunInfo("grantval disclose: stock-based compensation disclosure tables", command or "(Python API)",
                        run.ledger.location, run.ledger.files,
                        [("from", str(d.start)), ("through", str(d.through)),
                         ("share price at the end", "(not given)" if d.share_price is None else repr(d.share_price))],
                        run.policy.describe(), timestamp)
-        sheets = [run_sheet(info, info.workbook_time()), *disclosure_sheets(d), checks_sheet(checks),
+        sheets = [run_sheet(info, info.workbook_time()), *disclosure_sheets(d), *_feature_sheets(run), checks_sheet(checks),
                   notes_sheet([], run.ledger.warnings)]
         write_workbook(pathlib.Path(xlsx), sheets, fixed_time=info.workbook_time(), footer=info.footer())
     return ExpenseOutputs(outputs, checks)

@@ -1,0 +1,111 @@
+"""Feature sections of ``disclose``: modifications, cash-settled liabilities, purchase-plan activity.
+
+Each section is a table written as a CSV and a workbook sheet, with a tie-out check computed
+two ways.  Sections of features the ledger does not use are left out (no file, no check).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+import pandas as pd
+
+from grantval.reporting.checks import CheckRow
+
+
+@dataclass
+class FeatureSections:
+    """Tables (CSV name -> frame) and checks of the feature sections of one disclosure window."""
+
+    tables: dict = field(default_factory=dict)
+    checks: list = field(default_factory=list)
+
+
+def modification_section(inputs, ledger, start, through, out: FeatureSections) -> None:
+    """``modification_disclosure.csv``: modifications in the window by date and change.
+
+    Incremental cost, grants and holders affected (ASC 718-10-50-2(h)(2); IFRS 2.47(c), paragraph
+    letters from memory).  Check: the table's incremental cost = the per-modification rows
+    (modifications and replacements tables) dated in the window, summed on their own.
+    """
+    from grantval.reporting import modification_tables as M
+
+    report = getattr(inputs, "modifications", None)
+    if report is None:
+        return
+    s, t = np.datetime64(start, "D"), np.datetime64(through, "D")
+    table = M.disclosure_table(report, ledger)
+    d = pd.to_datetime(table["modification_date"]).to_numpy("datetime64[D]")
+    table = table[(d >= s) & (d <= t)].reset_index(drop=True)
+    mods, rep = M.modification_table(report, ledger), M.replacement_table(report, ledger)
+    total = 0.0
+    for frame, col in ((mods, "modification_date"), (rep, "replacement_date")):
+        if len(frame):
+            dd = pd.to_datetime(frame[col]).to_numpy("datetime64[D]")
+            total += float(frame["incremental_cost"].to_numpy(float)[(dd >= s) & (dd <= t)].sum())
+    out.tables["modification_disclosure.csv"] = table
+    a, b = round(float(table["incremental_cost"].sum()), 2), round(total, 2)
+    out.checks.append(CheckRow("Modifications: disclosed incremental cost = sum of the modifications in the window",
+                               a, b, 0.01, abs(a - b) <= 0.01))
+
+
+def liability_section(run, out: FeatureSections) -> None:
+    """``liability_disclosure.csv``: liability at start and end, expense, cash paid (IFRS 2.51(b); from memory).
+
+    Checks: the roll-forward lines tie (start + expense - cash paid = end), and the liability
+    checks of the expense run (cash paid recomputed from the events).
+    """
+    from grantval.reporting import liability_tables as LT
+
+    f = LT.liability_figures(run)
+    if f is None:
+        return
+    table = LT.liability_disclosure(run, f)
+    out.tables["liability_disclosure.csv"] = table
+    v = table["value"].to_numpy(float)
+    a, b = round(v[0] + v[1] - v[2], 2), round(v[3], 2)
+    out.checks.append(CheckRow("Cash-settled disclosure: start + expense - cash paid = end liability", a, b, 0.01,
+                               abs(a - b) <= 0.01))
+    out.checks += LT.liability_checks(run, f)
+
+
+def espp_section(ledger, fair_values, start, through, out: FeatureSections) -> None:
+    """``purchase_plan_activity.csv``: purchase rights open, enrolled, reached, withdrawn; shares bought.
+
+    Check: start + granted - reached - withdrawn - forfeited = end, the end counted on its own.
+    """
+    from grantval.reporting import espp_tables as E
+
+    if not (ledger.grants["award_type"] == "espp").any():
+        return
+    frame, (a, b) = E.purchase_plan_activity(ledger, fair_values, str(start), str(through))
+    out.tables["purchase_plan_activity.csv"] = frame
+    out.checks.append(CheckRow("Purchase-plan disclosure: start + granted - reached - withdrawn - forfeited = end",
+                               a, b, 0, a == b))
+
+
+def feature_sections(ledger, policy, fair_values, inputs, start, through) -> FeatureSections:
+    """All feature sections of the window ``start``..``through``."""
+    out = FeatureSections()
+    modification_section(inputs, ledger, start, through, out)
+    from grantval.attribution.liability import liability_engine
+
+    if liability_engine(inputs) is not None:
+        from grantval.attribution.periods import compute_schedule
+        from grantval.runs.expense import ExpenseRun
+
+        sched = compute_schedule(inputs, policy, str(through), str(start))
+        run = ExpenseRun(ledger, policy, fair_values, inputs, sched, str(sched.period_ends[-1]),
+                         str(sched.window_start), None)
+        liability_section(run, out)
+    espp_section(ledger, fair_values, start, through, out)
+    return out
+
+
+def feature_sheets(sections: FeatureSections) -> list:
+    """One workbook sheet per section table (the CSV name without ``.csv``)."""
+    from grantval.io.xlsx.sheet import Sheet
+
+    return [Sheet(name[:-4], frame=frame, widths={"item": 60, "line": 36, "change": 30})
+            for name, frame in sections.tables.items()]
