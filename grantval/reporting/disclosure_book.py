@@ -3,7 +3,30 @@
 from __future__ import annotations
 
 from grantval.io.xlsx.sheet import Sheet
-from grantval.reporting.formats import FORMATS
+from grantval.reporting.formats import FORMATS, MONEY, UNIT
+
+
+def line_format(item: str) -> str:
+    """Number format of one grant-disclosure line: counts whole, money to cents, rates as %, years to 2 places."""
+    if "number" in item or item.startswith("Options exercised without"):
+        return "#,##0"
+    if "weighted-average grant-date fair value" in item:
+        return UNIT
+    if "years" in item or "term" in item:
+        return "0.00"
+    if any(w in item for w in ("volatility", "rate", "yield")):
+        return "0.00%"
+    return MONEY
+
+
+def _grant_lines(grants) -> Sheet:
+    """The window's grant figures, one line each with the format of what it holds."""
+    rows: list[list] = [["Item", "Value"]]
+    fmts = {}
+    for i, (item, value) in enumerate(zip(grants["item"], grants["value"]), start=1):
+        rows.append([str(item), None if value != value else float(value)])
+        fmts[(i, 1)] = line_format(str(item))
+    return Sheet("grant_disclosures", rows=rows, row_formats=fmts, widths={1: 80, 2: 18})
 
 
 def disclosure_sheets(d) -> list[Sheet]:
@@ -11,6 +34,6 @@ def disclosure_sheets(d) -> list[Sheet]:
     return [
         Sheet("option_activity", frame=d.options, formats=FORMATS, widths={"line": 38}),
         Sheet("rsu_activity", frame=d.rsus, formats=FORMATS, widths={"line": 24}),
-        Sheet("grant_disclosures", frame=d.grants, formats={"value": "#,##0.0000"}, widths={"item": 80, "value": 18}),
+        _grant_lines(d.grants),
     ] + ([Sheet("performance_unit_activity", frame=d.performance_units, formats=FORMATS, widths={"line": 44})]
          if d.performance_units is not None else [])
