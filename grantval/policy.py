@@ -34,6 +34,11 @@ class Policy:
         expected term.
     lattice_steps : int or None
         Lattice time steps; None uses the valuation core's default.
+    mc_seed : int
+        Seed of the Monte Carlo simulation of market-condition awards (the same
+        seed gives identical reruns).
+    mc_paths : int
+        Monte Carlo paths per simulation (at least 1,000; default 100,000).
     """
 
     standard: str = "asc718"
@@ -43,6 +48,8 @@ class Policy:
     fiscal_year_end_month: int = 12
     valuation_unit: str = "award"
     lattice_steps: int | None = None
+    mc_seed: int = 20261202  # grantval.pricing.paths.DEFAULT_SEED
+    mc_paths: int = 100_000  # grantval.pricing.paths.DEFAULT_PATHS
 
     def describe(self) -> list[tuple[str, str]]:
         """(name, value) pairs for output sheets."""
@@ -77,6 +84,17 @@ def _coerce(key: str, text: str):
         if not low.isdigit() or not 4 <= int(low) <= MAX_STEPS:
             return None, f"{text!r} must be a whole number from 4 to {MAX_STEPS:,}"
         return int(low), None
+    if key == "mc_seed":
+        if not low.isdigit() or int(low) >= 2**63:
+            return None, f"{text!r} must be a whole number from 0 to 2**63 - 1"
+        return int(low), None
+    if key == "mc_paths":
+        from grantval.pricing.paths import MAX_PATHS
+
+        digits = low.replace(",", "").replace("_", "")
+        if not digits.isdigit() or not 1_000 <= int(digits) <= MAX_PATHS:
+            return None, f"{text!r} must be a whole number of paths from 1,000 to {MAX_PATHS:,}"
+        return int(digits), None
     return None, "unknown policy key"
 
 
