@@ -142,15 +142,37 @@ def check_extensions(parts: LedgerParts) -> list["Problem"]:
     return problems
 
 
-def adjust_extensions(parts: LedgerParts) -> list[Adjustment]:
-    """Every extension's terms in force (see :class:`Adjustment`), in :data:`MODULES` order."""
-    out = []
+def adjust_extensions(parts: LedgerParts, allocate: Callable) -> "tuple[Adjustment, pd.DataFrame, list] | None":
+    """Chain every extension's terms in force (see :class:`Adjustment`), in :data:`MODULES` order.
+
+    Each extension's ``adjust`` sees the terms the previous ones returned: its ``parts`` carry their
+    grants, tranches and events (in ``tables["events"]``) and ``changes`` allocated again under them
+    by ``allocate(grants, tranches, events) -> (changes, problems)``, so two adjusting features
+    combine instead of the last one replacing the others.
+
+    Returns
+    -------
+    (Adjustment, DataFrame, list) or None
+        The last terms in force (problems of every extension), the changes allocated under them and
+        the allocation problems; None when no extension changed anything.
+    """
+    last = None
+    problems: list = []
+    changes, probs = parts.changes, []
     for ext in extensions():
-        if ext.adjust is not None:
-            a = ext.adjust(parts)
-            if a is not None:
-                out.append(a)
-    return out
+        if ext.adjust is None:
+            continue
+        a = ext.adjust(parts)
+        if a is None:
+            continue
+        problems += a.problems
+        changes, probs = allocate(a.grants, a.tranches, a.events)
+        last = a
+        parts = LedgerParts(a.grants, {**parts.tables, "events": a.events}, parts.sources, a.tranches,
+                            parts.schedule_ok, changes)
+    if last is None:
+        return None
+    return Adjustment(last.grants, last.tranches, last.events, problems), changes, probs
 
 
 def contribute_extensions(g, a, pos, tables: dict, sources: dict):

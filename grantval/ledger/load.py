@@ -150,12 +150,18 @@ def read_ledger(location, planned=None) -> tuple[Ledger | None, list[Problem]]:
     epos = np.where(valid, epos, -1)
     changes, probs = apply_events(g, tranches, ev, epos, sources["events"])
     # extensions may change the terms in force (modifications): allocate the events again under them
-    for adj in adjust_extensions(LedgerParts(g, frames, sources, tranches, ok, changes)):
+    def allocate(grants, tranches_in_force, events):
+        at = np.array([index.get(k, -1) for k in events["grant_id"]], dtype=np.int64)
+        at = np.where(at >= 0, np.where(ok[np.maximum(at, 0)], at, -1), -1)
+        return apply_events(grants, tranches_in_force, events, at, sources["events"])
+
+    adjusted = adjust_extensions(LedgerParts(g, frames, sources, tranches, ok, changes), allocate)
+    if adjusted is not None:
+        adj, changes, probs = adjusted
         problems += adj.problems
         ev = adj.events
         epos = np.array([index.get(k, -1) for k in ev["grant_id"]], dtype=np.int64)
         epos = np.where(epos >= 0, np.where(ok[np.maximum(epos, 0)], epos, -1), -1)
-        changes, probs = apply_events(adj.grants, adj.tranches, ev, epos, sources["events"])
     problems += probs
     # tranche changes of the extensions' event types (ESPP withdraw)
     changes, probs = extension_changes(LedgerParts(g, frames, sources, tranches, ok), ev, epos, changes)
