@@ -41,9 +41,14 @@ class JournalResults:
     cash_paid : DataFrame or None
         Columns :data:`CASH_COLUMNS`: cash paid to settle cash-settled awards in each period of
         the close, cents (int64), one row per grant and period with a payment.
+    tax_lines : DataFrame or None
+        The tax effects' journal lines of the close's periods
+        (:func:`grantval.reporting.tax_tables.tax_journal`: period_end, account, group, debit,
+        credit, description; currency); None when the ledger has no tax rates.
     """
 
     cash_paid: pd.DataFrame | None = None
+    tax_lines: pd.DataFrame | None = None
 
 
 def _net_lines(part: pd.DataFrame, keys: list[str]) -> pd.DataFrame:
@@ -146,8 +151,26 @@ def cash_payment_lines(rows: pd.DataFrame, accounts, results: JournalResults | N
     return pd.DataFrame(out, columns=list(LINE_COLUMNS))
 
 
+def tax_effect_lines(rows: pd.DataFrame, accounts, results: JournalResults | None = None) -> pd.DataFrame:
+    """The tax effects' lines (deferred tax asset, income tax expense, taxes payable, equity), in cents.
+
+    The accounts and amounts are those of ``tax_journal.csv`` of the expense run (ASC 718-740;
+    IAS 12.68A-68C); each pair balances, so the period balance check covers them.
+    """
+    tax = None if results is None else results.tax_lines
+    if tax is None or not len(tax):
+        return pd.DataFrame(columns=list(LINE_COLUMNS))
+    group = tax["group"].astype(object)
+    return pd.DataFrame({
+        "period_end": tax["period_end"].to_numpy("datetime64[D]"), "account": tax["account"].to_numpy(dtype=object),
+        "group": group.where(group != "(none)", None).to_numpy(dtype=object),
+        "debit_cents": np.rint(tax["debit"].to_numpy(float) * 100.0).astype(np.int64),
+        "credit_cents": np.rint(tax["credit"].to_numpy(float) * 100.0).astype(np.int64),
+        "description": tax["description"].to_numpy(dtype=object), "entry": "tax"})[list(LINE_COLUMNS)]
+
+
 #: the journal's contributors, in the order their lines are written
-CONTRIBUTORS: list[Callable] = [equity_settled_lines, cash_settled_lines, cash_payment_lines]
+CONTRIBUTORS: list[Callable] = [equity_settled_lines, cash_settled_lines, cash_payment_lines, tax_effect_lines]
 
 
 def build_journal(rows: pd.DataFrame, accounts, contributors: list[Callable] | None = None,

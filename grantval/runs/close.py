@@ -247,6 +247,15 @@ def cash_paid(run: ExpenseRun) -> pd.DataFrame | None:
                          "cash_cents": paid[gi, k]})
 
 
+def tax_lines(run: ExpenseRun) -> pd.DataFrame | None:
+    """The tax journal lines of the run's periods (currency), or None when the ledger has no tax rates."""
+    from grantval.reporting.tax_tables import tax_journal
+    from grantval.runs.tax import tax_effects
+
+    eff = tax_effects(run)
+    return None if eff is None else tax_journal(run.inputs, eff)
+
+
 def _previous_booked(reg: R.Register, last: R.Close | None) -> int | None:
     if last is None:
         return None
@@ -299,7 +308,7 @@ def plan_close(reg: R.Register, location, *, through, start=None, period=None, s
         before, opening, removed = _booked_before(reg, run.inputs, last, sched.opening_cents)
         catch_up = sched.opening_cents - before
         rows = _rows(run, catch_up, removed)
-        journal = J.build_journal(rows, account_map(run.ledger), results=J.JournalResults(cash_paid(run)))
+        journal = J.build_journal(rows, account_map(run.ledger), results=J.JournalResults(cash_paid(run), tax_lines(run)))
         catch_totals = np.zeros(len(sched.period_ends), dtype=np.int64)
         catch_totals[0] = int(rows["catch_up_cents"].sum())
         bridge = compute_bridge(run.inputs, run.policy, sched.window_start, sched.period_ends, sched.opening_cents,

@@ -505,3 +505,24 @@ def test_cash_paid_at_settlement_is_journalised_in_the_period_of_the_exercise(tm
     assert dr == cr == 22_500_000
     bal = J.period_balances(lines)
     assert (bal["debit_cents"] == bal["credit_cents"]).all() and not res.failed
+
+
+def test_tax_effects_are_booked_in_the_close_journal(tmp_path):
+    from grantval.reporting import journal as J
+    from grantval.reporting.tax_tables import DTA, DEFERRED_PL
+    from tests.attribution.tax_ledgers import event, grant, ledger, rate
+
+    # 1,000 options, fair value 4, one tranche vesting 2028-01-01, rate 21% (invented; hand computation,
+    # ASC 718-740-30-1, from memory): cost 4,000 recognised in 2027, deferred tax asset 4,000 x 21% = 840.00,
+    # Dr deferred tax asset / Cr deferred income tax benefit in the year ending 2027-12-31.
+    led = ledger(tmp_path / "l", grants=[grant("G1")], rates=[rate("*", "2027-01-01", "0.21")],
+                 events=[event("G1", "2028-06-30", "exercise", 600, 30)])
+    res = C.close(led, register=tmp_path / "r.gvreg", through="2027-12-31", start="2027-01-01", period="year")
+    tax = res.plan.journal[res.plan.journal["entry"] == "tax"]
+    assert tax[tax["account"] == DTA]["debit_cents"].sum() == 84_000
+    assert tax[tax["account"] == DEFERRED_PL]["credit_cents"].sum() == 84_000
+    bal = J.period_balances(res.plan.journal)
+    assert (bal["debit_cents"] == bal["credit_cents"]).all() and not res.failed
+    with R.open_register(tmp_path / "r.gvreg", readonly=True) as reg:  # the register holds the tax lines
+        stored = reg.journal()
+    assert stored.loc[stored["account"] == DTA, "debit_cents"].sum() == 84_000
