@@ -1,7 +1,9 @@
 """Journal lines of a close: debits and credits, in cents, built by contributors.
 
-A *contributor* is a function ``contribute(rows, accounts) -> DataFrame`` that
-returns journal lines for the booked rows it handles (columns :data:`LINE_COLUMNS`).
+A *contributor* is a function ``contribute(rows, accounts, results=None) -> DataFrame``
+that returns journal lines for the booked rows it handles (columns :data:`LINE_COLUMNS`);
+``results`` (:class:`JournalResults`) carries figures of the close that are not booked rows,
+such as the cash paid to settle cash-settled awards.
 The core contributor, :func:`equity_settled_lines`, journalises the awards whose
 kind is settled in shares: debit stock-based compensation expense by group (cost
 centre), credit additional paid-in capital; a reversal (negative net amount)
@@ -13,6 +15,7 @@ expense, so the close's checks count them).
 
 from __future__ import annotations
 
+from dataclasses import dataclass
 from typing import Callable
 
 import numpy as np
@@ -23,6 +26,29 @@ import pandas as pd
 LINE_COLUMNS = ("period_end", "account", "group", "debit_cents", "credit_cents", "description", "entry")
 #: columns of the rows given to contributors
 ROW_COLUMNS = ("grant_id", "group", "award_type", "settlement", "period_end", "booked_cents", "catch_up_cents")
+
+
+#: columns of :attr:`JournalResults.cash_paid`
+CASH_COLUMNS = ("grant_id", "group", "award_type", "period_end", "cash_cents")
+
+
+@dataclass
+class JournalResults:
+    """Figures of a close a contributor may need beside the booked rows.
+
+    Attributes
+    ----------
+    cash_paid : DataFrame or None
+        Columns :data:`CASH_COLUMNS`: cash paid to settle cash-settled awards in each period of
+        the close, cents (int64), one row per grant and period with a payment.
+    tax_lines : DataFrame or None
+        The tax effects' journal lines of the close's periods
+        (:func:`grantval.reporting.tax_tables.tax_journal`: period_end, account, group, debit,
+        credit, description; currency); None when the ledger has no tax rates.
+    """
+
+    cash_paid: pd.DataFrame | None = None
+    tax_lines: pd.DataFrame | None = None
 
 
 def _net_lines(part: pd.DataFrame, keys: list[str]) -> pd.DataFrame:
@@ -65,7 +91,7 @@ def _settled_lines(rows: pd.DataFrame, accounts, settlement: str, entry: str, ex
     return pd.DataFrame(out, columns=list(LINE_COLUMNS))
 
 
-def equity_settled_lines(rows: pd.DataFrame, accounts) -> pd.DataFrame:
+def equity_settled_lines(rows: pd.DataFrame, accounts, results: JournalResults | None = None) -> pd.DataFrame:
     """Expense by group against paid-in capital, for awards settled in shares.
 
     Parameters
@@ -84,23 +110,71 @@ def equity_settled_lines(rows: pd.DataFrame, accounts) -> pd.DataFrame:
     return _settled_lines(rows, accounts, "shares", "equity", "", " (equity-settled awards)")
 
 
-def cash_settled_lines(rows: pd.DataFrame, accounts) -> pd.DataFrame:
+def cash_settled_lines(rows: pd.DataFrame, accounts, results: JournalResults | None = None) -> pd.DataFrame:
     """Expense by group against the share-based payment liability, for awards settled in cash.
 
     The amount booked for a cash-settled award is the change in its liability plus the cash paid
     (IFRS 2.30-33; ASC 718-30-35): debit expense, credit the liability (a reversal the other
-    way).  The payment itself (debit the liability, credit cash) is the treasury's entry and is
-    not journalised here; ``liabilities.csv`` of the expense run gives the cash paid per period.
+    way).  The payment itself (debit the liability, credit cash) is :func:`cash_payment_lines`.
     """
     return _settled_lines(rows, accounts, "cash", "liability", " (cash-settled awards)",
                           " (liability of cash-settled awards)")
 
 
+def cash_payment_lines(rows: pd.DataFrame, accounts, results: JournalResults | None = None) -> pd.DataFrame:
+    """Cash paid to settle cash-settled awards: debit the liability by group, credit cash.
+
+    In the period of the settlement (exercise of a cash SAR, vesting of a cash unit): the
+    liability is settled by the payment (IFRS 2.30-33, IG Example 12; ASC 718-30-35).  The
+    amounts are ``results.cash_paid`` (none without it); the lines balance per period.
+    """
+    cash = None if results is None else results.cash_paid
+    if cash is None or not len(cash):
+        return pd.DataFrame(columns=list(LINE_COLUMNS))
+    part = cash.copy()
+    award = part["award_type"].to_numpy(dtype=object)
+    part["liability_account"] = accounts.accounts(award, "liability")
+    part["cash_account"] = accounts.accounts(award, "cash")
+    part["group"] = part["group"].astype(object).where(part["group"].notna(), "").fillna("")
+    out = []
+    for pe, per in part.groupby("period_end", sort=True):
+        day = np.datetime64(pe, "D")
+        dr = per.groupby(["group", "liability_account"], sort=True)["cash_cents"].sum().reset_index()
+        for g, acct, amt in zip(dr["group"], dr["liability_account"], dr["cash_cents"]):
+            where = f", group {g}" if g else ""
+            out.append((pe, acct, g or None, int(amt), 0,
+                        f"Settlement of cash-settled awards (cash paid), period ending {day}{where}", "cash"))
+        cr = per.groupby("cash_account", sort=True)["cash_cents"].sum().reset_index()
+        for acct, amt in zip(cr["cash_account"], cr["cash_cents"]):
+            out.append((pe, acct, None, 0, int(amt),
+                        f"Cash paid to settle cash-settled awards, period ending {day}", "cash"))
+    return pd.DataFrame(out, columns=list(LINE_COLUMNS))
+
+
+def tax_effect_lines(rows: pd.DataFrame, accounts, results: JournalResults | None = None) -> pd.DataFrame:
+    """The tax effects' lines (deferred tax asset, income tax expense, taxes payable, equity), in cents.
+
+    The accounts and amounts are those of ``tax_journal.csv`` of the expense run (ASC 718-740;
+    IAS 12.68A-68C); each pair balances, so the period balance check covers them.
+    """
+    tax = None if results is None else results.tax_lines
+    if tax is None or not len(tax):
+        return pd.DataFrame(columns=list(LINE_COLUMNS))
+    group = tax["group"].astype(object)
+    return pd.DataFrame({
+        "period_end": tax["period_end"].to_numpy("datetime64[D]"), "account": tax["account"].to_numpy(dtype=object),
+        "group": group.where(group != "(none)", None).to_numpy(dtype=object),
+        "debit_cents": np.rint(tax["debit"].to_numpy(float) * 100.0).astype(np.int64),
+        "credit_cents": np.rint(tax["credit"].to_numpy(float) * 100.0).astype(np.int64),
+        "description": tax["description"].to_numpy(dtype=object), "entry": "tax"})[list(LINE_COLUMNS)]
+
+
 #: the journal's contributors, in the order their lines are written
-CONTRIBUTORS: list[Callable] = [equity_settled_lines, cash_settled_lines]
+CONTRIBUTORS: list[Callable] = [equity_settled_lines, cash_settled_lines, cash_payment_lines, tax_effect_lines]
 
 
-def build_journal(rows: pd.DataFrame, accounts, contributors: list[Callable] | None = None) -> pd.DataFrame:
+def build_journal(rows: pd.DataFrame, accounts, contributors: list[Callable] | None = None,
+                  results: JournalResults | None = None) -> pd.DataFrame:
     """Every contributor's lines, ordered by period end (contributors in order within a period).
 
     Returns
@@ -108,7 +182,7 @@ def build_journal(rows: pd.DataFrame, accounts, contributors: list[Callable] | N
     DataFrame, columns :data:`LINE_COLUMNS`
         Debits and credits are non-negative int64 cents.
     """
-    parts = [c(rows, accounts) for c in (CONTRIBUTORS if contributors is None else contributors)]
+    parts = [c(rows, accounts, results) for c in (CONTRIBUTORS if contributors is None else contributors)]
     parts = [p for p in parts if len(p)]
     if not parts:
         return pd.DataFrame({c: pd.Series([], dtype=("int64" if c.endswith("_cents") else object))

@@ -228,6 +228,34 @@ def _rows(run: ExpenseRun, catch_up: np.ndarray, removed: pd.DataFrame) -> pd.Da
     return rows
 
 
+def cash_paid(run: ExpenseRun) -> pd.DataFrame | None:
+    """Cash paid per cash-settled grant in each period of the run (:data:`journal.CASH_COLUMNS`), or None."""
+    from grantval.reporting.liability_tables import liability_figures
+
+    f = liability_figures(run)
+    if f is None:
+        return None
+    paid = np.diff(np.column_stack([f["opening_cash"], f["cash"]]), axis=1).astype(np.int64)
+    gi, k = np.nonzero(paid)
+    g = run.ledger.grants
+    types = dict(zip(g["grant_id"], g["award_type"]))
+    pos = f["grants"][gi]
+    ids = np.asarray(run.inputs.grant_id, dtype=object)[pos]
+    return pd.DataFrame({"grant_id": ids, "group": np.asarray(run.inputs.group, dtype=object)[pos],
+                         "award_type": np.array([types.get(i, "*") for i in ids], dtype=object),
+                         "period_end": np.asarray(f["ends"], dtype="datetime64[D]")[k],
+                         "cash_cents": paid[gi, k]})
+
+
+def tax_lines(run: ExpenseRun) -> pd.DataFrame | None:
+    """The tax journal lines of the run's periods (currency), or None when the ledger has no tax rates."""
+    from grantval.reporting.tax_tables import tax_journal
+    from grantval.runs.tax import tax_effects
+
+    eff = tax_effects(run)
+    return None if eff is None else tax_journal(run.inputs, eff)
+
+
 def _previous_booked(reg: R.Register, last: R.Close | None) -> int | None:
     if last is None:
         return None
@@ -280,7 +308,7 @@ def plan_close(reg: R.Register, location, *, through, start=None, period=None, s
         before, opening, removed = _booked_before(reg, run.inputs, last, sched.opening_cents)
         catch_up = sched.opening_cents - before
         rows = _rows(run, catch_up, removed)
-        journal = J.build_journal(rows, account_map(run.ledger))
+        journal = J.build_journal(rows, account_map(run.ledger), results=J.JournalResults(cash_paid(run), tax_lines(run)))
         catch_totals = np.zeros(len(sched.period_ends), dtype=np.int64)
         catch_totals[0] = int(rows["catch_up_cents"].sum())
         bridge = compute_bridge(run.inputs, run.policy, sched.window_start, sched.period_ends, sched.opening_cents,

@@ -485,3 +485,44 @@ def test_read_back_check_turns_to_fail_when_the_register_holds_other_rows(tmp_pa
                 return rows.assign(booked_cents=rows["booked_cents"] + np.where(np.arange(len(rows)) == 0, 1, 0))
 
         assert not C._read_back_check(Altered(), 1, res.plan).tool_pass
+
+
+def test_cash_paid_at_settlement_is_journalised_in_the_period_of_the_exercise(tmp_path):
+    from grantval.reporting import journal as J
+    from tests.attribution.cash_ledgers import IFRS_VALUES, ifrs_example_12
+
+    # year-end values for the close's calendar periods (18.20 and 21.40 reused; only the cash is asserted)
+    led = ifrs_example_12(tmp_path / "l", values=IFRS_VALUES + (("2031-12-31", "18.20"), ("2032-12-31", "21.40")))
+    res = C.close(led, register=tmp_path / "r.gvreg", through="2032-12-31", period="year")
+    lines = res.plan.journal
+    cash = lines[lines["entry"] == "cash"]
+    # Exercise event of the ledger (IFRS 2 IG Example 12, end of year 3 = 2032-01-01 in the ledger):
+    # 15,000 SARs x intrinsic value (share price 25 - exercise price 10 = 15.00) = 225,000.00 paid,
+    # in the year ending 2032-12-31; none paid in 2029-2031 (computed by hand from the event row).
+    assert set(cash["period_end"].astype(str)) == {"2032-12-31"}
+    dr = cash[cash["account"] == "Share-based payment liability"]["debit_cents"].sum()
+    cr = cash[cash["account"] == "Cash"]["credit_cents"].sum()
+    assert dr == cr == 22_500_000
+    bal = J.period_balances(lines)
+    assert (bal["debit_cents"] == bal["credit_cents"]).all() and not res.failed
+
+
+def test_tax_effects_are_booked_in_the_close_journal(tmp_path):
+    from grantval.reporting import journal as J
+    from grantval.reporting.tax_tables import DTA, DEFERRED_PL
+    from tests.attribution.tax_ledgers import event, grant, ledger, rate
+
+    # 1,000 options, fair value 4, one tranche vesting 2028-01-01, rate 21% (invented; hand computation,
+    # ASC 718-740-30-1, from memory): cost 4,000 recognised in 2027, deferred tax asset 4,000 x 21% = 840.00,
+    # Dr deferred tax asset / Cr deferred income tax benefit in the year ending 2027-12-31.
+    led = ledger(tmp_path / "l", grants=[grant("G1")], rates=[rate("*", "2027-01-01", "0.21")],
+                 events=[event("G1", "2028-06-30", "exercise", 600, 30)])
+    res = C.close(led, register=tmp_path / "r.gvreg", through="2027-12-31", start="2027-01-01", period="year")
+    tax = res.plan.journal[res.plan.journal["entry"] == "tax"]
+    assert tax[tax["account"] == DTA]["debit_cents"].sum() == 84_000
+    assert tax[tax["account"] == DEFERRED_PL]["credit_cents"].sum() == 84_000
+    bal = J.period_balances(res.plan.journal)
+    assert (bal["debit_cents"] == bal["credit_cents"]).all() and not res.failed
+    with R.open_register(tmp_path / "r.gvreg", readonly=True) as reg:  # the register holds the tax lines
+        stored = reg.journal()
+    assert stored.loc[stored["account"] == DTA, "debit_cents"].sum() == 84_000

@@ -27,6 +27,7 @@ DEFAULT_ACCOUNTS: dict[str, str] = {
     "expense": "Stock-based compensation expense",
     "equity": "Additional paid-in capital",
     "liability": "Share-based payment liability",
+    "cash": "Cash",
 }
 #: entries whose account a feature may set (features add theirs to this tuple by importing it)
 KNOWN_ENTRIES: list[str] = list(DEFAULT_ACCOUNTS)
