@@ -6,6 +6,8 @@ give the same bytes for every kind of object column, including a trailing
 column-totals row of SUM formulas written apart from the data rows.
 """
 
+import datetime as dt
+
 import numpy as np
 import pandas as pd
 
@@ -33,6 +35,8 @@ def _frame() -> pd.DataFrame:
         "nan_text": np.array(["u", np.nan, None, "v", pd.NaT], dtype=object),
         "bools": np.array([True, False, np.bool_(True), False, True], dtype=object),
         "empty": np.array([None] * 5, dtype=object),
+        "dates": np.array([dt.date(2027, 1, 1), pd.Timestamp("2028-02-29 13:00"), None, np.datetime64("2030-12-31"),
+                           dt.datetime(1999, 12, 31, 23, 59)], dtype=object),
     })
 
 

@@ -11,6 +11,7 @@ values as formulas.
 
 from __future__ import annotations
 
+import datetime as _dt
 import re
 
 import numpy as np
@@ -81,7 +82,7 @@ def _any_cell(v) -> bytes:
 
 
 #: kinds of the values of an object column, by Python type (anything else is written cell by cell)
-_NONE, _FORMULA, _TEXT, _BOOL, _FLOAT, _INT, _OTHER = range(7)
+_NONE, _FORMULA, _TEXT, _BOOL, _FLOAT, _INT, _DATE, _OTHER = range(8)
 
 
 def _kind_of(t: type) -> int:
@@ -99,6 +100,8 @@ def _kind_of(t: type) -> int:
         return _FLOAT
     if issubclass(t, (int, np.integer)):
         return _INT
+    if issubclass(t, (_dt.date, np.datetime64)):  # pd.Timestamp is a datetime
+        return _DATE
     return _OTHER
 
 
@@ -139,6 +142,14 @@ def _tail_pieces(values: np.ndarray, kind: int) -> list:
         except OverflowError:
             text = np.array([str(int(v)).encode() for v in values.tolist()], dtype=bytes)
         return [b"><v>", text, b"</v></c>"]
+    if kind == _DATE:
+        try:
+            days = np.array(values.tolist(), dtype="datetime64[D]")
+        except (TypeError, ValueError):  # for example dates with a time zone: one by one
+            return [np.array([_any_cell(v) for v in values.tolist()], dtype=bytes)]
+        nat = np.isnat(days)
+        serial = np.where(nat, 0, days.astype(np.int64) + _EXCEL_EPOCH).astype("S12")
+        return [np.where(nat, b"/>", b"><v>"), np.where(nat, b"", serial), np.where(nat, b"", b"</v></c>")]
     if kind == _TEXT:
         codes, uniques = pd.factorize(pd.Series(values, dtype=object), use_na_sentinel=True)
         table = np.array([_xml_text(str(u)) for u in uniques] + [b""], dtype=bytes)
