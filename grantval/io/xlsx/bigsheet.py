@@ -11,6 +11,7 @@ values as formulas.
 
 from __future__ import annotations
 
+import datetime as _dt
 import re
 
 import numpy as np
@@ -22,6 +23,7 @@ from grantval.io.cells import col_letter
 CHUNK = 100_000
 _EXCEL_EPOCH = 25569  # days from 1899-12-30 to 1970-01-01
 _BAD_XML = re.compile("[\x00-\x08\x0b\x0c\x0e-\x1f]")
+_BAD_XML_BUT_SEP = re.compile("[\x00\x02-\x08\x0b\x0c\x0e-\x1f]")
 
 
 def _xml_text(text: str) -> bytes:
@@ -79,15 +81,122 @@ def _any_cell(v) -> bytes:
     return b"><v>" + repr(float(v)).encode() + b"</v></c>"
 
 
+#: kinds of the values of an object column, by Python type (anything else is written cell by cell)
+_NONE, _FORMULA, _TEXT, _BOOL, _FLOAT, _INT, _DATE, _OTHER = range(8)
+
+
+def _kind_of(t: type) -> int:
+    from grantval.io.xlsx.sheet import Formula
+
+    if t is Formula:
+        return _FORMULA
+    if t is type(None) or t is type(pd.NaT):
+        return _NONE
+    if issubclass(t, str):
+        return _TEXT
+    if issubclass(t, (bool, np.bool_)):
+        return _BOOL
+    if issubclass(t, (float, np.floating)):
+        return _FLOAT
+    if issubclass(t, (int, np.integer)):
+        return _INT
+    if issubclass(t, (_dt.date, np.datetime64)):  # pd.Timestamp is a datetime
+        return _DATE
+    return _OTHER
+
+
+def _object_kinds(values: np.ndarray) -> np.ndarray:
+    """The kind of every value of an object array, classifying each distinct type once."""
+    codes, types = pd.factorize(np.array(list(map(type, values)), dtype=object))
+    return np.array([_kind_of(t) for t in types], dtype=np.int8)[codes]
+
+
+def _escaped(texts: list[str]) -> np.ndarray:
+    """XML-escaped UTF-8 bytes of many texts, escaped as one joined block (\\x01 between them)."""
+    joined = "\x01".join(texts)
+    if joined.count("\x01") != len(texts) - 1:  # a text holds the separator: escape one by one
+        return np.array([_xml_text(t) for t in texts], dtype=bytes)
+    joined = _BAD_XML_BUT_SEP.sub("", joined)
+    joined = joined.replace("&", "&amp;").replace("<", "&lt;").replace(">", "&gt;")
+    return np.array(joined.encode("utf-8").split(b"\x01"), dtype=bytes)
+
+
+def _tail_pieces(values: np.ndarray, kind: int) -> list:
+    """Pieces of the cells' text after reference and style, for values that are all of one kind."""
+    n = len(values)
+    if kind == _NONE:
+        return [b"/>"]
+    if kind == _FORMULA:
+        return [b"><f>", _escaped([v[1:] for v in values.tolist()]), b"</f></c>"]
+    if kind == _BOOL:
+        return [b' t="b"><v>', np.where(values.astype(bool), b"1", b"0"), b"</v></c>"]
+    if kind == _FLOAT:  # written like repr(float), as for single cells
+        v = values.astype(float)
+        codes, uniques = pd.factorize(v, use_na_sentinel=True)
+        table = np.array([repr(x).encode() for x in np.asarray(uniques, dtype=float).tolist()] + [b""], dtype=bytes)
+        missing = codes < 0
+        return [np.where(missing, b"/>", b"><v>"), table[codes], np.where(missing, b"", b"</v></c>")]
+    if kind == _INT:
+        try:
+            text = values.astype(np.int64).astype("S21")
+        except OverflowError:
+            text = np.array([str(int(v)).encode() for v in values.tolist()], dtype=bytes)
+        return [b"><v>", text, b"</v></c>"]
+    if kind == _DATE:
+        try:
+            days = np.array(values.tolist(), dtype="datetime64[D]")
+        except (TypeError, ValueError):  # for example dates with a time zone: one by one
+            return [np.array([_any_cell(v) for v in values.tolist()], dtype=bytes)]
+        nat = np.isnat(days)
+        serial = np.where(nat, 0, days.astype(np.int64) + _EXCEL_EPOCH).astype("S12")
+        return [np.where(nat, b"/>", b"><v>"), np.where(nat, b"", serial), np.where(nat, b"", b"</v></c>")]
+    if kind == _TEXT:
+        codes, uniques = pd.factorize(pd.Series(values, dtype=object), use_na_sentinel=True)
+        table = np.array([_xml_text(str(u)) for u in uniques] + [b""], dtype=bytes)
+        missing = codes < 0
+        return [np.where(missing, b"/>", b' t="inlineStr"><is><t xml:space="preserve">'), table[codes],
+                np.where(missing, b"", b"</t></is></c>")]
+    return [np.array([_any_cell(v) for v in values.tolist()], dtype=bytes)] if n else [b""]
+
+
+def _joined(pieces: list, n: int) -> np.ndarray:
+    """One bytes array from constant and per-row pieces."""
+    out = np.full(n, b"", dtype="S1")
+    for p in pieces:
+        out = np.char.add(out, p)
+    return out
+
+
+def _object_tail(values: np.ndarray) -> list:
+    """Tail pieces of an object column: vectorised per kind of value, scattered back in row order."""
+    inferred = pd.api.types.infer_dtype(values, skipna=True)  # one C pass; None and NaN are skipped
+    if inferred in ("floating", "integer", "boolean"):
+        kind = {"floating": _FLOAT, "integer": _INT, "boolean": _BOOL}[inferred]
+        try:
+            if kind == _FLOAT or not pd.isna(values).any():  # missing ints and bools are written by kind below
+                return _tail_pieces(values, kind)
+        except (TypeError, ValueError):  # for example NaT among floats
+            pass
+    kinds = _object_kinds(values)
+    present = np.unique(kinds)
+    if len(present) == 1:
+        return _tail_pieces(values, int(present[0]))
+    if set(present.tolist()) <= {_NONE, _TEXT}:
+        return _tail_pieces(values, _TEXT)
+    out = np.empty(len(values), dtype=object)
+    for k in present.tolist():
+        at = np.flatnonzero(kinds == k)
+        out[at] = _joined(_tail_pieces(values[at], k), len(at)).tolist()
+    return [np.array(out.tolist(), dtype=bytes)]
+
+
 def _column_pieces(values: np.ndarray, letter: bytes, style: bytes, rownum: np.ndarray) -> list:
     """The pieces of one column's cells for a block of rows."""
     from grantval.io.csv import _float_field
-    from grantval.io.xlsx.sheet import Formula
 
     head = [b'<c r="', letter, rownum, b'"', style]
-    if values.dtype == object and not all(v is None or (isinstance(v, str) and not isinstance(v, Formula))
-                                          for v in values):
-        return head + [np.array([_any_cell(v) for v in values], dtype=bytes)]
+    if values.dtype == object:
+        return head + _object_tail(values)
     if values.dtype == bool:
         return head + [b' t="b"><v>', np.where(values, b"1", b"0"), b"</v></c>"]
     if np.issubdtype(values.dtype, np.datetime64):
@@ -101,13 +210,8 @@ def _column_pieces(values: np.ndarray, letter: bytes, style: bytes, rownum: np.n
         missing = np.isnan(values)
         text = _float_field(values.astype(float))
         return head + [np.where(missing, b"/>", b"><v>"), text, np.where(missing, b"", b"</v></c>")]
-    # text (from the ledger or the tool): inline strings, never formulas
-    codes, uniques = pd.factorize(pd.Series(values, dtype=object), use_na_sentinel=True)
-    table = np.array([_xml_text(str(u)) for u in uniques] + [b""], dtype=bytes)
-    text = table[codes]
-    missing = codes < 0
-    return head + [np.where(missing, b"/>", b' t="inlineStr"><is><t xml:space="preserve">'), text,
-                   np.where(missing, b"", b"</t></is></c>")]
+    # text of other dtypes (from the ledger or the tool): inline strings, never formulas
+    return head + _tail_pieces(np.asarray(values, dtype=object), _TEXT)
 
 
 def rows_xml(frame: pd.DataFrame, first_row: int, styles: dict[str, bytes]) -> bytes:
@@ -132,9 +236,24 @@ def rows_xml(frame: pd.DataFrame, first_row: int, styles: dict[str, bytes]) -> b
     return b"".join(out)
 
 
+def _is_total_row(row: pd.Series) -> bool:
+    """A column-totals row (it holds the label ``Total``), as the openpyxl path detects it."""
+    return any(isinstance(v, str) and v == "Total" for v in row.tolist())
+
+
 def splice(sheet_xml: bytes, frame: pd.DataFrame) -> bytes:
-    """Insert rows 3.. of ``frame`` (all but its first data row) into a sheet written by openpyxl."""
+    """Insert rows 3.. of ``frame`` (all but its first data row) into a sheet written by openpyxl.
+
+    A trailing totals row (formulas, the label ``Total``) is written apart
+    from the data rows, so each data column keeps one kind of value and is
+    written vectorised.
+    """
     styles = first_row_styles(sheet_xml)
-    body = rows_xml(frame.iloc[1:], 3, styles)
+    data = frame.iloc[1:]
+    body = b""
+    if len(data) > 1 and _is_total_row(data.iloc[-1]):
+        body = rows_xml(data.iloc[-1:], 3 + len(data) - 1, styles)
+        data = data.iloc[:-1]
+    body = rows_xml(data, 3, styles) + body
     at = sheet_xml.rindex(b"</sheetData>")
     return sheet_xml[:at] + body + sheet_xml[at:]
