@@ -1,4 +1,4 @@
-"""Tie-out checks: two independent figures, a tolerance, a live PASS/FAIL formula and the tool's verdict."""
+"""Tie-out checks: two independent figures, a tolerance and a live PASS/FAIL formula (the one verdict column)."""
 
 from __future__ import annotations
 
@@ -23,19 +23,24 @@ class CheckRow:
 
 
 def checks_sheet(rows: list[CheckRow]) -> Sheet:
-    """Checks as rows: figure A, figure B, difference, tolerance, status (formula) and the tool's verdict."""
-    out: list[list] = [["Check", "Figure A", "Figure B", "Difference", "Tolerance", "Status", "Tool's verdict"]]
+    """Checks as rows: figure A, figure B, difference, tolerance and one verdict column.
+
+    The verdict is a live formula on the two figures and the tolerance, so it follows the
+    cells as recalculated; the tool's own verdict (``CheckRow.tool_pass``, the exit status
+    and the "check failed" lines) is compared with it in tests, not printed a second time.
+    """
+    out: list[list] = [["Check", "Figure A", "Figure B", "Difference", "Tolerance", "Verdict"]]
     fmts = {}
     for i, c in enumerate(rows):
         r = i + 2
         tol = Formula(f"={c.tolerance!r}*ABS(C{r})") if c.relative else c.tolerance
         out.append([c.name, c.a, c.b, Formula(f"=B{r}-C{r}"), tol,
-                    Formula(f'=IF(ABS(D{r})<=E{r},"PASS","FAIL")'), "PASS" if c.tool_pass else "FAIL"])
+                    Formula(f'=IF(ABS(D{r})<=E{r},"PASS","FAIL")')])
         for j in (1, 2, 3):
             fmts[(i + 1, j)] = "#,##0.00########"
         fmts[(i + 1, 4)] = "#,##0.00########"
-    return Sheet("checks", rows=out, widths={1: 70, 2: 20, 3: 20, 4: 14, 5: 12, 6: 10, 7: 14}, row_formats=fmts,
-                 verdicts=f"F2:G{len(rows) + 1}")
+    return Sheet("checks", rows=out, widths={1: 70, 2: 20, 3: 20, 4: 14, 5: 12, 6: 10}, row_formats=fmts,
+                 verdicts=f"F2:F{len(rows) + 1}")
 
 
 def _bsm_by_erf(s, k, t, r, v, q) -> np.ndarray:
@@ -121,6 +126,25 @@ def _schedule_checks(run, fig: ExpenseFigures, n_periods: int) -> list[CheckRow]
     ]
 
 
+def _equity_rows_sum(equity: np.ndarray, columns: tuple[str, ...], value: float, limit: int = 8000):
+    """A live sum over the ``unrecognized`` rows of equity-settled grants only, in ``columns``.
+
+    The grant-date side of the check (tranches' quantity x fair value) carries no value for
+    cash-settled grants (their cost is the liability's, checked on its own), so the live
+    sum must leave their rows out too.  Rows are summed as runs of consecutive equity rows;
+    a formula longer than ``limit`` characters (spreadsheets refuse over 8,192) falls back
+    to the tool's figure ``value``.
+    """
+    idx = np.flatnonzero(equity) + 2
+    if idx.size == 0:
+        return Formula("=0")
+    breaks = np.flatnonzero(np.diff(idx) > 1)
+    starts, ends = np.r_[idx[0], idx[breaks + 1]], np.r_[idx[breaks], idx[-1]]
+    terms = [f"SUM(unrecognized!{c}{a}:{c}{b})" for c in columns for a, b in zip(starts, ends)]
+    text = "=" + "+".join(terms)
+    return Formula(text) if len(text) <= limit else value
+
+
 def _cost_checks(run, tranches, unrec) -> list[CheckRow]:
     """Recognised plus unrecognised cost against expected quantities times fair values."""
     n = run.ledger.n_grants
@@ -142,13 +166,12 @@ def _cost_checks(run, tranches, unrec) -> list[CheckRow]:
     per_grant = np.abs(sched.cumulative_cents[:, -1] + np.round(unrec["unrecognised_cost"].to_numpy() * 100)
                        - np.floor(sched.at_through.expected_total * 100 + 0.5))
     off = int(np.sum(per_grant > 1))
-    rec, unr = uc["recognised_to_date"], uc["unrecognised_cost"]
     by_formula = (expected if nt > EXCEL_ROWS else
                   Formula(f"=SUMPRODUCT(tranches!{q_col}2:{q_col}{nt},tranches!{fv_col}2:{fv_col}{nt})"
                           f"+SUMPRODUCT(tranches!{c_col}2:{c_col}{nt},tranches!{fv_col}2:{fv_col}{nt})"))
     return [
         CheckRow("Recognised + unrecognised = expected quantity x fair value (all tranches)",
-                 Formula(f"=SUM(unrecognized!{rec}2:{rec}{n + 1})+SUM(unrecognized!{unr}2:{unr}{n + 1})"),
+                 _equity_rows_sum(equity, (uc["recognised_to_date"], uc["unrecognised_cost"]), rec_plus),
                  by_formula, round(0.01 * n + 0.005, 2), abs(rec_plus - expected) <= 0.01 * n + 0.005),
         CheckRow("Grants whose recognised + unrecognised differs from expected quantity x fair value by over a cent",
                  off, 0, 0, off == 0),
