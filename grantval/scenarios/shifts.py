@@ -74,7 +74,8 @@ def apply_shifts(ctx, shifts: Shifts) -> None:
     moved = shifts.mask & ~ctx.is_supplied
     ctx.moved = moved
     ids = ctx.ledger.grants["grant_id"].to_numpy()
-    option = flag(ctx.award, "option_terms")
+    # Purchase-plan rights are priced with volatility and rate too (issue #19).
+    option = flag(ctx.award, "option_terms") | (np.asarray(ctx.award) == "espp")
     for name, where in (("share_price", moved), ("volatility", moved & option),
                         ("risk_free_rate", moved & option), ("dividend_yield", moved)):
         setattr(ctx, name, _shift(shifts, name, getattr(ctx, name), where, ids))
