@@ -129,3 +129,18 @@ def test_payout_shift_moves_only_performance_unit_expense(tmp_path):
 def test_payout_shift_without_performance_units_is_refused():
     with pytest.raises(UsageError, match="payout changes nothing"):
         api.whatif(SAMPLE, vary=["payout=+0.5"], grants_from="2026-06-01")
+
+
+@pytest.mark.parametrize("spec, sigma, rate", [("volatility=+0.1", 0.4, 0.05), ("risk_free_rate=+0.01", 0.3, 0.06)])
+def test_volatility_and_rate_shifts_move_purchase_plan_rights(tmp_path, spec, sigma, rate):
+    # issue #19: purchase rights are priced with volatility and rate (ASC 718-50-55 components),
+    # so a what-if shift of either moves them; the reference is QuantLib's blackFormula
+    # components (tests/attribution/test_espp.py) at the shifted inputs, not the tool's own formula
+    from tests.attribution.test_espp import enrol, ledger, offering, ql_espp
+
+    folder = ledger(tmp_path / "l", [offering()], [enrol()])
+    run = api.whatif(folder, vary=[spec], through="2027-12-31")
+    base, shifted = (r.fair_values.grant_value[1] for r in run.results)
+    assert base == pytest.approx(ql_espp(20, 181, 0.05, 0.3, 0.01, 0.15, "fixed_shares"), rel=1e-10)
+    assert shifted == pytest.approx(ql_espp(20, 181, rate, sigma, 0.01, 0.15, "fixed_shares"), rel=1e-10)
+    assert shifted > base

@@ -71,6 +71,10 @@ class AwardKind:
     settlement : str
         ``shares`` (equity-classified: cost credited to equity) or ``cash``
         (liability-classified: remeasured until settled).
+    priced_with_volatility : bool
+        The value depends on the expected volatility and the risk-free rate
+        (options, appreciation rights, purchase rights), so what-if shifts of
+        those inputs apply to it.
     """
 
     name: str
@@ -80,3 +84,4 @@ class AwardKind:
     disclosure_group: str
     value: Callable[["ValuationContext", np.ndarray], KindValues]
     settlement: str = "shares"
+    priced_with_volatility: bool = False

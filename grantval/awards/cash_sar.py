@@ -46,5 +46,5 @@ def value(ctx, grants: np.ndarray) -> KindValues:
     return out
 
 
-KIND = AwardKind(name="cash_sar", description="share appreciation right, settled in cash", option_terms=True,
+KIND = AwardKind(name="cash_sar", description="share appreciation right, settled in cash", option_terms=True, priced_with_volatility=True,
                  exercisable=True, disclosure_group="cash", value=value, settlement="cash")

@@ -89,4 +89,5 @@ def _capped(args: dict, vals: np.ndarray, k: np.ndarray, lookback: bool, cache) 
 
 
 KIND = AwardKind(name="espp", description="employee share purchase plan right, settled in shares",
-                 option_terms=False, exercisable=False, disclosure_group="purchase_plans", value=value)
+                 option_terms=False, exercisable=False, disclosure_group="purchase_plans", value=value,
+                 priced_with_volatility=True)

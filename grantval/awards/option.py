@@ -70,5 +70,5 @@ def value(ctx, grants: np.ndarray) -> KindValues:
     return out
 
 
-KIND = AwardKind(name="option", description="share option, settled in shares", option_terms=True, exercisable=True,
+KIND = AwardKind(name="option", description="share option, settled in shares", option_terms=True, exercisable=True, priced_with_volatility=True,
                  disclosure_group="options", value=value)

@@ -74,10 +74,10 @@ def apply_shifts(ctx, shifts: Shifts) -> None:
     moved = shifts.mask & ~ctx.is_supplied
     ctx.moved = moved
     ids = ctx.ledger.grants["grant_id"].to_numpy()
-    # Purchase-plan rights are priced with volatility and rate too (issue #19).
-    option = flag(ctx.award, "option_terms") | (np.asarray(ctx.award) == "espp")
-    for name, where in (("share_price", moved), ("volatility", moved & option),
-                        ("risk_free_rate", moved & option), ("dividend_yield", moved)):
+    option = flag(ctx.award, "option_terms")
+    priced = flag(ctx.award, "priced_with_volatility")
+    for name, where in (("share_price", moved), ("volatility", moved & priced),
+                        ("risk_free_rate", moved & priced), ("dividend_yield", moved)):
         setattr(ctx, name, _shift(shifts, name, getattr(ctx, name), where, ids))
     bsm = moved & option & (ctx.model != "lattice")
     if ctx.per_tranche:
