@@ -66,3 +66,12 @@ def test_end_before_start_and_missing_peer_set(tmp_path):
     report = problems_of(tmp_path, data)
     assert_problem(report, "market_conditions.csv", 2, "end_date", "after start_date")
     assert_problem(report, "market_conditions.csv", 2, "peer_set", "required")
+
+
+def test_monitoring_averaging_and_unknown_peer_set(tmp_path):
+    data = _market(tables())
+    data["market_conditions"][0].update({"monitoring": "weekly", "averaging_days": 2000, "peer_set": "Q"})
+    report = problems_of(tmp_path, data)
+    assert_problem(report, "market_conditions.csv", 2, "monitoring", "end or any_day")
+    assert_problem(report, "market_conditions.csv", 2, "averaging_days", "longer than the performance period")
+    assert_problem(report, "market_conditions.csv", 2, "peer_set", "has no peers")
