@@ -75,3 +75,10 @@ def test_monitoring_averaging_and_unknown_peer_set(tmp_path):
     assert_problem(report, "market_conditions.csv", 2, "monitoring", "end or any_day")
     assert_problem(report, "market_conditions.csv", 2, "averaging_days", "longer than the performance period")
     assert_problem(report, "market_conditions.csv", 2, "peer_set", "has no peers")
+
+
+def test_condition_set_in_both_tables(tmp_path):
+    data = _market(tables())
+    data["performance"] = [{"condition_set": "M1", "assessed_on": "2024-01-01", "payout": 1.0}]
+    report = problems_of(tmp_path, data)
+    assert_problem(report, "market_conditions.csv", 2, "condition_set", "also in the performance table")
