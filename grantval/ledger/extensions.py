@@ -28,6 +28,7 @@ MODULES: tuple[str, ...] = (
     "grantval.ledger.ext.tax",
     "grantval.ledger.ext.modifications",
     "grantval.ledger.ext.espp",
+    "grantval.ledger.ext.market",
 )
 
 

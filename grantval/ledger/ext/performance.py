@@ -74,13 +74,16 @@ def _table_problems(perf: pd.DataFrame, src: str) -> list[Problem]:
     return p
 
 
-def _cross_problems(g: pd.DataFrame, perf: pd.DataFrame, gsrc: str, psrc: str) -> list[Problem]:
-    """Each psu grant against the assessments of its condition set."""
+def _cross_problems(g: pd.DataFrame, perf: pd.DataFrame, gsrc: str, psrc: str,
+                    market: frozenset = frozenset()) -> list[Problem]:
+    """Each psu grant against the assessments of its condition set (market conditions are checked elsewhere)."""
     p: list[Problem] = []
     by_set = {k: f for k, f in perf.groupby("condition_set")} if len(perf) else {}
     known = set(by_set)
     for row, cs, gdate, mp in zip(g["_row"], g["condition_set"], g["grant_date"], g["max_payout"]):
         if cs is None or (isinstance(cs, float) and np.isnan(cs)):
+            continue
+        if cs in market and cs not in known:
             continue
         if cs not in known:
             p.append(Problem(gsrc, int(row), "condition_set", f"{cs!r} has no rows in the performance table"))
@@ -122,7 +125,9 @@ def check(parts: LedgerParts) -> list[Problem]:
     """Every check of the performance columns and table."""
     g, perf = parts.grants, parts.tables["performance"]
     gsrc, psrc = parts.sources["grants"], parts.sources["performance"]
-    return (_grant_problems(g, gsrc) + _table_problems(perf, psrc) + _cross_problems(g, perf, gsrc, psrc)
+    mc = parts.tables.get("market_conditions")
+    market = frozenset(mc["condition_set"]) if mc is not None and len(mc) else frozenset()
+    return (_grant_problems(g, gsrc) + _table_problems(perf, psrc) + _cross_problems(g, perf, gsrc, psrc, market)
             + _single_tranche(parts))
 
 

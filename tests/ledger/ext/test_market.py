@@ -1,0 +1,84 @@
+"""Market-condition tables: a good ledger loads, bad rows are named by file, row and column.
+
+Rows are as a spreadsheet shows them (header = row 1).  Ledgers invented for the tests.
+"""
+
+from tests.factory import tables
+from tests.ledger.test_problems import assert_problem, problems_of
+
+
+def _market(data, cor=0.3, curve="25:0.5;50:1;75:2", metric="relative_tsr"):
+    data["market_conditions"] = [{"condition_set": "M1", "metric": metric, "start_date": "2024-01-01",
+                                  "end_date": "2026-12-31", "averaging_days": 20, "monitoring": "end",
+                                  "peer_set": "P", "payout_curve": curve}]
+    data["peers"] = [{"peer_set": "P", "peer_id": "A", "volatility": 0.3, "dividend_yield": 0.0}]
+    data["correlations"] = [{"peer_set": "P", "first": "self", "second": "A", "correlation": cor}]
+    return data
+
+
+def test_good_market_tables_load(tmp_path):
+    report = problems_of(tmp_path, _market(tables()))
+    assert report.ok, [str(p) for p in report.problems]
+
+
+def test_correlation_out_of_range(tmp_path):
+    report = problems_of(tmp_path, _market(tables(), cor=1.5))
+    assert_problem(report, "correlations.csv", 2, "correlation", "between -1 and 1")
+
+
+def test_unknown_metric(tmp_path):
+    report = problems_of(tmp_path, _market(tables(), metric="ebitda"))
+    assert_problem(report, "market_conditions.csv", 2, "metric", "not one of")
+
+
+def _psu_on_market(data):
+    g = data["grants"][0]
+    g.update({"award_type": "psu", "condition_set": "M1", "exercise_price": None})
+    return data
+
+
+def test_grant_on_market_condition_refused_until_valued(tmp_path):
+    report = problems_of(tmp_path, _psu_on_market(_market(tables())))
+    assert_problem(report, "grants.csv", 2, "condition_set", "not available yet")
+    assert not any("no rows in the performance table" in p.message for p in report.errors)
+
+
+def test_bad_payout_curve(tmp_path):
+    report = problems_of(tmp_path, _market(tables(), curve="50:1;25:2"))
+    assert_problem(report, "market_conditions.csv", 2, "payout_curve", "cannot be read")
+
+
+def test_missing_pair_and_not_psd(tmp_path):
+    data = _market(tables())
+    data["peers"].append({"peer_set": "P", "peer_id": "B", "volatility": 0.3, "dividend_yield": 0.0})
+    report = problems_of(tmp_path, data)
+    assert any(p.column == "correlation" and "misses the pair" in p.message for p in report.errors)
+    data["correlations"] += [{"peer_set": "P", "first": "self", "second": "B", "correlation": 0.9},
+                             {"peer_set": "P", "first": "A", "second": "B", "correlation": -0.9}]
+    data["correlations"][0]["correlation"] = 0.9
+    report = problems_of(tmp_path / "x", data)
+    assert any("not positive semi-definite" in p.message and "'P'" in p.message for p in report.errors)
+
+
+def test_end_before_start_and_missing_peer_set(tmp_path):
+    data = _market(tables())
+    data["market_conditions"][0].update({"end_date": "2023-01-01", "peer_set": None})
+    report = problems_of(tmp_path, data)
+    assert_problem(report, "market_conditions.csv", 2, "end_date", "after start_date")
+    assert_problem(report, "market_conditions.csv", 2, "peer_set", "required")
+
+
+def test_monitoring_averaging_and_unknown_peer_set(tmp_path):
+    data = _market(tables())
+    data["market_conditions"][0].update({"monitoring": "weekly", "averaging_days": 2000, "peer_set": "Q"})
+    report = problems_of(tmp_path, data)
+    assert_problem(report, "market_conditions.csv", 2, "monitoring", "end or any_day")
+    assert_problem(report, "market_conditions.csv", 2, "averaging_days", "longer than the performance period")
+    assert_problem(report, "market_conditions.csv", 2, "peer_set", "has no peers")
+
+
+def test_condition_set_in_both_tables(tmp_path):
+    data = _market(tables())
+    data["performance"] = [{"condition_set": "M1", "assessed_on": "2024-01-01", "payout": 1.0}]
+    report = problems_of(tmp_path, data)
+    assert_problem(report, "market_conditions.csv", 2, "condition_set", "also in the performance table")
