@@ -78,6 +78,29 @@ def _typed_tables(raw) -> tuple[dict[str, pd.DataFrame], dict[str, str], list[Pr
     return frames, sources, problems
 
 
+def _with_planned(g, a, pos, planned):
+    """The ledger's grants with the hypothetical grants of file ``planned`` appended (checked alike)."""
+    problems: list[Problem] = []
+    ptab = _planned_table(planned)
+    cols = tuple(Column(c.name, c.kind, False, c.choices, c.default) if c.name == "holder_id" else c
+                 for c in TABLES["grants"])
+    pframe, probs = parse_table(ptab, cols)
+    problems += probs
+    pframe["holder_id"] = pframe["holder_id"].where(pframe["holder_id"].notna(), "(planned)")
+    pframe = v.fill_grant_defaults(pframe)
+    problems += v.check_grants(pframe, ptab.source)
+    clash = pframe["grant_id"].isin(set(g["grant_id"].dropna()))
+    for r, k in zip(pframe["_row"][clash], pframe["grant_id"][clash]):
+        problems.append(Problem(ptab.source, int(r), "grant_id", f"{k!r} is also a grant of the ledger"))
+    ppos, probs = v.match_assumptions(pframe, a, ptab.source)
+    problems += probs
+    pframe["_source"] = ptab.source
+    pframe["planned"] = True
+    g = pd.concat([g, pframe], ignore_index=True)
+    pos = np.concatenate([pos, ppos])
+    return g, pos, problems
+
+
 def read_ledger(location, planned=None) -> tuple[Ledger | None, list[Problem]]:
     """Read and check a ledger; never raises for problems in the data.
 
@@ -111,23 +134,8 @@ def read_ledger(location, planned=None) -> tuple[Ledger | None, list[Problem]]:
     g["_source"] = sources["grants"]
     g["planned"] = False
     if planned is not None:
-        ptab = _planned_table(planned)
-        cols = tuple(Column(c.name, c.kind, False, c.choices, c.default) if c.name == "holder_id" else c
-                     for c in TABLES["grants"])
-        pframe, probs = parse_table(ptab, cols)
+        g, pos, probs = _with_planned(g, a, pos, planned)
         problems += probs
-        pframe["holder_id"] = pframe["holder_id"].where(pframe["holder_id"].notna(), "(planned)")
-        pframe = v.fill_grant_defaults(pframe)
-        problems += v.check_grants(pframe, ptab.source)
-        clash = pframe["grant_id"].isin(set(g["grant_id"].dropna()))
-        for r, k in zip(pframe["_row"][clash], pframe["grant_id"][clash]):
-            problems.append(Problem(ptab.source, int(r), "grant_id", f"{k!r} is also a grant of the ledger"))
-        ppos, probs = v.match_assumptions(pframe, a, ptab.source)
-        problems += probs
-        pframe["_source"] = ptab.source
-        pframe["planned"] = True
-        g = pd.concat([g, pframe], ignore_index=True)
-        pos = np.concatenate([pos, ppos])
     # grants the extensions synthesize from their own tables (ESPP enrollments), after the core grant checks
     g, a, pos, own_tranches, probs, withheld = contribute_extensions(g, a, pos, frames, sources)
     problems += probs
