@@ -76,6 +76,19 @@ def _condition_problems(mc: pd.DataFrame, peers: pd.DataFrame, src: str) -> list
     return p
 
 
+def _pair_problem(a, b, names: list, seen: dict, ps) -> tuple[str, str] | None:
+    """(column, message) when a correlation row cannot be used: an unknown member, a member paired
+    with itself, or a pair already given (in either order) on an earlier row."""
+    for col, name in (("first", a), ("second", b)):
+        if name not in names:
+            return col, f"{name!r} is not 'self' or a peer of peer set {ps!r} (peers table)"
+    if a == b:
+        return "second", f"pairs {a!r} with itself; the correlation of a member with itself is 1"
+    if frozenset((a, b)) in seen:
+        return "second", f"the pair {a}/{b} of peer set {ps!r} is already given on row {seen[frozenset((a, b))]}"
+    return None
+
+
 def _correlation_problems(peers: pd.DataFrame, cor: pd.DataFrame, src: str) -> list[Problem]:
     """Correlation bounds, missing pairs and positive semi-definiteness per peer set."""
     p: list[Problem] = []
@@ -86,13 +99,16 @@ def _correlation_problems(peers: pd.DataFrame, cor: pd.DataFrame, src: str) -> l
         names = ["self"] + list(f["peer_id"])
         m = np.eye(len(names))
         given = cor[cor["peer_set"] == ps]
-        seen = {}
+        seen: dict = {}
         for _, r in given.iterrows():
-            a, b = r["first"], r["second"]
-            if a in names and b in names:
-                i, j = names.index(a), names.index(b)
-                m[i, j] = m[j, i] = r["correlation"]
-                seen[frozenset((a, b))] = True
+            a, b, row = r["first"], r["second"], int(r["_row"])
+            bad = _pair_problem(a, b, names, seen, ps)
+            if bad:
+                p.append(Problem(src, row, bad[0], bad[1]))
+                continue
+            i, j = names.index(a), names.index(b)
+            m[i, j] = m[j, i] = r["correlation"]
+            seen[frozenset((a, b))] = row
         missing = [(a, b) for i, a in enumerate(names) for b in names[i + 1:] if frozenset((a, b)) not in seen]
         if missing:
             p.append(Problem(src, None, "correlation", f"peer set {ps!r} misses the pair(s) "

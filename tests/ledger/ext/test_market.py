@@ -82,3 +82,16 @@ def test_condition_set_in_both_tables(tmp_path):
     data["performance"] = [{"condition_set": "M1", "assessed_on": "2024-01-01", "payout": 1.0}]
     report = problems_of(tmp_path, data)
     assert_problem(report, "market_conditions.csv", 2, "condition_set", "also in the performance table")
+
+
+def test_duplicate_self_and_unknown_correlation_pairs_are_refused_on_their_row(tmp_path):
+    # common practice: a pair given twice (in either order) would otherwise let the last value win silently
+    data = _market(tables())
+    first = dict(data["correlations"][0])
+    data["correlations"] += [dict(first, first=first["second"], second=first["first"]),
+                             {"peer_set": first["peer_set"], "first": "self", "second": "self", "correlation": 1},
+                             {"peer_set": first["peer_set"], "first": "self", "second": "ZZ", "correlation": 0.1}]
+    report = problems_of(tmp_path, data)
+    assert_problem(report, "correlations.csv", 3, "second", "already given on row 2")
+    assert_problem(report, "correlations.csv", 4, "second", "with itself")
+    assert_problem(report, "correlations.csv", 5, "second", "'ZZ' is not 'self' or a peer")
