@@ -7,6 +7,7 @@ import shutil
 
 import openpyxl
 import pytest
+import typer
 from typer.testing import CliRunner
 
 from grantval.io.convert import csv_folder_to_workbook
@@ -198,3 +199,15 @@ def test_expense_usage_errors(tmp_path):
     assert r.exit_code == 2 and "IFRS 2 requires graded" in r.output
     r = run("expense", SAMPLE, "--through", "2026-12-31", "--period", "week", "-o", tmp_path / "e.xlsx")
     assert r.exit_code == 2
+
+
+def test_usage_lines_name_arguments_without_braces():
+    # POSIX utility syntax (IEEE Std 1003.1, 12.1): required operands bare, optional in [ ];
+    # typer's own usage line writes {LEDGER}, which reads like a set of choices
+    group = typer.main.get_command(app)
+    for name in sorted(group.commands):
+        result = CliRunner().invoke(app, [name, "--help"])
+        assert result.exit_code == 0, name
+        usage = result.output.splitlines()[0]
+        assert "{" not in usage, usage
+    assert CliRunner().invoke(app, ["expense", "--help"]).output.startswith("Usage: root expense [OPTIONS] LEDGER")

@@ -6,7 +6,7 @@ import contextlib
 import sys
 
 import typer
-from typer.core import TyperGroup
+from typer.core import TyperArgument, TyperGroup
 
 from grantval import __version__
 from grantval.errors import GrantvalError, UsageError
@@ -26,6 +26,20 @@ OPTION_NAMES = {
     "reason": "--reason",
     "average_prices": "--average-prices",
 }
+
+
+def _plain_usage_name(self) -> str:
+    """Usage-line name of an argument: ``LEDGER`` when required, ``[LEDGER]`` when optional.
+
+    typer writes required arguments as ``{LEDGER}``, which reads like a set of
+    choices; the conventional usage line (POSIX utility syntax) leaves them bare.
+    """
+    name = self.display_name_raw if self.required else f"[{self.display_name_raw}]"
+    return name + ("..." if self.nargs != 1 else "")
+
+
+if hasattr(TyperArgument, "_usage_display_name"):  # typer's own hook; tests/test_cli.py checks the result
+    TyperArgument._usage_display_name = _plain_usage_name
 
 
 def message(err: GrantvalError) -> str:
