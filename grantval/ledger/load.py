@@ -153,23 +153,25 @@ def read_ledger(location, planned=None) -> tuple[Ledger | None, list[Problem]]:
         if k is not None and k not in withheld:  # withheld: an extension already reported why (ESPP)
             problems.append(Problem(sources["events"], int(r), "grant_id", f"{k!r} is not a grant in the grants table"))
     # events are only allocated for grants whose schedule is complete
-    valid = epos >= 0
-    valid[valid] = ok[epos[valid]]
-    epos = np.where(valid, epos, -1)
+    def allocated(events):
+        at = np.array([index.get(k, -1) for k in events["grant_id"]], dtype=np.int64)
+        valid = at >= 0
+        valid[valid] = ok[at[valid]]
+        return np.where(valid, at, -1)
+
+    epos = allocated(ev)
     changes, probs = apply_events(g, tranches, ev, epos, sources["events"])
+
     # extensions may change the terms in force (modifications): allocate the events again under them
     def allocate(grants, tranches_in_force, events):
-        at = np.array([index.get(k, -1) for k in events["grant_id"]], dtype=np.int64)
-        at = np.where(at >= 0, np.where(ok[np.maximum(at, 0)], at, -1), -1)
-        return apply_events(grants, tranches_in_force, events, at, sources["events"])
+        return apply_events(grants, tranches_in_force, events, allocated(events), sources["events"])
 
     adjusted = adjust_extensions(LedgerParts(g, frames, sources, tranches, ok, changes), allocate)
     if adjusted is not None:
         adj, changes, probs = adjusted
         problems += adj.problems
         ev = adj.events
-        epos = np.array([index.get(k, -1) for k in ev["grant_id"]], dtype=np.int64)
-        epos = np.where(epos >= 0, np.where(ok[np.maximum(epos, 0)], epos, -1), -1)
+        epos = allocated(ev)
     problems += probs
     # tranche changes of the extensions' event types (ESPP withdraw)
     changes, probs = extension_changes(LedgerParts(g, frames, sources, tranches, ok), ev, epos, changes)

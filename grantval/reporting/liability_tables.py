@@ -55,6 +55,11 @@ def liability_figures(run) -> dict | None:
         source=col(lambda s: s.method))
 
 
+def paid_in_period(figures: dict) -> np.ndarray:
+    """Cash paid in each period, cents (int64, cash grants x periods), from :func:`liability_figures`."""
+    return np.diff(np.column_stack([figures["opening_cash"], figures["cash"]]), axis=1).astype(np.int64)
+
+
 def liability_table(run, figures: dict | None = None) -> pd.DataFrame:
     """``liabilities.csv``: one row per cash-settled grant and period end.
 
@@ -66,7 +71,7 @@ def liability_table(run, figures: dict | None = None) -> pd.DataFrame:
     if f is None:
         return pd.DataFrame({c: [] for c in COLUMNS})
     n, p = f["liability"].shape
-    paid = np.diff(np.column_stack([f["opening_cash"], f["cash"]]), axis=1)
+    paid = paid_in_period(f)
     return pd.DataFrame({
         "grant_id": np.repeat(run.inputs.grant_id[f["grants"]], p),
         "period_end": np.tile(f["ends"], n),
@@ -137,7 +142,7 @@ def liability_journal(run, figures: dict | None = None) -> pd.DataFrame:
         return pd.DataFrame({c: [] for c in cols})
     groups = run.inputs.group[f["grants"]]
     expense = run.schedule.expense_cents[f["grants"]]
-    paid = np.diff(np.column_stack([f["opening_cash"], f["cash"]]), axis=1)
+    paid = paid_in_period(f)
     rows = []
     for k, end in enumerate(f["ends"]):
         for grp in sorted(set(groups)):

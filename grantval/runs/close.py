@@ -230,12 +230,12 @@ def _rows(run: ExpenseRun, catch_up: np.ndarray, removed: pd.DataFrame) -> pd.Da
 
 def cash_paid(run: ExpenseRun) -> pd.DataFrame | None:
     """Cash paid per cash-settled grant in each period of the run (:data:`journal.CASH_COLUMNS`), or None."""
-    from grantval.reporting.liability_tables import liability_figures
+    from grantval.reporting.liability_tables import liability_figures, paid_in_period
 
     f = liability_figures(run)
     if f is None:
         return None
-    paid = np.diff(np.column_stack([f["opening_cash"], f["cash"]]), axis=1).astype(np.int64)
+    paid = paid_in_period(f)
     gi, k = np.nonzero(paid)
     g = run.ledger.grants
     types = dict(zip(g["grant_id"], g["award_type"]))
