@@ -192,7 +192,7 @@ def build_inputs(ledger: Ledger, fair_values: "FairValues", policy=None) -> Expe
         est_effective=est["effective_date"].to_numpy("datetime64[D]"),
         est_rate=est["annual_forfeiture_rate"].to_numpy(float),
         est_fraction=est["expected_vest_fraction"].to_numpy(float),
-        t_service_end=service_end(ledger, t_vest),
+        t_service_end=service_end(ledger, t_vest, getattr(fair_values, "service_years", None)),
     )
     _modify(ledger, fair_values, inp, policy)
     inp.cost_hooks = [h for h in (b(ledger, fair_values, inp) for b in hook_builders()) if h is not None]

@@ -64,6 +64,9 @@ class Assessments:
 
     def at(self, grants: np.ndarray, days: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """Payout and vesting day in force on ``days`` for ``grants`` (0 payout before the first row)."""
+        if self.grant.size == 0:
+            n = np.shape(grants)[0] if np.ndim(grants) else 1
+            return np.zeros(n), np.full(n, _NONE)
         key = self.grant * (1 << 32) + self.day
         want = np.asarray(grants, dtype=np.int64) * (1 << 32) + np.asarray(days, dtype=np.int64)
         pos = np.searchsorted(key, want, side="right") - 1
@@ -121,9 +124,18 @@ def _cost(inp, A: Assessments, psu: np.ndarray, Q, dn: int, attribution: str) ->
     return HookResult(cost, expected, unrec, remaining, np.where(psu_t, shares, np.nan))
 
 
-def build_hook(ledger, fair_values, inp) -> CostHook | None:
-    """The cost hook of the ledger's psu grants (None when it has none)."""
+def performance_grants(ledger) -> np.ndarray:
+    """Per grant: a psu whose payout follows the performance table (not a market condition, whose
+    outcome is in the fair value and whose cost is recognised whether or not it is met)."""
+    from grantval.ledger.ext.market import market_grants
+
     psu = ledger.grants["award_type"].to_numpy() == "psu"
+    return psu & ~market_grants(ledger.grants, ledger.tables)
+
+
+def build_hook(ledger, fair_values, inp) -> CostHook | None:
+    """The cost hook of the ledger's psu grants with a performance condition (None when it has none)."""
+    psu = performance_grants(ledger)
     if not psu.any():
         return None
     A = Assessments(ledger, psu)

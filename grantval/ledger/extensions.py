@@ -91,6 +91,9 @@ class Extension:
     # (espp) tranche changes of the feature's own event types:
     # ``changes(parts, events, grant_pos, core_changes) -> (extra changes, problems)``
     changes: Callable | None = None
+    #: (market conditions) vest dates the feature sets on the generated tranches:
+    #: ``vest_dates(grants, tables, tranches) -> tranches``
+    vest_dates: Callable | None = None
 
 
 @dataclass
@@ -141,6 +144,14 @@ def check_extensions(parts: LedgerParts) -> list["Problem"]:
         if ext.check is not None:
             problems += ext.check(parts)
     return problems
+
+
+def vest_date_extensions(grants, tables: dict, tranches):
+    """Tranches with the vest dates the extensions set (a market condition's settlement date)."""
+    for ext in extensions():
+        if ext.vest_dates is not None:
+            tranches = ext.vest_dates(grants, tables, tranches)
+    return tranches
 
 
 def adjust_extensions(parts: LedgerParts, allocate: Callable) -> "tuple[Adjustment, pd.DataFrame, list] | None":

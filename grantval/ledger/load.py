@@ -14,7 +14,7 @@ from grantval.io.tables import RawTable
 import grantval.ledger.validate as v
 from grantval.ledger.events import apply_events
 from grantval.ledger.extensions import (LedgerParts, adjust_extensions, check_extensions, contribute_extensions,
-                                       extension_changes)
+                                       extension_changes, vest_date_extensions)
 from grantval.ledger.model import Ledger
 from grantval.ledger.parse import parse_table
 from grantval.ledger.schedule import combine_schedules, generate_tranches
@@ -144,6 +144,7 @@ def read_ledger(location, planned=None) -> tuple[Ledger | None, list[Problem]]:
     ok, tranches, probs = _tranches(g, frames["tranches"], sources["tranches"])
     problems += probs
     tranches = combine_schedules(tranches, own_tranches)  # the extensions' own tranches replace generated ones
+    tranches = vest_date_extensions(g, frames, tranches)
     problems += v.check_last_vest(g, tranches, sources["grants"])
 
     ev = frames["events"]

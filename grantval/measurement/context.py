@@ -54,6 +54,10 @@ class ValuationContext:
     per_tranche: bool
     cache: dict | None = None
     moved: np.ndarray | None = None
+    #: per grant: the grant has a market condition (valued by :mod:`grantval.measurement.market`)
+    market: np.ndarray | None = None
+    mc_paths: int = 100_000
+    mc_seed: int = 20261202
 
     @property
     def is_supplied(self) -> np.ndarray:
@@ -73,6 +77,7 @@ def build_context(ledger: Ledger, policy: Policy, cache: dict | None = None) -> 
     award = g["award_type"].to_numpy()
     col = lambda name: a[name].to_numpy(float)[ai]  # noqa: E731  per-grant assumption
     from grantval.awards.registry import flag
+    from grantval.measurement.market import condition_mask
 
     has_term = flag(award, "option_terms")
     contract = np.where(has_term, year_fraction(gdate, g["expiration_date"].to_numpy("datetime64[D]")), np.nan)
@@ -92,4 +97,5 @@ def build_context(ledger: Ledger, policy: Policy, cache: dict | None = None) -> 
         term_award=np.where(np.isnan(given), simplified_formula(avg_vest, contract), given),
         term_tranche=np.where(np.isnan(given[gi]), simplified_formula(t_vest, contract[gi]), given[gi]),
         steps=policy.lattice_steps or DEFAULT_STEPS, per_tranche=policy.valuation_unit == "tranche", cache=cache,
+        market=condition_mask(ledger), mc_paths=policy.mc_paths, mc_seed=policy.mc_seed,
     )

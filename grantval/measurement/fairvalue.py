@@ -13,6 +13,8 @@ Methods (stated in every output):
   quantity-weighted average of its tranches;
 - RSUs: the share price less the present value of dividends forgone until
   each tranche vests (S e^{-q t}); award level as for the lattice;
+- awards with a market condition: Monte Carlo (:mod:`grantval.measurement.market`), with the
+  standard error of each value and, without a vesting schedule, the derived service period;
 - a ``fair_value`` in the assumptions is used as given and marked supplied.
 
 Identical valuation inputs are valued once.
@@ -29,6 +31,8 @@ import pandas as pd
 from grantval.awards.registry import kinds
 from grantval.ledger.model import Ledger
 from grantval.measurement.context import ValuationContext, build_context
+from grantval.measurement.market import MODEL as MARKET_MODEL
+from grantval.measurement.market import value_market
 from grantval.measurement.table import fair_value_table
 from grantval.policy import Policy
 
@@ -52,12 +56,18 @@ class FairValues:
         Fair value per unit of each grant (quantity-weighted over tranches).
     distinct_valuations : int
         Number of distinct input sets actually priced.
+    std_error : ndarray, optional
+        Per grant: Monte Carlo standard error of the value per unit, currency (NaN when not simulated).
+    service_years : ndarray, optional
+        Per grant: derived service period, years from the grant date (NaN where the schedule applies).
     """
 
     table: pd.DataFrame
     tranche_value: np.ndarray
     grant_value: np.ndarray
     distinct_valuations: int
+    std_error: np.ndarray | None = None
+    service_years: np.ndarray | None = None
 
 
 def _value_by_kind(ctx: ValuationContext):
@@ -68,8 +78,9 @@ def _value_by_kind(ctx: ValuationContext):
     model = np.full(n_g, "", dtype=object)
     term_method = np.full(n_g, "", dtype=object)
     distinct = 0
+    market = ctx.market if ctx.market is not None else np.zeros(n_g, dtype=bool)
     for kind in kinds():
-        grants = (ctx.award == kind.name) & ~ctx.is_supplied
+        grants = (ctx.award == kind.name) & ~ctx.is_supplied & ~market
         if not grants.any():
             continue
         got = kind.value(ctx, grants)
@@ -78,10 +89,15 @@ def _value_by_kind(ctx: ValuationContext):
         award_term[grants], model[grants] = got.award_term[grants], got.model[grants]
         term_method[grants] = got.term_method[grants]
         distinct += got.distinct
+    mc = value_market(ctx, market & ~ctx.is_supplied)
+    simulated = ~np.isnan(mc.value)
+    tv[simulated[ctx.gi]] = mc.value[ctx.gi][simulated[ctx.gi]]
+    model[simulated], term_method[simulated] = MARKET_MODEL, "performance period (market condition)"
+    award_term[simulated] = np.where(ctx.award[simulated] == "option", ctx.term_award[simulated], np.nan)
     supplied = ctx.is_supplied
     tv[supplied[ctx.gi]] = ctx.supplied[ctx.gi][supplied[ctx.gi]]
     model[supplied], term_method[supplied] = "supplied", ""
-    return tv, t_term, award_term, model.astype(str), term_method.astype(str), distinct
+    return tv, t_term, award_term, model.astype(str), term_method.astype(str), distinct + mc.simulations, mc
 
 
 def _grant_values(ctx: ValuationContext, tv: np.ndarray) -> np.ndarray:
@@ -121,9 +137,10 @@ def compute_fair_values(ledger: Ledger, policy: Policy, shifts: "Shifts | None" 
         from grantval.scenarios.shifts import apply_shifts
 
         apply_shifts(ctx, shifts)
-    tv, t_term, award_term, model, term_method, distinct = _value_by_kind(ctx)
+    tv, t_term, award_term, model, term_method, distinct, mc = _value_by_kind(ctx)
     grant_value = _grant_values(ctx, tv)
     tranche_value = tv if ctx.per_tranche else grant_value[ctx.gi]
-    table = fair_value_table(ctx, model, term_method, award_term, t_term, tranche_value, grant_value)
+    table = fair_value_table(ctx, model, term_method, award_term, t_term, tranche_value, grant_value,
+                             mc.std_error, mc.service_years)
     return FairValues(table=table, tranche_value=tranche_value, grant_value=grant_value,
-                      distinct_valuations=distinct)
+                      distinct_valuations=distinct, std_error=mc.std_error, service_years=mc.service_years)

@@ -13,7 +13,7 @@ COLUMNS = (
     "assumption_key", "share_price", "volatility", "risk_free_rate", "dividend_yield",
     "contractual_term_years", "expected_term_years", "expected_term_method", "model", "lattice_steps",
     "exercise_multiple", "post_vest_exit_rate", "fair_value_per_unit", "grant_date_fair_value",
-    "fair_value_source")
+    "fair_value_source", "std_error", "derived_service_years")
 
 
 def _per_grant(ctx, model: np.ndarray, term_method: np.ndarray) -> dict:
@@ -21,6 +21,8 @@ def _per_grant(ctx, model: np.ndarray, term_method: np.ndarray) -> dict:
     g, a, ai = ctx.ledger.grants, ctx.ledger.assumptions, ctx.ledger.grant_assumption
     option = flag(ctx.award, "option_terms")
     priced = ~ctx.is_supplied
+    if ctx.market is not None:
+        option = option | ctx.market  # a market condition is valued with volatility and the rate
     lattice = model == "lattice"
     return {
         "grant_id": g["grant_id"].to_numpy(),
@@ -45,14 +47,19 @@ def _per_grant(ctx, model: np.ndarray, term_method: np.ndarray) -> dict:
     }
 
 
-def fair_value_table(ctx, model, term_method, award_term, t_term, tranche_value, grant_value) -> pd.DataFrame:
+def fair_value_table(ctx, model, term_method, award_term, t_term, tranche_value, grant_value,
+                     std_error=None, service_years=None) -> pd.DataFrame:
     """The output table of :func:`grantval.measurement.fairvalue.compute_fair_values`.
 
     One row per grant, or per tranche under the ``tranche`` valuation unit;
     ``expected_term_years`` is the term used by BSM (and, per award, the
-    average vesting time of an RSU).
+    average vesting time of an RSU).  ``std_error`` (currency per unit) and
+    ``derived_service_years`` are per grant, NaN where not simulated / not derived.
     """
     base = _per_grant(ctx, model, term_method)
+    n_g = len(ctx.award)
+    base["std_error"] = std_error if std_error is not None else np.full(n_g, np.nan)
+    base["derived_service_years"] = service_years if service_years is not None else np.full(n_g, np.nan)
     tr = ctx.ledger.tranches
     gi = ctx.gi
     if ctx.per_tranche:
@@ -66,7 +73,7 @@ def fair_value_table(ctx, model, term_method, award_term, t_term, tranche_value,
     else:
         rows = dict(base)
         rows["quantity"] = ctx.ledger.grants["quantity"].to_numpy(np.int64)
-        rows["expected_term_years"] = np.where(np.isin(model, ("bsm", "rsu", "psu")), award_term, np.nan)
+        rows["expected_term_years"] = np.where(np.isin(model, ("bsm", "rsu", "psu", "monte_carlo")), award_term, np.nan)
         rows["fair_value_per_unit"] = grant_value
         order = ["grant_id"]
     rows["grant_date_fair_value"] = rows["quantity"] * rows["fair_value_per_unit"]

@@ -166,11 +166,7 @@ def _performance_activity(ledger: Ledger, T: _Tranches, granted, forfeited, vest
     psu = T.performance
     if not psu.any():
         return None, (0, 0)
-    from grantval.attribution.performance import Assessments
-
-    A = Assessments(ledger, in_group(ledger.grants["award_type"].to_numpy(), "performance_units"))
-    vest_day = T.vest.astype(np.int64)
-    payout, _ = A.at(T.gi, vest_day)
+    payout = _final_payouts(ledger, T, through)
     issued = np.where(psu, np.floor(vested_q * payout + 1e-9), 0).astype(np.int64)
     adjust = issued - np.where(psu, vested_q, 0)
 
@@ -185,6 +181,18 @@ def _performance_activity(ledger: Ledger, T: _Tranches, granted, forfeited, vest
     })
     tie = (int(np.sum((nv0 + granted + adjust - issued - forfeited)[psu])), int(np.sum(nv1[psu])))
     return frame, tie
+
+
+def _final_payouts(ledger: Ledger, T, through) -> np.ndarray:
+    """Per tranche: the payout fixing the shares issued at vesting (performance table in force on the
+    vesting date; a market condition's ``achieved_payout``, required once its units have vested)."""
+    from grantval.attribution.performance import Assessments, performance_grants
+    from grantval.ledger.ext.market import achieved_payouts
+
+    A = Assessments(ledger, performance_grants(ledger))
+    payout, _ = A.at(T.gi, T.vest.astype(np.int64))
+    achieved, market = achieved_payouts(ledger, T.vest <= np.datetime64(through, "D"), T.gi)
+    return np.where(market[T.gi], np.nan_to_num(achieved[T.gi]), payout)
 
 
 def _granted_figures(ledger: Ledger, fv: FairValues, start, through) -> list[tuple[str, float]]:

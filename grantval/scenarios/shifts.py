@@ -76,6 +76,8 @@ def apply_shifts(ctx, shifts: Shifts) -> None:
     ids = ctx.ledger.grants["grant_id"].to_numpy()
     option = flag(ctx.award, "option_terms")
     priced = flag(ctx.award, "priced_with_volatility")
+    if ctx.market is not None:
+        priced = priced | ctx.market  # a market condition's simulation uses volatility and the rate
     for name, where in (("share_price", moved), ("volatility", moved & priced),
                         ("risk_free_rate", moved & priced), ("dividend_yield", moved)):
         setattr(ctx, name, _shift(shifts, name, getattr(ctx, name), where, ids))

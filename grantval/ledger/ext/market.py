@@ -3,8 +3,13 @@
 Adds the tables ``market_conditions`` (condition_set, metric, start_date, end_date,
 averaging_days, monitoring, peer_set, payout_curve, negative_tsr_cap), ``peers`` (peer_set,
 peer_id, volatility, dividend_yield) and ``correlations`` (peer_set, first, second, correlation;
-``self`` is the company).  Valuation of ledger grants under a market condition is not wired yet:
-such grants are refused with a clear problem.
+``self`` is the company), and the grant column ``dividend_equivalents`` (``yes``: units receive
+the dividends paid during the period).
+
+A ``psu`` or ``option`` grant whose ``condition_set`` names a market condition is valued by
+Monte Carlo (:mod:`grantval.measurement.market`).  A grant with no vesting schedule
+(``vest_months`` 0) settles on the condition's ``end_date`` (its one tranche vests then); its
+requisite service is the derived service period (:mod:`grantval.attribution.service`).
 """
 
 from __future__ import annotations
@@ -30,6 +35,7 @@ MARKET_CONDITIONS = (
     Column("peer_set", "text"),
     Column("payout_curve", "text", required=True),
     Column("negative_tsr_cap", "number"),
+    Column("achieved_payout", "number"),
 )
 PEERS = (
     Column("peer_set", "text", required=True),
@@ -37,6 +43,9 @@ PEERS = (
     Column("volatility", "number", required=True),
     Column("dividend_yield", "number"),
 )
+GRANT_COLUMNS = (Column("dividend_equivalents", "choice", choices=("yes", "no"), default="no"),)
+#: award types that may carry a market condition
+AWARD_TYPES = ("psu", "option")
 CORRELATIONS = (
     Column("peer_set", "text", required=True),
     Column("first", "text", required=True),
@@ -68,6 +77,9 @@ def _condition_problems(mc: pd.DataFrame, peers: pd.DataFrame, src: str) -> list
         ad = r.get("averaging_days")
         if ad is not None and not pd.isna(ad) and ed > sd and ad / 252 > (ed - sd).days / 365.25:
             p.append(Problem(src, row, "averaging_days", "the averaging window is longer than the performance period"))
+        ach = r.get("achieved_payout")
+        if ach is not None and not pd.isna(ach) and ach < 0:
+            p.append(Problem(src, row, "achieved_payout", "must be zero or more (a decimal share of target)"))
         cap = r.get("negative_tsr_cap")
         try:
             parse_payout_curve(str(r["payout_curve"]), None if cap is None or pd.isna(cap) else float(cap))
@@ -119,25 +131,140 @@ def _correlation_problems(peers: pd.DataFrame, cor: pd.DataFrame, src: str) -> l
     return p
 
 
+def market_sets(tables: dict) -> frozenset:
+    """Condition sets of the ``market_conditions`` table."""
+    mc = tables.get("market_conditions")
+    return frozenset(mc["condition_set"]) if mc is not None and len(mc) else frozenset()
+
+
+def market_grants(grants: pd.DataFrame, tables: dict) -> np.ndarray:
+    """Per grant: its ``condition_set`` names a market condition."""
+    if "condition_set" not in grants:
+        return np.zeros(len(grants), dtype=bool)
+    return grants["condition_set"].isin(market_sets(tables)).to_numpy()
+
+
+def _condition_rows(grants: pd.DataFrame, tables: dict) -> pd.DataFrame:
+    """Per grant with a market condition: its market_conditions row (index = grant position)."""
+    mc = tables["market_conditions"].drop_duplicates("condition_set").set_index("condition_set")
+    at = np.flatnonzero(market_grants(grants, tables))
+    out = mc.loc[grants["condition_set"].to_numpy()[at]]
+    out.index = at
+    return out
+
+
+def vest_dates(grants: pd.DataFrame, tables: dict, tranches: pd.DataFrame) -> pd.DataFrame:
+    """A market-condition grant with no vesting schedule (``vest_months`` 0) vests on its ``end_date``."""
+    market = market_grants(grants, tables)
+    if not market.any():
+        return tranches
+    rows = _condition_rows(grants, tables)
+    none = grants["vest_months"].to_numpy() == 0
+    end = np.full(len(grants), np.datetime64("NaT"), dtype="datetime64[D]")
+    end[rows.index.to_numpy()] = rows["end_date"].to_numpy("datetime64[D]")
+    gi = tranches["grant_idx"].to_numpy()
+    move = (market & none & ~np.isnat(end))[gi]
+    if not move.any():
+        return tranches
+    out = tranches.copy()
+    vd = out["vest_date"].to_numpy("datetime64[D]").copy()
+    vd[move] = end[gi[move]]
+    out["vest_date"] = pd.to_datetime(vd)
+    return out
+
+
+def achieved_payouts(ledger, vested_t: np.ndarray, t_grant: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Per grant: the ``achieved_payout`` of its market condition, and whether it has one.
+
+    Raises :class:`LedgerError` naming the market_conditions row when units of a grant have vested
+    (``vested_t``, per tranche of grant ``t_grant``) and the achieved payout is blank: the shares
+    issued depend on it, and the tool does not guess it.
+    """
+    from grantval.errors import LedgerError
+
+    g, t = ledger.grants, ledger.tables
+    market = market_grants(g, t)
+    out = np.full(len(g), np.nan)
+    if not market.any():
+        return out, market
+    rows = _condition_rows(g, t)
+    out[rows.index.to_numpy()] = rows["achieved_payout"].to_numpy(float)
+    vested = np.zeros(len(g), dtype=bool)
+    np.logical_or.at(vested, t_grant[vested_t], True)
+    blank = market & vested & np.isnan(out)
+    if blank.any():
+        mc = t["market_conditions"].drop_duplicates("condition_set").set_index("condition_set")
+        sets = sorted(set(g["condition_set"].to_numpy()[blank]))
+        raise LedgerError([Problem(ledger.sources["market_conditions"], int(mc.loc[c, "_row"]), "achieved_payout",
+                                   f"units under {c!r} have vested: enter the payout achieved (decimal share of "
+                                   "target) so the shares issued can be reported") for c in sets])
+    return out, market
+
+
+def _grant_problems(parts: LedgerParts) -> list[Problem]:
+    """Grants that point at a market condition: award type, dates and valuation inputs."""
+    g, t, src = parts.grants, parts.tables, parts.sources["grants"]
+    market = market_grants(g, t)
+    if not market.any():
+        return []
+    rows = _condition_rows(g, t)
+    p: list[Problem] = []
+    a = t["assumptions"] if "assumptions" in t else None
+    for i, r in rows.iterrows():
+        gr, row = g.iloc[i], int(g["_row"].iloc[i])
+        cs, gd = gr["condition_set"], np.datetime64(gr["grant_date"], "D")
+        if gr["award_type"] not in AWARD_TYPES:
+            p.append(Problem(src, row, "condition_set", f"the market condition {cs!r} applies to psu or option "
+                             f"grants; this grant is {gr['award_type']!r}"))
+            continue
+        start, end = np.datetime64(r["start_date"], "D"), np.datetime64(r["end_date"], "D")
+        if start != gd:
+            p.append(Problem(src, row, "condition_set", f"the performance period of {cs!r} starts on {start}, not on "
+                             f"the grant date {gd}: only periods that start on the grant date are valued (a period "
+                             "that began earlier needs each member's return to date)"))
+        exp = gr.get("expiration_date")
+        if gr["award_type"] == "option" and exp is not None and not pd.isna(exp) and end > np.datetime64(exp, "D"):
+            p.append(Problem(src, row, "condition_set", f"the performance period of {cs!r} ends on {end}, after "
+                             f"the option expires ({np.datetime64(exp, 'D')})"))
+        if gr["award_type"] != "psu" and gr.get("dividend_equivalents") == "yes":
+            p.append(Problem(src, row, "dividend_equivalents", "applies to units only"))
+    return p + _member_problems(rows, g, t, src)
+
+
+def _member_problems(rows: pd.DataFrame, g: pd.DataFrame, t: dict, src: str) -> list[Problem]:
+    """An index condition needs exactly one member in its peer set (the index)."""
+    p: list[Problem] = []
+    peers = t["peers"]
+    count = peers.groupby("peer_set").size() if len(peers) else pd.Series(dtype=int)
+    for i, r in rows.iterrows():
+        if r["metric"] == "index_tsr" and count.get(r["peer_set"], 0) != 1:
+            p.append(Problem(src, int(g["_row"].iloc[i]), "condition_set",
+                             f"the index_tsr condition {r.name!r} needs exactly one member in peer set "
+                             f"{r['peer_set']!r} (the index); it has {count.get(r['peer_set'], 0)}"))
+    return p
+
+
 def check(parts: LedgerParts) -> list[Problem]:
-    """Every check of the market-condition tables; refuses grants using them until valuation is wired."""
+    """Every check of the market-condition tables and of the grants that point at them."""
     t, s = parts.tables, parts.sources
     mc, peers, cor = t["market_conditions"], t["peers"], t["correlations"]
     p = _condition_problems(mc, peers, s["market_conditions"]) + _correlation_problems(peers, cor, s["correlations"])
     both = set(mc["condition_set"]) & set(t["performance"]["condition_set"]) if len(mc) else set()
     for r in rows_where(mc, mc["condition_set"].isin(both).to_numpy()):
         p.append(Problem(s["market_conditions"], r, "condition_set", "is also in the performance table"))
-    known = set(mc["condition_set"]) if len(mc) else set()
-    g = parts.grants
-    for r in rows_where(g, g["condition_set"].isin(known).to_numpy()):
-        p.append(Problem(s["grants"], r, "condition_set",
-                         "market-condition valuation of ledger grants is not available yet"))
-    return p
+    dup = mc["condition_set"].duplicated().to_numpy() if len(mc) else np.zeros(0, bool)
+    for r in rows_where(mc, dup):
+        p.append(Problem(s["market_conditions"], r, "condition_set", "is given on an earlier row"))
+    if any(x.severity == "error" for x in p):
+        return p
+    return p + _grant_problems(parts)
 
 
 EXTENSION = Extension(
     feature="market conditions",
     tables={"market_conditions": MARKET_CONDITIONS, "peers": PEERS, "correlations": CORRELATIONS},
+    grant_columns=GRANT_COLUMNS,
     text_columns=frozenset({"condition_set", "peer_set", "peer_id", "first", "second", "payout_curve"}),
     check=check,
+    vest_dates=vest_dates,
 )

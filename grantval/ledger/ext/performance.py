@@ -31,8 +31,8 @@ GRANT_COLUMNS = (
 )
 
 
-def _grant_problems(g: pd.DataFrame, src: str) -> list[Problem]:
-    """Row checks of the new grant columns."""
+def _grant_problems(g: pd.DataFrame, src: str, market: frozenset = frozenset()) -> list[Problem]:
+    """Row checks of the new grant columns (``market``: condition sets of market conditions)."""
     p: list[Problem] = []
     gd = g["grant_date"].to_numpy("datetime64[D]")
     psu = (g["award_type"] == "psu").to_numpy()
@@ -50,7 +50,7 @@ def _grant_problems(g: pd.DataFrame, src: str) -> list[Problem]:
         p.append(Problem(src, r, "exercise_price", "a psu (performance share unit) has no exercise price; leave it blank"))
     for r in rows_where(g, psu & g["condition_set"].isna().to_numpy()):
         p.append(Problem(src, r, "condition_set", "is required for a psu grant (a key into the performance table)"))
-    cs = g["condition_set"].notna().to_numpy()
+    cs = g["condition_set"].notna().to_numpy() & ~g["condition_set"].isin(market).to_numpy()
     for r in rows_where(g, cs & ~psu):
         p.append(Problem(src, r, "condition_set", "only psu grants carry a performance condition here"))
     mp = g["max_payout"].to_numpy(float)
@@ -127,7 +127,7 @@ def check(parts: LedgerParts) -> list[Problem]:
     gsrc, psrc = parts.sources["grants"], parts.sources["performance"]
     mc = parts.tables.get("market_conditions")
     market = frozenset(mc["condition_set"]) if mc is not None and len(mc) else frozenset()
-    return (_grant_problems(g, gsrc) + _table_problems(perf, psrc) + _cross_problems(g, perf, gsrc, psrc, market)
+    return (_grant_problems(g, gsrc, market) + _table_problems(perf, psrc) + _cross_problems(g, perf, gsrc, psrc, market)
             + _single_tranche(parts))
 
 

@@ -37,10 +37,56 @@ def _psu_on_market(data):
     return data
 
 
-def test_grant_on_market_condition_refused_until_valued(tmp_path):
+def test_market_condition_starting_before_the_grant_is_refused(tmp_path):
+    # the period starts 2024-01-01, the grant is dated 2027-01-01: the return to date is unknown
     report = problems_of(tmp_path, _psu_on_market(_market(tables())))
-    assert_problem(report, "grants.csv", 2, "condition_set", "not available yet")
+    assert_problem(report, "grants.csv", 2, "condition_set", "starts on 2024-01-01, not on the grant date")
     assert not any("no rows in the performance table" in p.message for p in report.errors)
+
+
+def _on_grant_date(data):
+    data["market_conditions"][0].update({"start_date": "2027-01-01", "end_date": "2029-12-31"})
+    return data
+
+
+def test_psu_on_market_condition_loads_without_performance_rows(tmp_path):
+    report = problems_of(tmp_path, _on_grant_date(_psu_on_market(_market(tables()))))
+    assert report.ok, [str(p) for p in report.problems]
+
+
+def test_rsu_with_market_condition_is_refused(tmp_path):
+    data = _on_grant_date(_market(tables()))
+    data["grants"][1].update({"condition_set": "M1"})  # an rsu
+    for g in data["grants"]:
+        g.setdefault("condition_set", "")
+    report = problems_of(tmp_path, data)
+    assert_problem(report, "grants.csv", 3, "condition_set", "applies to psu or option grants")
+
+
+def test_option_condition_ending_after_expiry_is_refused(tmp_path):
+    data = _on_grant_date(_market(tables()))
+    data["grants"][0].update({"condition_set": "M1", "expiration_date": "2029-06-30"})
+    data["grants"][0].update({"vest_months": "24", "vest_every_months": "12"})
+    report = problems_of(tmp_path, data)
+    assert_problem(report, "grants.csv", 2, "condition_set", "after the option expires (2029-06-30)")
+
+
+def test_index_condition_needs_exactly_one_member(tmp_path):
+    data = _on_grant_date(_psu_on_market(_market(tables(), metric="index_tsr")))
+    data["peers"].append({"peer_set": "P", "peer_id": "B", "volatility": 0.3, "dividend_yield": 0.0})
+    data["correlations"] += [{"peer_set": "P", "first": "self", "second": "B", "correlation": 0.2},
+                             {"peer_set": "P", "first": "A", "second": "B", "correlation": 0.2}]
+    report = problems_of(tmp_path, data)
+    assert_problem(report, "grants.csv", 2, "condition_set", "needs exactly one member")
+
+
+def test_negative_achieved_payout_and_duplicate_condition(tmp_path):
+    data = _market(tables())
+    data["market_conditions"][0]["achieved_payout"] = -0.5
+    data["market_conditions"].append(dict(data["market_conditions"][0], achieved_payout=1))
+    report = problems_of(tmp_path, data)
+    assert_problem(report, "market_conditions.csv", 2, "achieved_payout", "zero or more")
+    assert_problem(report, "market_conditions.csv", 3, "condition_set", "earlier row")
 
 
 def test_bad_payout_curve(tmp_path):
