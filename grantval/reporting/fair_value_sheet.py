@@ -51,11 +51,14 @@ def fair_value_audit(table: pd.DataFrame) -> tuple[pd.DataFrame, dict]:
     frame["difference"] = diff
     model = table["model"].to_numpy()
     frame["fair_value_source"] = np.select(
-        [model == "supplied", model == "lattice", model == "rsu", model == "psu"],
+        [model == "supplied", model == "lattice", model == "rsu", model == "psu", model == "monte_carlo"],
         ["supplied by outside valuation", "tool (lattice; inputs and steps shown)",
          "tool (RSU: share price less dividends forgone)",
-         "tool (performance unit: share price less dividends forgone; payout applied in expense)"],
+         "tool (performance unit: share price less dividends forgone; payout applied in expense)",
+         "tool (Monte Carlo; see std_error)"],
         "tool (BSM; recomputed by formula)")
+    if "std_error" in table and np.isfinite(table["std_error"].to_numpy(float)).any():
+        frame["std_error"] = table["std_error"].to_numpy()  # Monte Carlo rows (market conditions)
     assert pos["recomputed_fair_value_per_unit"] == recomputed_column(table)
     info = {"recomputed": pos["recomputed_fair_value_per_unit"], "rows": len(frame), "bsm_rows": int(bsm.sum()),
             "bsm_total": float(table["fair_value_per_unit"].to_numpy()[bsm].sum())}

@@ -21,6 +21,7 @@ FORMATS = {
     "expiration_date": "yyyy-mm-dd", "vest_date": "yyyy-mm-dd", "number": "#,##0",
     "weighted_average_exercise_price": "#,##0.00", "weighted_average_remaining_term_years": "0.00",
     "aggregate_intrinsic_value": MONEY, "weighted_average_grant_date_fair_value": UNIT,
+    "std_error": "0.000000", "derived_service_years": "0.0000",
 }
 
 

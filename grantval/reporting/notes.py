@@ -22,6 +22,17 @@ VALUATION_METHODS = [
     ("RSUs",
      "Share price at the grant date less the present value of dividends forgone until each tranche "
      "vests: S x exp(-q t)."),
+    ("Market conditions",
+     "Units and options whose condition_set names a market condition (relative, index or absolute TSR, share-price "
+     "hurdle): Monte Carlo of the company and its peers as correlated geometric Brownian motions under the "
+     "risk-neutral measure, from the grant date to the period end in whole trading days (252 a year), with "
+     "antithetic pairs and the discounted share price as control variate; policy mc_paths paths and seed mc_seed, "
+     "so reruns are identical; std_error is the standard error of each value. Units settle in shares at the period "
+     "end (dividends only with dividend_equivalents = yes). Options are exercisable only if the condition is met and "
+     "are valued as European calls at their expected term on the simulated paths. The cost is recognised whether or "
+     "not the condition is met (ASC 718-10-30-14; IFRS 2.21). Without a vesting schedule (vest_months 0) units "
+     "vest on the period end and the requisite service is the derived service period (derived_service_years: the "
+     "median time the condition is first met on the paths that meet it; ASC 718-10-55-71 to 55-72, from memory)."),
     ("Supplied values",
      "A fair_value in the assumptions table is used as given and marked as supplied by an outside valuation."),
     ("Conventions",

@@ -17,6 +17,8 @@ FAIR_VALUE_FORMATS = {
     "contractual_term_years": "0.0000",
     "expected_term_years": "0.0000",
     "fair_value_per_unit": "#,##0.0000",
+    "std_error": "0.000000",
+    "derived_service_years": "0.0000",
     "grant_date_fair_value": "#,##0.00",
     "quantity": "#,##0",
     "grant_date": "yyyy-mm-dd",
