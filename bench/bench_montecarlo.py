@@ -12,6 +12,8 @@ Run from the project root::
 3. Accuracy: the Monte Carlo values of tests/pricing/test_montecarlo.py against
    their references, in standard errors and relative terms.
 4. ESPP: one vectorised call on 1,000,000 purchase rights.
+5. Ledger: 1,000 relative-TSR units (20 peers, one grant date, different payout
+   curves) read from a ledger and valued by ``grantval value``: one simulation.
 """
 
 from __future__ import annotations
@@ -185,6 +187,52 @@ def bench_espp(lines):
     )
 
 
+def _tsr_ledger(folder: pathlib.Path, awards=1000, peers=20) -> pathlib.Path:
+    """A ledger of ``awards`` relative-TSR units on one peer set and date (invented data)."""
+    import csv
+
+    _, vol, q, corr = _peer_group(peers)
+    folder.mkdir(parents=True, exist_ok=True)
+    tables = {
+        "grants": [["grant_id", "holder_id", "group", "award_type", "grant_date", "quantity", "vest_months",
+                    "vest_every_months", "cliff_months", "condition_set"]]
+        + [[f"T{i:04d}", f"H{i:04d}", "exec", "psu", "2027-03-01", 1000 + i, 36, 36, 0, f"C{i % 50}"]
+           for i in range(awards)],
+        "assumptions": [["grant_date", "share_price", "volatility", "risk_free_rate", "dividend_yield", "model"],
+                        ["2027-03-01", 50, vol[0], 0.04, q[0], "bsm"]],
+        "market_conditions": [["condition_set", "metric", "start_date", "end_date", "averaging_days", "peer_set",
+                               "payout_curve"]]
+        + [[f"C{k}", "relative_tsr", "2027-03-01", "2030-02-28", 20, "P", f"{20 + k % 10}:0.5;50:1;{75 + k % 20}:2"]
+           for k in range(50)],
+        "peers": [["peer_set", "peer_id", "volatility", "dividend_yield"]]
+        + [["P", f"X{j}", vol[j], q[j]] for j in range(1, peers + 1)],
+        "correlations": [["peer_set", "first", "second", "correlation"]]
+        + [["P", "self" if i == 0 else f"X{i}", f"X{j}", corr[i, j]] for i in range(peers + 1)
+           for j in range(i + 1, peers + 1)],
+    }
+    for name, rows in tables.items():
+        with open(folder / f"{name}.csv", "w", newline="") as fh:
+            csv.writer(fh).writerows(rows)
+    return folder
+
+
+def bench_ledger(lines):
+    import tempfile
+
+    from grantval.api import value
+
+    with tempfile.TemporaryDirectory() as tmp:
+        folder = _tsr_ledger(pathlib.Path(tmp))
+        seconds, run = _best(lambda: value(folder), repeat=2)
+    t = run.fair_values.table
+    lines.append(
+        f"ledger: 1,000 relative-TSR units (20 peers, 50 payout curves, one date), grantval value: {seconds:.2f} s "
+        f"best of 2, {run.fair_values.distinct_valuations} simulation(s); values "
+        f"{t['fair_value_per_unit'].min():.4f} to {t['fair_value_per_unit'].max():.4f}, "
+        f"largest standard error {t['std_error'].max():.4f}"
+    )
+
+
 def main() -> None:
     import os
 
@@ -197,6 +245,7 @@ def main() -> None:
     bench_daily(lines)
     bench_accuracy(lines)
     bench_espp(lines)
+    bench_ledger(lines)
     write_results(RESULTS, lines)
 
 

@@ -202,46 +202,47 @@ def achieved_payouts(ledger, vested_t: np.ndarray, t_grant: np.ndarray) -> tuple
 
 
 def _grant_problems(parts: LedgerParts) -> list[Problem]:
-    """Grants that point at a market condition: award type, dates and valuation inputs."""
+    """Grants that point at a market condition: award type, dates and settlement (vectorised over grants)."""
     g, t, src = parts.grants, parts.tables, parts.sources["grants"]
     market = market_grants(g, t)
     if not market.any():
         return []
     rows = _condition_rows(g, t)
+    at = rows.index.to_numpy()
+    award = g["award_type"].to_numpy(dtype=object)[at]
+    cs = g["condition_set"].to_numpy(dtype=object)[at]
+    line = g["_row"].to_numpy()[at].astype(int)
+    gd = g["grant_date"].to_numpy("datetime64[D]")[at]
+    start, end = rows["start_date"].to_numpy("datetime64[D]"), rows["end_date"].to_numpy("datetime64[D]")
+    exp = g["expiration_date"].to_numpy("datetime64[D]")[at]
+    de = g["dividend_equivalents"].to_numpy(dtype=object)[at] if "dividend_equivalents" in g else np.full(len(at), "no")
+    kind_ok = np.isin(award, AWARD_TYPES)
     p: list[Problem] = []
-    a = t["assumptions"] if "assumptions" in t else None
-    for i, r in rows.iterrows():
-        gr, row = g.iloc[i], int(g["_row"].iloc[i])
-        cs, gd = gr["condition_set"], np.datetime64(gr["grant_date"], "D")
-        if gr["award_type"] not in AWARD_TYPES:
-            p.append(Problem(src, row, "condition_set", f"the market condition {cs!r} applies to psu or option "
-                             f"grants; this grant is {gr['award_type']!r}"))
-            continue
-        start, end = np.datetime64(r["start_date"], "D"), np.datetime64(r["end_date"], "D")
-        if start != gd:
-            p.append(Problem(src, row, "condition_set", f"the performance period of {cs!r} starts on {start}, not on "
-                             f"the grant date {gd}: only periods that start on the grant date are valued (a period "
-                             "that began earlier needs each member's return to date)"))
-        exp = gr.get("expiration_date")
-        if gr["award_type"] == "option" and exp is not None and not pd.isna(exp) and end > np.datetime64(exp, "D"):
-            p.append(Problem(src, row, "condition_set", f"the performance period of {cs!r} ends on {end}, after "
-                             f"the option expires ({np.datetime64(exp, 'D')})"))
-        if gr["award_type"] != "psu" and gr.get("dividend_equivalents") == "yes":
-            p.append(Problem(src, row, "dividend_equivalents", "applies to units only"))
-    return p + _member_problems(rows, g, t, src)
+    for i in np.flatnonzero(~kind_ok):
+        p.append(Problem(src, int(line[i]), "condition_set", f"the market condition {cs[i]!r} applies to psu or option "
+                         f"grants; this grant is {award[i]!r}"))
+    for i in np.flatnonzero(kind_ok & (start != gd)):
+        p.append(Problem(src, int(line[i]), "condition_set", f"the performance period of {cs[i]!r} starts on "
+                         f"{start[i]}, not on the grant date {gd[i]}: only periods that start on the grant date are "
+                         "valued (a period that began earlier needs each member's return to date)"))
+    late = kind_ok & (award == "option") & ~np.isnat(exp) & (end > exp)
+    for i in np.flatnonzero(late):
+        p.append(Problem(src, int(line[i]), "condition_set", f"the performance period of {cs[i]!r} ends on {end[i]}, "
+                         f"after the option expires ({exp[i]})"))
+    for i in np.flatnonzero(kind_ok & (award != "psu") & (de == "yes")):
+        p.append(Problem(src, int(line[i]), "dividend_equivalents", "applies to units only"))
+    return p + _member_problems(rows, line, cs, t, src)
 
 
-def _member_problems(rows: pd.DataFrame, g: pd.DataFrame, t: dict, src: str) -> list[Problem]:
+def _member_problems(rows: pd.DataFrame, line: np.ndarray, cs: np.ndarray, t: dict, src: str) -> list[Problem]:
     """An index condition needs exactly one member in its peer set (the index)."""
-    p: list[Problem] = []
     peers = t["peers"]
     count = peers.groupby("peer_set").size() if len(peers) else pd.Series(dtype=int)
-    for i, r in rows.iterrows():
-        if r["metric"] == "index_tsr" and count.get(r["peer_set"], 0) != 1:
-            p.append(Problem(src, int(g["_row"].iloc[i]), "condition_set",
-                             f"the index_tsr condition {r.name!r} needs exactly one member in peer set "
-                             f"{r['peer_set']!r} (the index); it has {count.get(r['peer_set'], 0)}"))
-    return p
+    n = rows["peer_set"].map(count).fillna(0).to_numpy(int)
+    bad = (rows["metric"].to_numpy() == "index_tsr") & (n != 1)
+    return [Problem(src, int(line[i]), "condition_set",
+                    f"the index_tsr condition {cs[i]!r} needs exactly one member in peer "
+                    f"set {rows['peer_set'].iat[i]!r} (the index); it has {n[i]}") for i in np.flatnonzero(bad)]
 
 
 def check(parts: LedgerParts) -> list[Problem]:
