@@ -2,8 +2,9 @@
 
 from __future__ import annotations
 
+import enum
 import pathlib
-from typing import Annotated, Optional
+from typing import Annotated, List, Optional
 
 import typer
 
@@ -11,6 +12,12 @@ from grantval.cli.app import app, command_line, echo_outputs, output_set, say, u
 from grantval.cli.options import CurveUnits, Frequency, NoTimestamp
 
 Path = pathlib.Path
+PEER_FILES = ["peers.csv", "correlations.csv"]
+
+
+class PeerDates(str, enum.Enum):
+    pairwise = "pairwise"
+    common = "common"
 
 
 def _lookback(text: str):
@@ -60,6 +67,14 @@ def assumptions_cmd(
     contractual_term: Annotated[Optional[float], typer.Option(
         "--contractual-term", metavar="YEARS", help="With --dates: contractual term, years.")] = None,
     xlsx: Annotated[Optional[Path], typer.Option("--xlsx", metavar="PATH", help="Also write a workbook.")] = None,
+    peer_tables: Annotated[Optional[Path], typer.Option(
+        "--peer-tables", metavar="DIR", help="Also derive the ledger's peer sets from PRICES (daily closes of the "
+        "company and every peer_id): write DIR/peers.csv and DIR/correlations.csv.")] = None,
+    peer_set: Annotated[Optional[List[str]], typer.Option(
+        "--peer-set", metavar="NAME", help="With --peer-tables: only this peer set (repeatable).")] = None,
+    peer_dates: Annotated[PeerDates, typer.Option(
+        "--peer-dates", help="Correlation dates: pairwise (both members have a close) or common (all do).")]
+    = PeerDates.pairwise,
     no_timestamp: NoTimestamp = False,
 ) -> None:
     """Derive share price, volatility, risk-free rate and dividend yield per grant date, with provenance."""
@@ -67,17 +82,29 @@ def assumptions_cmd(
 
     if (ledger is None) == (dates is None):
         usage("give either --ledger LEDGER or --dates DATE,...")
-    plan_cm = output_set({"-o": output, "--xlsx": xlsx}, {}, inputs=[prices, curve, dividends, peers, ledger],
-                         ledgers=[ledger], timestamp=not no_timestamp)
+    if peer_tables is None and peer_set:
+        usage("--peer-set needs --peer-tables DIR")
+    if peer_tables is not None and ledger is None:
+        usage("--peer-tables needs --ledger LEDGER (the peer sets and market conditions are read from it)")
+    plan_cm = output_set({"-o": output, "--xlsx": xlsx}, {"--peer-tables": (peer_tables, PEER_FILES)},
+                         inputs=[prices, curve, dividends, peers, ledger], ledgers=[ledger],
+                         timestamp=not no_timestamp)
     with plan_cm as plan:
         derived = _derive(api, prices, curve, ledger, dates, dividends, peers, lookback, frequency, ticker, peer_weight,
                           max_gap_days, curve_units, curve_fallback, allow_short_history, expected_term,
                           contractual_term)
+        derived_peers = None if peer_tables is None else api.peer_tables(
+            prices, ledger, dividends=dividends, peer_sets=peer_set, ticker=ticker, max_gap_days=max_gap_days,
+            allow_short_history=allow_short_history, peer_dates=peer_dates.value)
         inputs = [str(p) for p in (prices, curve, dividends, peers) if p is not None]
         with writing(plan):
             written = api.write_assumptions(derived, output, xlsx, inputs, command=command_line(),
-                                            timestamp=not no_timestamp, ledger=ledger)
+                                            timestamp=not no_timestamp, ledger=ledger, peers=derived_peers)
+            if derived_peers is not None:
+                written += api.write_peer_tables(derived_peers, peer_tables, inputs, ledger=ledger)
     say(f"{len(derived.table)} grant dates")
+    if derived_peers is not None:
+        say(f"peer sets derived: {dict(derived_peers.notes)['peer sets derived']}")
     echo_outputs(written)
 
 
