@@ -55,6 +55,8 @@ class PeerTables:
     peers: pd.DataFrame
     correlations: pd.DataFrame
     notes: list[tuple[str, str]] = field(default_factory=list)
+    #: what the user must know: members without a close on some dates of the lookback
+    warnings: list[str] = field(default_factory=list)
 
 
 @dataclass
@@ -92,9 +94,9 @@ def derive_peer_tables(prices, ledger, *, dividends=None, peer_sets=None,
                 problems.append(Problem(found.peers_source, row, "peer_id", f"{pid!r} has no closes in {psrc}"))
     _stop(problems)
     own = opt.ticker or "(own)"
-    peer_rows, cor_rows = [], []
+    peer_rows, cor_rows, warnings = [], [], []
     for ps in found.sets:
-        p, c = _one_set(ps, series, own, divs, opt, psrc, problems)
+        p, c = _one_set(ps, series, own, divs, opt, psrc, problems, warnings)
         peer_rows += p
         cor_rows += c
     _stop(problems)
@@ -104,7 +106,7 @@ def derive_peer_tables(prices, ledger, *, dividends=None, peer_sets=None,
     notes = [("peer sets derived", ", ".join(ps.name for ps in found.sets) or "none"),
              ("correlation dates", opt.peer_dates)]
     return PeerTables(_ordered(peers, ("peer_set", "peer_id", "volatility", "dividend_yield")),
-                      _ordered(cors, ("peer_set", "first", "second", "correlation")), notes)
+                      _ordered(cors, ("peer_set", "first", "second", "correlation")), notes, warnings)
 
 
 def _stop(problems: list[Problem]) -> None:
@@ -152,7 +154,7 @@ def _window(s: Series, ticker: str, ps: PeerSet, opt: MarketOptions, psrc: str,
 
 
 def _one_set(ps: PeerSet, series: dict[str, Series], own: str, divs, opt: MarketOptions, psrc: str,
-             problems: list[Problem]) -> tuple[list[dict], list[dict]]:
+             problems: list[Problem], warnings: list[str]) -> tuple[list[dict], list[dict]]:
     """The peers and correlations rows of one peer set."""
     names = ["self"] + [pid for pid, _ in ps.members]
     keys = [""] + [pid for pid, _ in ps.members]
@@ -161,6 +163,7 @@ def _one_set(ps: PeerSet, series: dict[str, Series], own: str, divs, opt: Market
     if len(problems) > before:
         return [], []
     union = np.unique(np.concatenate([w.days for w in win]))
+    warnings += _missing_warnings(ps, win, union, opt.peer_dates)
     base = {"source_prices": psrc, "source_valuation_date": _iso(ps.valuation_day),
             "source_valuation_basis": ps.basis, "source_lookback_days": ps.lookback_days}
     peers = [_peer_row(ps, names[i], win[i], short[i], union, divs, base) for i in range(1, len(names))]
@@ -171,6 +174,19 @@ def _one_set(ps: PeerSet, series: dict[str, Series], own: str, divs, opt: Market
     if len(problems) == before:
         problems += _psd_problem(ps, matrix, win, union, opt, psrc)
     return peers, cors
+
+
+def _missing_warnings(ps: PeerSet, win, union, dates: str) -> list[str]:
+    """One line per member without a close on some of the lookback's dates (those of any member)."""
+    out = []
+    for w in win:
+        missing = union[~np.isin(union, w.days)]
+        if missing.size:
+            listed = ", ".join(_iso(d) for d in missing[:_LISTED]) + (", ..." if missing.size > _LISTED else "")
+            use = ("the dates all members have" if dates == "common" else "the dates both have")
+            out.append(f"peer set {ps.name}: {w.ticker} has no close on {missing.size} of the {union.size} dates "
+                       f"of the lookback ({listed}); its correlations use {use} (source_dates_skipped)")
+    return out
 
 
 def _peer_row(ps: PeerSet, pid: str, w: _Window, short: bool, union, divs, base: dict) -> dict:

@@ -87,6 +87,8 @@ def test_hand_computation_on_a_tiny_series(tmp_path):
     skipped = t.correlations.set_index(["first", "second"])["source_dates_skipped"]
     assert skipped[("self", "PEERA")] == 0 and skipped[("self", "PEERB")] == 1
     assert set(t.correlations["source_valuation_date"]) == {"2026-01-09"}
+    assert t.warnings == ["peer set hand: PEERB has no close on 1 of the 5 dates of the lookback (2026-01-07); "
+                          "its correlations use the dates both have (source_dates_skipped)"]
 
 
 def test_common_dates_by_hand(tmp_path):
