@@ -279,5 +279,18 @@ def test_command_writes_the_tables_and_refuses_the_ledger_folder(tmp_path):
     assert "peer sets derived: sector_peers" in r.output
     got = pd.read_csv(tmp_path / "out" / "correlations.csv")
     assert list(got.columns[:4]) == ["peer_set", "first", "second", "correlation"] and len(got) == 3
+    import openpyxl
+
+    sheets = openpyxl.load_workbook(tmp_path / "a.xlsx", read_only=True).sheetnames
+    assert {"assumptions", "peers", "correlations", "notes"} <= set(sheets)
     r = runner.invoke(app, [str(a) for a in base + ["--peer-tables", ledger]])
     assert r.exit_code == 2, r.output
+
+
+def test_self_as_a_peer_and_a_member_twice_are_refused_on_their_rows(tmp_path):
+    ledger = _ledger(tmp_path / "l", {"sp": ["PEERA", "self", "PEERA"]}, [("tsr", "2026-06-01", "2029-06-01", "sp")])
+    with pytest.raises(LedgerError) as err:
+        api.peer_tables(MARKET / "prices.csv", ledger, ticker="CRVN")
+    got = {(p.source, p.row, p.column): p.message for p in err.value.problems}
+    assert "'self' is the company" in got[("peers.csv", 3, "peer_id")]
+    assert "already in peer set 'sp' on row 2" in got[("peers.csv", 4, "peer_id")]
