@@ -122,6 +122,8 @@ def read_peer_sets(ledger, wanted=None) -> tuple[LedgerPeerSets, list[Problem]]:
     problems += probs
     problems += _member_problems(peers, src)
     names = list(dict.fromkeys(n for n in peers["peer_set"] if isinstance(n, str)))
+    csrc = _source(raw, "market_conditions")
+    problems += _sets_without_members(conditions, names, csrc)
     if wanted:
         unknown = [w for w in wanted if w not in names]
         if unknown:
@@ -129,7 +131,6 @@ def read_peer_sets(ledger, wanted=None) -> tuple[LedgerPeerSets, list[Problem]]:
                              f"(its peer sets: {', '.join(names) or 'none'})", ("peer_sets",))
     sets: list[PeerSet] = []
     derived: set[str] = set()
-    csrc = raw.tables["market_conditions"].source if conditions is not None else "market_conditions"
     for name in names:
         if wanted and name not in wanted:
             continue
@@ -145,6 +146,19 @@ def read_peer_sets(ledger, wanted=None) -> tuple[LedgerPeerSets, list[Problem]]:
         derived.add(name)
     keep = lambda ps: ps not in derived  # noqa: E731
     return LedgerPeerSets(sets, _raw_rows(raw, "peers", keep), _raw_rows(raw, "correlations", keep), src), problems
+
+
+def _source(raw, name: str) -> str:
+    return raw.tables[name].source if name in raw.tables else name
+
+
+def _sets_without_members(conditions, names: list[str], csrc: str) -> list[Problem]:
+    """A market condition naming a peer set that has no rows in the peers table."""
+    if conditions is None:
+        return []
+    return [Problem(csrc, int(r), "peer_set", f"peer set {ps!r} has no members in the peers table: list them there "
+                    "(peer_set, peer_id = the ticker in the prices file)")
+            for ps, r in zip(conditions["peer_set"], conditions["_row"]) if isinstance(ps, str) and ps not in names]
 
 
 def _member_problems(peers: pd.DataFrame, src: str) -> list[Problem]:

@@ -90,7 +90,12 @@ def derive_peer_tables(prices, ledger, *, dividends=None, peer_sets=None,
     divs = _dividends(dividends, problems) if dividends is not None else None
     for ps in found.sets:
         for pid, row in ps.members:
-            if pid not in series and pid != "self":  # self as a peer is refused on its row already
+            if pid == "self":  # refused on its row already
+                continue
+            if pid == opt.ticker:
+                problems.append(Problem(found.peers_source, row, "peer_id", f"{pid!r} is the company's ticker "
+                                        "(--ticker); the company is 'self' and is not one of its peers"))
+            elif pid not in series:
                 problems.append(Problem(found.peers_source, row, "peer_id", f"{pid!r} has no closes in {psrc}"))
     _stop(problems)
     own = opt.ticker or "(own)"

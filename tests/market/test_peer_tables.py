@@ -294,3 +294,13 @@ def test_self_as_a_peer_and_a_member_twice_are_refused_on_their_rows(tmp_path):
     got = {(p.source, p.row, p.column): p.message for p in err.value.problems}
     assert "'self' is the company" in got[("peers.csv", 3, "peer_id")]
     assert "already in peer set 'sp' on row 2" in got[("peers.csv", 4, "peer_id")]
+
+
+def test_a_condition_whose_peer_set_has_no_members_and_the_company_as_a_peer(tmp_path):
+    ledger = _ledger(tmp_path / "l", {"sp": ["CRVN"]}, [("tsr", "2026-06-01", "2029-06-01", "sp"),
+                                                         ("tsr2", "2026-06-01", "2029-06-01", "other")])
+    with pytest.raises(LedgerError) as err:
+        api.peer_tables(MARKET / "prices.csv", ledger, ticker="CRVN")
+    got = {(p.source, p.row, p.column): p.message for p in err.value.problems}
+    assert "peer set 'other' has no members" in got[("market_conditions.csv", 3, "peer_set")]
+    assert "is the company's ticker" in got[("peers.csv", 2, "peer_id")]
