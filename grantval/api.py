@@ -7,6 +7,7 @@ module gathers them under one name.
 """
 
 from grantval.runs.assumptions import assumptions, write_assumptions
+from grantval.runs.assumptions import peer_tables, write_peer_tables  # noqa: F401
 from grantval.runs.check import CheckReport, check
 from grantval.runs.close import close, export_register, register_closes, reopen, verify_register  # noqa: F401
 from grantval.runs.common import reconcile

@@ -25,6 +25,7 @@ OPTION_NAMES = {
     "register": "--register",
     "reason": "--reason",
     "average_prices": "--average-prices",
+    "peer_sets": "--peer-set", "peer_dates": "--peer-dates",
 }
 
 

@@ -2,8 +2,9 @@
 
 from __future__ import annotations
 
+import enum
 import pathlib
-from typing import Annotated, Optional
+from typing import Annotated, List, Optional
 
 import typer
 
@@ -11,6 +12,21 @@ from grantval.cli.app import app, command_line, echo_outputs, output_set, say, u
 from grantval.cli.options import CurveUnits, Frequency, NoTimestamp
 
 Path = pathlib.Path
+PEER_FILES = ["peers.csv", "correlations.csv"]
+
+
+class PeerDates(str, enum.Enum):
+    pairwise = "pairwise"
+    common = "common"
+
+
+PeerTablesOption = Annotated[Optional[Path], typer.Option(
+    "--peer-tables", metavar="DIR", help="Also derive the ledger's peer sets from PRICES (daily closes of the "
+    "company and of every peer_id): write DIR/peers.csv and DIR/correlations.csv.")]
+PeerSetOption = Annotated[Optional[List[str]], typer.Option(
+    "--peer-set", metavar="NAME", help="With --peer-tables: only this peer set (repeatable).")]
+PeerDatesOption = Annotated[PeerDates, typer.Option(
+    "--peer-dates", help="Correlation dates: pairwise (both members have a close) or common (all do).")]
 
 
 def _lookback(text: str):
@@ -60,6 +76,9 @@ def assumptions_cmd(
     contractual_term: Annotated[Optional[float], typer.Option(
         "--contractual-term", metavar="YEARS", help="With --dates: contractual term, years.")] = None,
     xlsx: Annotated[Optional[Path], typer.Option("--xlsx", metavar="PATH", help="Also write a workbook.")] = None,
+    peer_tables: PeerTablesOption = None,
+    peer_set: PeerSetOption = None,
+    peer_dates: PeerDatesOption = PeerDates.pairwise,
     no_timestamp: NoTimestamp = False,
 ) -> None:
     """Derive share price, volatility, risk-free rate and dividend yield per grant date, with provenance."""
@@ -67,18 +86,45 @@ def assumptions_cmd(
 
     if (ledger is None) == (dates is None):
         usage("give either --ledger LEDGER or --dates DATE,...")
-    plan_cm = output_set({"-o": output, "--xlsx": xlsx}, {}, inputs=[prices, curve, dividends, peers, ledger],
-                         ledgers=[ledger], timestamp=not no_timestamp)
+    _check_peer_options(peer_tables, peer_set, ledger)
+    plan_cm = output_set({"-o": output, "--xlsx": xlsx}, {"--peer-tables": (peer_tables, PEER_FILES)},
+                         inputs=[prices, curve, dividends, peers, ledger], ledgers=[ledger],
+                         timestamp=not no_timestamp)
     with plan_cm as plan:
         derived = _derive(api, prices, curve, ledger, dates, dividends, peers, lookback, frequency, ticker, peer_weight,
                           max_gap_days, curve_units, curve_fallback, allow_short_history, expected_term,
                           contractual_term)
+        derived_peers = _derive_peers(api, peer_tables, prices, ledger, dividends, peer_set, ticker, max_gap_days,
+                                      allow_short_history, peer_dates)
         inputs = [str(p) for p in (prices, curve, dividends, peers) if p is not None]
         with writing(plan):
             written = api.write_assumptions(derived, output, xlsx, inputs, command=command_line(),
-                                            timestamp=not no_timestamp, ledger=ledger)
+                                            timestamp=not no_timestamp, ledger=ledger, peers=derived_peers)
+            if derived_peers is not None:
+                written += api.write_peer_tables(derived_peers, peer_tables, inputs, ledger=ledger)
     say(f"{len(derived.table)} grant dates")
+    if derived_peers is not None:
+        say(f"peer sets derived: {dict(derived_peers.notes)['peer sets derived']}")
+        for line in derived_peers.warnings:
+            typer.echo(f"warning: {line}", err=True)
     echo_outputs(written)
+
+
+def _check_peer_options(peer_tables, peer_set, ledger) -> None:
+    if peer_tables is None and peer_set:
+        usage("--peer-set needs --peer-tables DIR")
+    if peer_tables is not None and ledger is None:
+        usage("--peer-tables needs --ledger LEDGER (the peer sets and market conditions are read from it)")
+
+
+def _derive_peers(api, peer_tables, prices, ledger, dividends, peer_set, ticker, max_gap_days, allow_short_history,
+                  peer_dates):
+    """The derived peer tables, or None without --peer-tables."""
+    if peer_tables is None:
+        return None
+    return api.peer_tables(prices, ledger, dividends=dividends, peer_sets=peer_set, ticker=ticker,
+                           max_gap_days=max_gap_days, allow_short_history=allow_short_history,
+                           peer_dates=peer_dates.value)
 
 
 def _derive(api, prices, curve, ledger, dates, dividends, peers, lookback, frequency, ticker, peer_weight,

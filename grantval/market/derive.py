@@ -53,6 +53,7 @@ class MarketOptions:
     allow_short_history: bool = False
     expected_term: float | None = None         # with --dates
     contractual_term: float | None = None      # with --dates and a contractual-term lookback
+    peer_dates: str = "pairwise"               # peer tables: "pairwise" or "common" dates for correlations
 
 
 @dataclass
@@ -106,6 +107,27 @@ def _series(frame: pd.DataFrame, src: str, max_gap: int, ticker_filter) -> tuple
         key = ticker_filter(t)
         out[key] = Series(key or "(own)", d[~dup], c[~dup], rr[~dup])
     return out, problems
+
+
+def read_prices(prices, opt: MarketOptions) -> tuple[dict[str, Series], list[Problem], str]:
+    """Price series by ticker, the company's own under ``""``; the problems found; the file's name.
+
+    The company's closes are the rows of the ticker ``opt.ticker`` or, without it,
+    the rows with a blank ticker; their absence is a problem naming the tickers found.
+    """
+    pframe, problems, psrc = _read(prices, PRICES, "prices")
+    own_ticker = opt.ticker or ""
+    series, probs = _series(pframe, psrc, opt.max_gap_days,
+                            lambda t: "" if (t == own_ticker or (t == "" and not own_ticker)) else t)
+    problems += probs
+    if "" not in series:
+        named = sorted(t for t in series if t)
+        hint = (f"; the file holds closes of {', '.join(named[:8])}{' ...' if len(named) > 8 else ''}: name the "
+                "company's own with --ticker" if named else "")
+        problems.append(Problem(psrc, None, "ticker", "no closes of the company's own shares (rows with a blank "
+                                f"ticker, or the ticker given with --ticker{' ' + repr(opt.ticker) if opt.ticker else ''})"
+                                + hint))
+    return series, problems, psrc
 
 
 def _curve(path, units: str) -> tuple[dict[int, tuple[np.ndarray, np.ndarray, int]], list[Problem], str, str]:
@@ -184,20 +206,8 @@ def derive_assumptions(prices, curve, *, dates=None, ledger=None, dividends=None
         raise UsageError(f"--frequency must be daily, weekly or monthly; got {opt.frequency!r}")
     if not 0 <= opt.peer_weight <= 1:
         raise UsageError(f"--peer-weight must be between 0 and 1; got {opt.peer_weight}")
-    problems: list[Problem] = []
-    pframe, probs, psrc = _read(prices, PRICES, "prices")
-    problems += probs
+    series, problems, psrc = read_prices(prices, opt)
     own_ticker = opt.ticker or ""
-    series, probs = _series(pframe, psrc, opt.max_gap_days,
-                            lambda t: "" if (t == own_ticker or (t == "" and not own_ticker)) else t)
-    problems += probs
-    if "" not in series:
-        named = sorted(t for t in series if t)
-        hint = (f"; the file holds closes of {', '.join(named[:8])}{' ...' if len(named) > 8 else ''}: name the "
-                "company's own with --ticker" if named else "")
-        problems.append(Problem(psrc, None, "ticker", "no closes of the company's own shares (rows with a blank "
-                                f"ticker, or the ticker given with --ticker{' ' + repr(opt.ticker) if opt.ticker else ''})"
-                                + hint))
     curve_rows, probs, csrc, units = _curve(curve, opt.curve_units)
     problems += probs
     divs = None

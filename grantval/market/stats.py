@@ -60,3 +60,35 @@ def interpolate_yield(tenors: np.ndarray, yields: np.ndarray, term: float) -> tu
 def par_to_continuous(par_yield):
     """Continuously compounded rate from a semiannual par (bond-equivalent) yield: 2 ln(1 + y/2)."""
     return 2.0 * np.log1p(np.asarray(par_yield, dtype=float) / 2.0)
+
+
+def common_log_returns(days_a: np.ndarray, closes_a: np.ndarray, days_b: np.ndarray,
+                       closes_b: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Log returns of two series between consecutive dates on which both have a close.
+
+    ``days_*`` are ascending int64 day numbers without repeats.  Returns the
+    common dates and the two return arrays (one return fewer than dates): a
+    date on which only one series has a close is skipped, so each return of
+    one series covers the same interval as the other's (pairwise deletion).
+    """
+    common, ia, ib = np.intersect1d(days_a, days_b, assume_unique=True, return_indices=True)
+    return common, np.diff(np.log(closes_a[ia])), np.diff(np.log(closes_b[ib]))
+
+
+def return_correlation(returns_a: np.ndarray, returns_b: np.ndarray) -> float:
+    """Pearson correlation of two equally long return arrays (NaN with fewer than 3 or a constant one).
+
+    ``sum((a - mean a)(b - mean b)) / sqrt(sum((a - mean a)^2) sum((b - mean b)^2))``
+    (the sample correlation; common practice).
+    """
+    a = np.asarray(returns_a, float) - np.mean(returns_a) if len(returns_a) else np.zeros(0)
+    b = np.asarray(returns_b, float) - np.mean(returns_b) if len(returns_b) else np.zeros(0)
+    den = np.sqrt(np.dot(a, a) * np.dot(b, b))
+    if a.size < 3 or not den > 0:
+        return float("nan")
+    return float(np.clip(np.dot(a, b) / den, -1.0, 1.0))
+
+
+def smallest_eigenvalue(matrix: np.ndarray) -> float:
+    """Smallest eigenvalue of a symmetric matrix (below about -1e-10: not positive semi-definite)."""
+    return float(np.linalg.eigvalsh(np.asarray(matrix, float)).min())
