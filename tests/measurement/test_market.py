@@ -180,3 +180,19 @@ def test_option_expected_term_shorter_than_the_period_is_refused(tmp_path):
     with pytest.raises(LedgerError) as err:
         value(folder)
     assert "grants.csv, row 3, condition_set" in str(err.value) and "ends before its performance period" in str(err.value)
+
+
+def test_whatif_volatility_shift_moves_a_market_condition_value(tmp_path):
+    # A market condition is simulated with the volatility, so a what-if volatility shift re-values it:
+    # the absolute-TSR digital moves to its closed form at the shifted volatility (same reference as above).
+    from grantval.ledger import load_ledger
+    from grantval.measurement.fairvalue import compute_fair_values
+    from grantval.policy import Policy
+    from grantval.scenarios.shifts import Shifts
+
+    ledger = load_ledger(market_ledger(tmp_path, curve="0:1"))
+    mask = ledger.grants["grant_id"].to_numpy() == "G2"
+    fv = compute_fair_values(ledger, Policy(), Shifts("vol +0.2", mask, volatility=lambda v: v + 0.2))
+    row = fv.table.set_index("grant_id").loc["G2"]
+    assert _within(row, absolute_tsr_digital(S, 0.0, VOL + 0.2, R, _term(), 0.0))
+    assert not _within(row, absolute_tsr_digital(S, 0.0, VOL, R, _term(), 0.0))
