@@ -143,8 +143,8 @@ def read_ledger(location, planned=None) -> tuple[Ledger | None, list[Problem]]:
 
     ok, tranches, probs = _tranches(g, frames["tranches"], sources["tranches"])
     problems += probs
-    tranches = combine_schedules(tranches, own_tranches)  # the extensions' own tranches replace generated ones
-    tranches = vest_date_extensions(g, frames, tranches)
+    # the extensions' own tranches replace generated ones; extensions may set vest dates (market conditions)
+    tranches = vest_date_extensions(g, frames, combine_schedules(tranches, own_tranches))
     problems += v.check_last_vest(g, tranches, sources["grants"])
 
     ev = frames["events"]
