@@ -143,8 +143,7 @@ def read_ledger(location, planned=None) -> tuple[Ledger | None, list[Problem]]:
 
     ok, tranches, probs = _tranches(g, frames["tranches"], sources["tranches"])
     problems += probs
-    # the extensions' own tranches replace generated ones; extensions may set vest dates (market conditions)
-    tranches = vest_date_extensions(g, frames, combine_schedules(tranches, own_tranches))
+    tranches = vest_date_extensions(g, frames, combine_schedules(tranches, own_tranches))  # own tranches; vest dates
     problems += v.check_last_vest(g, tranches, sources["grants"])
 
     ev = frames["events"]
