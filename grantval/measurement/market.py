@@ -12,6 +12,10 @@ valued on a simulation of the company and the members of its peer set
 - the cost is recognised whether or not the condition is met (ASC 718-10-30-14; IFRS 2.21), so
   the payout is in the fair value and the units' cost is not scaled by a payout in force.
 
+A TSR period that began before the grant date starts from each member's total return to the grant
+date (``market_returns``): only the end window is simulated, from the start levels those returns
+give (:func:`grantval.pricing.paths.simulate_market` ``start_level``).
+
 Grants that share a peer set, dates, averaging window and valuation inputs share one simulation
 (policy ``mc_paths`` paths, seed ``mc_seed``), so reruns are identical.  Every value carries its
 Monte Carlo standard error.
@@ -32,7 +36,7 @@ import pandas as pd
 
 from grantval.dates import year_fraction
 from grantval.errors import LedgerError, Problem
-from grantval.ledger.ext.market import market_grants
+from grantval.ledger.ext.market import TSR_METRICS, market_grants, members_of, returns_on
 from grantval.pricing.market_condition import derived_service_period, market_award_values
 from grantval.pricing.paths import simulate_market
 from grantval.pricing.payout import parse_payout_curve
@@ -103,11 +107,22 @@ def _plan(ctx, grants: np.ndarray) -> pd.DataFrame:
     for name in ("share_price", "volatility", "dividend_yield", "risk_free_rate"):
         rows[name] = getattr(ctx, name)[at]
     rows["peer_set"] = rows["peer_set"].where(rows["peer_set"].notna(), "")
+    rows["returns"] = [_start_returns(ctx.ledger, r) for r in rows.itertuples(index=False)]
+    rows["returns_key"] = rows["returns"].map(repr)  # hashable text for grouping (None for a period from today)
     return rows
 
 
+def _start_returns(ledger, r) -> tuple | None:
+    """Total returns to the grant date of ``self`` and each member, for a TSR period that began earlier."""
+    gd = ledger.grants["grant_date"].to_numpy("datetime64[D]")[r.grant]
+    if r.metric not in TSR_METRICS or np.datetime64(r.start_date, "D") >= gd:
+        return None
+    have = returns_on(ledger.tables, r.condition_set, gd)
+    return tuple(have[m] for m in members_of(ledger.tables["peers"], r.peer_set))
+
+
 _SIM_KEY = ["peer_set", "term", "averaging_days", "daily", "share_price", "volatility", "dividend_yield",
-            "risk_free_rate"]
+            "risk_free_rate", "returns_key"]
 _SETTLE_KEY = ["metric", "monitoring", "kind", "dividend_equivalents", "strike", "expected_term"]
 
 
@@ -116,9 +131,10 @@ def _simulate(ctx, key: dict, hurdles: list):
     vol, q, cor = _members(ctx.ledger, key["peer_set"])
     n = 1 + vol.size
     prices = np.r_[key["share_price"], np.ones(n - 1)]  # total returns are scale-free: peers start at 1
+    start = None if key["returns"] is None else prices / (1.0 + np.asarray(key["returns"], dtype=float))
     return simulate_market(prices, np.r_[key["volatility"], vol], np.r_[key["dividend_yield"], q],
                            key["risk_free_rate"], key["term"], cor, averaging_days=int(key["averaging_days"]),
-                           daily=bool(key["daily"]), hurdles=sorted(set(hurdles)) or None,
+                           daily=bool(key["daily"]), start_level=start, hurdles=sorted(set(hurdles)) or None,
                            paths=ctx.mc_paths, seed=ctx.mc_seed)
 
 
@@ -191,6 +207,6 @@ def value_market(ctx, grants: np.ndarray) -> MarketResult:
     rows["strike"] = np.where(option, ctx.strike[rows["grant"]], np.nan)
     rows["expected_term"] = np.where(option, ctx.term_award[rows["grant"]], np.nan)
     _term_problems(ctx, rows[option])
-    for _, group in rows.groupby(_SIM_KEY, sort=False):
+    for _, group in rows.groupby(_SIM_KEY, sort=False, dropna=False):
         _value_group(ctx, group, out)
     return out

@@ -196,3 +196,18 @@ def test_whatif_volatility_shift_moves_a_market_condition_value(tmp_path):
     row = fv.table.set_index("grant_id").loc["G2"]
     assert _within(row, absolute_tsr_digital(S, 0.0, VOL + 0.2, R, _term(), 0.0))
     assert not _within(row, absolute_tsr_digital(S, 0.0, VOL, R, _term(), 0.0))
+
+
+def test_period_begun_before_the_grant_starts_from_the_return_to_date(tmp_path):
+    # Period 2026-07-01 to 2029-12-31, granted 2027-01-01 after a 20% total return: the unit pays one share
+    # if the period's TSR is >= 0, i.e. if the return from the grant date is >= 1/1.2 - 1.  Reference: the
+    # absolute-TSR digital closed form at that hurdle over the time left (docs/market-conditions.md).
+    returns = [{"condition_set": "M1", "member": "self", "measured_on": GRANT, "total_return": 0.2}]
+    folder = market_ledger(tmp_path, curve="0:1", extra={"market_returns": returns})
+    mc = pd.read_csv(folder / "market_conditions.csv", dtype=str, keep_default_na=False)
+    mc.loc[0, "start_date"] = "2026-07-01"
+    mc.to_csv(folder / "market_conditions.csv", index=False)
+    row = _g2(folder)
+    assert _within(row, absolute_tsr_digital(S, 0.0, VOL, R, _term(), 1 / 1.2 - 1))
+    # the check can fail: ignoring the return to date gives the at-the-start digital
+    assert not _within(row, absolute_tsr_digital(S, 0.0, VOL, R, _term(), 0.0))

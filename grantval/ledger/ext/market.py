@@ -43,6 +43,14 @@ PEERS = (
     Column("volatility", "number", required=True),
     Column("dividend_yield", "number"),
 )
+MARKET_RETURNS = (
+    Column("condition_set", "text", required=True),
+    Column("member", "text", required=True),
+    Column("measured_on", "date", required=True),
+    Column("total_return", "number", required=True),
+)
+#: metrics whose value depends on the start of the period (a total shareholder return)
+TSR_METRICS = ("relative_tsr", "index_tsr", "absolute_tsr")
 GRANT_COLUMNS = (Column("dividend_equivalents", "choice", choices=("yes", "no"), default="no"),)
 #: award types that may carry a market condition
 AWARD_TYPES = ("psu", "option")
@@ -221,10 +229,13 @@ def _grant_problems(parts: LedgerParts) -> list[Problem]:
     for i in np.flatnonzero(~kind_ok):
         p.append(Problem(src, int(line[i]), "condition_set", f"the market condition {cs[i]!r} applies to psu or option "
                          f"grants; this grant is {award[i]!r}"))
-    for i in np.flatnonzero(kind_ok & (start != gd)):
+    for i in np.flatnonzero(kind_ok & (start > gd)):
         p.append(Problem(src, int(line[i]), "condition_set", f"the performance period of {cs[i]!r} starts on "
-                         f"{start[i]}, not on the grant date {gd[i]}: only periods that start on the grant date are "
-                         "valued (a period that began earlier needs each member's return to date)"))
+                         f"{start[i]}, after the grant date {gd[i]}: a period must start on or before the grant date"))
+    for i in np.flatnonzero(kind_ok & (end <= gd)):
+        p.append(Problem(src, int(line[i]), "condition_set", f"the performance period of {cs[i]!r} ends on "
+                         f"{end[i]}, not after the grant date {gd[i]}"))
+    p += _returns_to_date(rows, at, gd, line, cs, kind_ok & (start < gd) & (end > gd), t, parts.sources)
     late = kind_ok & (award == "option") & ~np.isnat(exp) & (end > exp)
     for i in np.flatnonzero(late):
         p.append(Problem(src, int(line[i]), "condition_set", f"the performance period of {cs[i]!r} ends on {end[i]}, "
@@ -232,6 +243,65 @@ def _grant_problems(parts: LedgerParts) -> list[Problem]:
     for i in np.flatnonzero(kind_ok & (award != "psu") & (de == "yes")):
         p.append(Problem(src, int(line[i]), "dividend_equivalents", "applies to units only"))
     return p + _member_problems(rows, line, cs, t, src)
+
+
+def members_of(peers: pd.DataFrame, peer_set) -> list[str]:
+    """``self`` and the peer ids of a peer set (only ``self`` without one)."""
+    if not isinstance(peer_set, str) or not peer_set:
+        return ["self"]
+    return ["self"] + list(peers["peer_id"][peers["peer_set"] == peer_set])
+
+
+def returns_on(tables: dict, condition_set: str, day) -> dict:
+    """``member -> total_return`` of a condition set measured on ``day`` (empty when none)."""
+    mr = tables.get("market_returns")
+    if mr is None or not len(mr):
+        return {}
+    f = mr[(mr["condition_set"] == condition_set) & (mr["measured_on"].to_numpy("datetime64[D]") == np.datetime64(day, "D"))]
+    return dict(zip(f["member"], f["total_return"].astype(float)))
+
+
+def _returns_to_date(rows, at, gd, line, cs, began, t: dict, sources: dict) -> list[Problem]:
+    """A TSR period that began before the grant date needs each member's return to the grant date, and its
+    start averaging window must be over by then (averaging_days / 252 years, the simulation's calendar)."""
+    p: list[Problem] = []
+    for i in np.flatnonzero(began):
+        r = rows.iloc[i]
+        if r["metric"] not in TSR_METRICS:
+            continue
+        ad = 0 if pd.isna(r["averaging_days"]) else float(r["averaging_days"])
+        if (gd[i] - np.datetime64(r["start_date"], "D")).astype(int) / 365.25 < ad / 252:
+            p.append(Problem(sources["grants"], int(line[i]), "condition_set", f"the start averaging window of "
+                             f"{cs[i]!r} is not over on the grant date {gd[i]}; its start value is not known yet"))
+            continue
+        have = returns_on(t, cs[i], gd[i])
+        missing = [m for m in members_of(t["peers"], r["peer_set"]) if m not in have]
+        if missing:
+            p.append(Problem(sources["grants"], int(line[i]), "condition_set", f"the period of {cs[i]!r} began "
+                             f"on {np.datetime64(r['start_date'], 'D')}, before the grant date {gd[i]}: give the "
+                             f"total return to {gd[i]} of {', '.join(missing)} in the market_returns table"))
+    return p
+
+
+def _returns_problems(t: dict, src: str) -> list[Problem]:
+    """Row checks of market_returns: a known condition and member, one row per member and date, above -100%."""
+    mr = t["market_returns"]
+    if not len(mr):
+        return []
+    mc = t["market_conditions"].drop_duplicates("condition_set").set_index("condition_set")
+    p: list[Problem] = []
+    for row, c, m, tr in zip(mr["_row"], mr["condition_set"], mr["member"], mr["total_return"]):
+        if c not in mc.index:
+            p.append(Problem(src, int(row), "condition_set", f"{c!r} is not in the market_conditions table"))
+        elif m not in members_of(t["peers"], mc.loc[c, "peer_set"]):
+            p.append(Problem(src, int(row), "member", f"{m!r} is not 'self' or a peer of {c!r}'s peer set"))
+        if tr <= -1:
+            p.append(Problem(src, int(row), "total_return", f"{tr:g} is a loss of 100% or more; a total return "
+                             "is a decimal above -1 (-0.25 is a 25% fall)"))
+    dup = mr[["condition_set", "member", "measured_on"]].astype(str).duplicated().to_numpy()
+    for r in rows_where(mr, dup):
+        p.append(Problem(src, r, "measured_on", "the member already has a total return on this date"))
+    return p
 
 
 def _member_problems(rows: pd.DataFrame, line: np.ndarray, cs: np.ndarray, t: dict, src: str) -> list[Problem]:
@@ -250,6 +320,7 @@ def check(parts: LedgerParts) -> list[Problem]:
     t, s = parts.tables, parts.sources
     mc, peers, cor = t["market_conditions"], t["peers"], t["correlations"]
     p = _condition_problems(mc, peers, s["market_conditions"]) + _correlation_problems(peers, cor, s["correlations"])
+    p += _returns_problems(t, s["market_returns"])
     both = set(mc["condition_set"]) & set(t["performance"]["condition_set"]) if len(mc) else set()
     for r in rows_where(mc, mc["condition_set"].isin(both).to_numpy()):
         p.append(Problem(s["market_conditions"], r, "condition_set", "is also in the performance table"))
@@ -263,9 +334,10 @@ def check(parts: LedgerParts) -> list[Problem]:
 
 EXTENSION = Extension(
     feature="market conditions",
-    tables={"market_conditions": MARKET_CONDITIONS, "peers": PEERS, "correlations": CORRELATIONS},
+    tables={"market_conditions": MARKET_CONDITIONS, "peers": PEERS, "correlations": CORRELATIONS,
+            "market_returns": MARKET_RETURNS},
     grant_columns=GRANT_COLUMNS,
-    text_columns=frozenset({"condition_set", "peer_set", "peer_id", "first", "second", "payout_curve"}),
+    text_columns=frozenset({"condition_set", "peer_set", "peer_id", "first", "second", "payout_curve", "member"}),
     check=check,
     vest_dates=vest_dates,
 )

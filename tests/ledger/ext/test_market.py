@@ -37,11 +37,44 @@ def _psu_on_market(data):
     return data
 
 
-def test_market_condition_starting_before_the_grant_is_refused(tmp_path):
-    # the period starts 2024-01-01, the grant is dated 2027-01-01: the return to date is unknown
+def test_market_condition_ending_before_the_grant_is_refused(tmp_path):
+    # the period 2024-01-01 to 2026-12-31 is over before the grant dated 2027-01-01
     report = problems_of(tmp_path, _psu_on_market(_market(tables())))
-    assert_problem(report, "grants.csv", 2, "condition_set", "starts on 2024-01-01, not on the grant date")
+    assert_problem(report, "grants.csv", 2, "condition_set", "ends on 2026-12-31, not after the grant date")
     assert not any("no rows in the performance table" in p.message for p in report.errors)
+
+
+def test_period_begun_before_the_grant_needs_the_returns_to_date(tmp_path):
+    data = _psu_on_market(_market(tables()))
+    data["market_conditions"][0].update({"start_date": "2026-07-01", "end_date": "2029-06-30"})
+    report = problems_of(tmp_path, data)
+    assert_problem(report, "grants.csv", 2, "condition_set", "give the total return to 2027-01-01 of self, A")
+    data["market_returns"] = [{"condition_set": "M1", "member": "self", "measured_on": "2027-01-01",
+                               "total_return": 0.1},
+                              {"condition_set": "M1", "member": "A", "measured_on": "2027-01-01",
+                               "total_return": -0.05}]
+    report = problems_of(tmp_path / "ok", data)
+    assert report.ok, [str(p) for p in report.problems]
+    data["market_returns"] += [{"condition_set": "M1", "member": "Z", "measured_on": "2027-01-01",
+                                "total_return": -1.2},
+                               {"condition_set": "M9", "member": "self", "measured_on": "2027-01-01",
+                                "total_return": 0.0},
+                               dict(data["market_returns"][0])]
+    report = problems_of(tmp_path / "bad", data)
+    assert_problem(report, "market_returns.csv", 4, "member", "not 'self' or a peer")
+    assert_problem(report, "market_returns.csv", 4, "total_return", "100% or more")
+    assert_problem(report, "market_returns.csv", 5, "condition_set", "not in the market_conditions table")
+    assert_problem(report, "market_returns.csv", 6, "measured_on", "already has a total return")
+
+
+def test_start_window_not_over_and_period_after_grant(tmp_path):
+    data = _psu_on_market(_market(tables()))
+    data["market_conditions"][0].update({"start_date": "2026-12-20", "end_date": "2029-06-30", "averaging_days": 20})
+    report = problems_of(tmp_path, data)
+    assert_problem(report, "grants.csv", 2, "condition_set", "start averaging window")
+    data["market_conditions"][0].update({"start_date": "2027-02-01"})
+    report = problems_of(tmp_path / "late", data)
+    assert_problem(report, "grants.csv", 2, "condition_set", "after the grant date 2027-01-01")
 
 
 def _on_grant_date(data):
