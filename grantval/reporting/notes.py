@@ -22,6 +22,12 @@ VALUATION_METHODS = [
     ("RSUs",
      "Share price at the grant date less the present value of dividends forgone until each tranche "
      "vests: S x exp(-q t)."),
+    ("Purchase-plan rights",
+     "Each purchase period of an ESPP enrollment is its own option from the offering start to its purchase "
+     "date, valued by the ASC 718-50-55 components (d S e^(-q T) + (1 - d) x call struck at S, plus d x put "
+     "for a fixed withholding; d S e^(-q T) or d S e^(-r T) without a look-back); the same value under "
+     "IFRS 2. Every period keeps its own value whatever the valuation_unit policy; a per-enrollment figure "
+     "is the share-weighted mean of its periods."),
     ("Supplied values",
      "A fair_value in the assumptions table is used as given and marked as supplied by an outside valuation."),
     ("Conventions",

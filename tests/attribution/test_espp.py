@@ -105,6 +105,30 @@ def test_two_purchase_offering_is_two_options_each_recognised_to_its_purchase_da
         assert abs(cum[k] - round(want * 100)) <= 1
 
 
+@pytest.mark.parametrize("attribution", ["graded", "straight-line"])
+def test_each_purchase_period_keeps_its_own_value_under_the_award_unit(tmp_path, attribution):
+    # valuation_unit = award averages an award's tranches; a purchase period is its own option (ASC 718-50-55,
+    # several purchase periods; from memory), so the ESPP kind is valued per period whatever the policy:
+    # the two QuantLib blackFormula component values, as under the tranche unit above
+    folder = ledger(tmp_path / "l", [offering(purchase_dates="2027-07-01;2028-01-01")], [enrol(withholding="3400")],
+                    policy={"attribution": attribution, "valuation_unit": "award"})
+    run = api.expense(folder, through="2028-03-31", period="quarter")
+    v1 = ql_espp(20, 181, 0.05, 0.3, 0.01, 0.15, "fixed_shares")
+    v2 = ql_espp(20, 365, 0.05, 0.3, 0.01, 0.15, "fixed_shares")
+    assert run.fair_values.tranche_value[run.inputs.t_grant == 1] == pytest.approx([v1, v2], rel=1e-10)
+    # the award-level figure reported per grant is still the quantity-weighted mean (100 shares each)
+    assert run.fair_values.grant_value[1] == pytest.approx((v1 + v2) / 2, rel=1e-10)
+    # the option grant G1 beside it is still valued as one award (its four tranches share one value)
+    assert len(set(run.fair_values.tranche_value[run.inputs.t_grant == 0])) == 1
+    cum = np.cumsum(run.schedule.expense_cents[1])
+    for k, served in enumerate((90, 181, 273, 365, 365)):
+        if attribution == "graded":
+            want = 100 * v1 * min(served / 181, 1) + 100 * v2 * min(served / 365, 1)
+        else:  # straight-line to the last purchase date, at least the periods reached (ASC 718-10-35-8)
+            want = max((100 * v1 + 100 * v2) * min(served / 365, 1), 100 * v1 * (served >= 181))
+        assert abs(cum[k] - round(want * 100)) <= 1
+
+
 def test_plan_without_a_look_back_costs_only_the_discount(tmp_path):
     # no option feature: the purchase price is (1 - d) S_T; per share d S_0 e^{-qT} (fixed shares) and
     # d S_0 e^{-rT} (fixed withholding: a known gain of d/(1-d) of the withholdings), docs/purchase-plans.md;
