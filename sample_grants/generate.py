@@ -215,8 +215,8 @@ def main() -> None:
     write("performance", ["condition_set", "assessed_on", "payout", "expected_vest_date"], performance)
     write("espp_offerings", list(offerings[0]), offerings)
     write("espp_enrollments", list(enrollments[0]), enrollments)
-    from grantval.ledger.schema import TABLE_NAMES, TEXT_COLUMNS
     from grantval.io.convert import csv_folder_to_workbook
+    from grantval.ledger.schema import TABLE_NAMES, TEXT_COLUMNS
 
     csv_folder_to_workbook(HERE, HERE / "sample_grants.xlsx", TABLE_NAMES, TEXT_COLUMNS)
 
