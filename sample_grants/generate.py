@@ -51,6 +51,48 @@ def tranche_dates(start: dt.date, months: int, every: int, cliff: int, qty: int)
     return sorted(out.items())
 
 
+# the employee share purchase plan: one 24-month offering with a look-back and four purchase dates
+ESPP_ID = "CV-ESPP-2026"
+ESPP_START = "2026-01-01"
+ESPP_PURCHASES = ["2026-06-30", "2026-12-31", "2027-06-30", "2027-12-31"]
+ESPP_PRICE = 24.30  # the close on the start date in market/prices.csv
+ESPP_DISCOUNT = 0.15
+ESPP_MAX_SHARES = 250  # most shares one enrollment buys on each purchase date
+ESPP_PRICE_AT = {"2026-06-30": 27.14}  # closes on the purchase dates before the demo's reporting dates
+
+
+def purchase_plan():
+    """The offering, a dozen enrollments, one withdrawal and the purchases made by 2026-11-30.
+
+    Fixed number of shares (Type A): each period's withholding buys ``withholding / 4 / (0.85 x 24.30)``
+    shares, rounded down and at most 250; on a purchase date the employee pays 85% of the lower of the
+    start price and that day's close.  Uses its own seeded generator so the grants above do not change.
+    """
+    rng = np.random.default_rng(20260101)
+    offerings = [{
+        "offering_id": ESPP_ID, "start_date": ESPP_START, "purchase_dates": ";".join(ESPP_PURCHASES),
+        "discount": f"{ESPP_DISCOUNT:.2f}", "lookback": "yes", "shares_basis": "fixed_shares",
+        "share_price": f"{ESPP_PRICE:.2f}", "volatility": "0.42", "risk_free_rate": "0.0385",
+        "dividend_yield": "0.008", "max_shares": str(ESPP_MAX_SHARES),
+    }]
+    holders = sorted({f"E{2000 + int(h):04d}" for h in rng.choice(300, size=12, replace=False)})
+    enrollments, events = [], []
+    for k, h in enumerate(holders):
+        # 2% to 10% of an invented salary over the two years; the last one is capped by max_shares
+        withholding = 24000.0 if k == len(holders) - 1 else float(rng.integers(16, 97)) * 125.0
+        enrollments.append({"offering_id": ESPP_ID, "holder_id": h, "group": GROUPS[int(rng.integers(0, 4))],
+                            "withholding": f"{withholding:.2f}"})
+        per_period = min(int(withholding / len(ESPP_PURCHASES) / ((1 - ESPP_DISCOUNT) * ESPP_PRICE) + 1e-9),
+                         ESPP_MAX_SHARES)
+        gid = f"{ESPP_ID}/{h}"
+        for d, close in ESPP_PRICE_AT.items():
+            paid = round((1 - ESPP_DISCOUNT) * min(ESPP_PRICE, close), 4)
+            events.append([gid, d, "purchase", str(per_period), f"{paid:.4f}"])
+        if k == 4:  # stops contributing while still employed: a cancellation of the open periods
+            events.append([gid, "2026-09-15", "withdraw", "", ""])
+    return offerings, enrollments, events
+
+
 def main() -> None:
     grants, events = [], []
     gid = 0
@@ -153,6 +195,9 @@ def main() -> None:
     policy = [["standard", "asc718"], ["attribution", "straight-line"], ["forfeitures", "estimate"],
               ["period", "quarter"], ["fiscal_year_end_month", "12"], ["valuation_unit", "award"]]
 
+    offerings, enrollments, espp_events = purchase_plan()
+    events += espp_events
+
     def write(name, header, rows):
         with open(HERE / f"{name}.csv", "w", newline="", encoding="utf-8") as fh:
             w = csv.writer(fh, lineterminator="\n")
@@ -168,8 +213,10 @@ def main() -> None:
     write("estimates", ["applies_to", "effective_date", "annual_forfeiture_rate", "expected_vest_fraction"], estimates)
     write("policy", ["key", "value"], policy)
     write("performance", ["condition_set", "assessed_on", "payout", "expected_vest_date"], performance)
-    from grantval.ledger.schema import TABLE_NAMES, TEXT_COLUMNS
+    write("espp_offerings", list(offerings[0]), offerings)
+    write("espp_enrollments", list(enrollments[0]), enrollments)
     from grantval.io.convert import csv_folder_to_workbook
+    from grantval.ledger.schema import TABLE_NAMES, TEXT_COLUMNS
 
     csv_folder_to_workbook(HERE, HERE / "sample_grants.xlsx", TABLE_NAMES, TEXT_COLUMNS)
 

@@ -177,7 +177,8 @@ def test_expense_on_sample_ledger(tmp_path):
         assert (tmp_path / "csv" / name).exists()
     wb = openpyxl.load_workbook(out, read_only=True)
     assert wb.sheetnames == ["run", "summary", "fair_values", "expense_by_grant", "expense_by_group", "tranches",
-                             "forecast", "unrecognized", "checks", "notes"]
+                             "forecast", "unrecognized", "purchase_plans", "purchase_plan_activity", "checks",
+                             "notes"]  # the demo's purchase plan adds its two sheets
     with open(tmp_path / "csv" / "expense.csv", newline="") as fh:
         rows = list(csv.DictReader(fh))
     assert list(rows[0]) == ["grant_id", "group", "period_end", "expense", "cumulative_expense"]

@@ -7,7 +7,7 @@ import pytest
 
 from grantval import api
 from grantval.dates import year_fraction
-from grantval.pricing import bsm_value, lattice_value, rsu_value, simplified_term
+from grantval.pricing import bsm_value, espp_value, lattice_value, rsu_value, simplified_term
 from tests.factory import set_cell, tables, write_ledger
 
 SAMPLE = pathlib.Path(__file__).resolve().parents[1] / "sample_grants"
@@ -19,7 +19,7 @@ def test_sample_ledger_against_direct_calls():
     t = fv.table.set_index("grant_id")
     g = led.grants.set_index("grant_id")
     a = led.assumptions
-    checked = {"bsm": 0, "lattice": 0, "rsu": 0, "psu": 0, "supplied": 0}
+    checked = {"bsm": 0, "lattice": 0, "rsu": 0, "psu": 0, "supplied": 0, "espp": 0}
     for i, gid in enumerate(led.grants["grant_id"]):
         row = a.iloc[led.grant_assumption[i]]
         tr = led.tranches[led.tranches["grant_idx"] == i]
@@ -30,6 +30,11 @@ def test_sample_ledger_against_direct_calls():
         q = row["dividend_yield"] if not np.isnan(row["dividend_yield"]) else 0.0
         if model == "supplied":
             expected = row["fair_value"]
+        elif model == "espp":  # a purchase-plan enrollment: one right per purchase period, share-weighted
+            vals = espp_value(row["share_price"], tv, row["risk_free_rate"], row["volatility"], q,
+                              discount=g.at[gid, "_espp_discount"], lookback=bool(g.at[gid, "_espp_lookback"]),
+                              basis=g.at[gid, "_espp_basis"])
+            expected = np.average(vals, weights=w)
         elif model in ("rsu", "psu"):  # a performance unit is valued as a unit at target (payout in expense)
             expected = np.average(rsu_value(row["share_price"], tv, q), weights=w)
         else:

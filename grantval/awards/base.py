@@ -75,6 +75,11 @@ class AwardKind:
         The value depends on the expected volatility and the risk-free rate
         (options, appreciation rights, purchase rights), so what-if shifts of
         those inputs apply to it.
+    valued_per_tranche : bool
+        Each tranche is its own right with its own value, whatever the policy's
+        ``valuation_unit``: the expense engine uses every tranche's value, never the
+        award's quantity-weighted mean (purchase-plan enrollments: each purchase period
+        is an option from the offering start to its purchase date, ASC 718-50-55).
     """
 
     name: str
@@ -85,3 +90,4 @@ class AwardKind:
     value: Callable[["ValuationContext", np.ndarray], KindValues]
     settlement: str = "shares"
     priced_with_volatility: bool = False
+    valued_per_tranche: bool = False

@@ -17,6 +17,10 @@ the start price, the right is worth, per share counted (``min(N_0, M)``), with `
   ``N_0`` ``d min(S_0, k S_T)`` at every price),
 
 ``P(K)`` the Black-Scholes-Merton put struck at ``K`` (derivation in ``docs/purchase-plans.md``).
+
+The kind declares ``valued_per_tranche``: every purchase period keeps its own value under either
+``valuation_unit`` (the periods have different terms; a mean over them is not the value of any
+of them).
 """
 
 from __future__ import annotations
@@ -90,4 +94,4 @@ def _capped(args: dict, vals: np.ndarray, k: np.ndarray, lookback: bool, cache) 
 
 KIND = AwardKind(name="espp", description="employee share purchase plan right, settled in shares",
                  option_terms=False, exercisable=False, disclosure_group="purchase_plans", value=value,
-                 priced_with_volatility=True)
+                 priced_with_volatility=True, valued_per_tranche=True)

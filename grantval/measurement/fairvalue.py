@@ -15,7 +15,10 @@ Methods (stated in every output):
   each tranche vests (S e^{-q t}); award level as for the lattice;
 - awards with a market condition: Monte Carlo (:mod:`grantval.measurement.market`), with the
   standard error of each value and, without a vesting schedule, the derived service period;
-- a ``fair_value`` in the assumptions is used as given and marked supplied.
+- a ``fair_value`` in the assumptions is used as given and marked supplied;
+- kinds declaring ``valued_per_tranche`` (purchase-plan enrollments) keep each
+  tranche's own value under the ``award`` unit too; only their award-level
+  ``grant_value`` (reported per grant) is the quantity-weighted mean.
 
 Identical valuation inputs are valued once.
 """
@@ -28,7 +31,7 @@ from typing import TYPE_CHECKING
 import numpy as np
 import pandas as pd
 
-from grantval.awards.registry import kinds
+from grantval.awards.registry import flag, kinds
 from grantval.ledger.model import Ledger
 from grantval.measurement.context import ValuationContext, build_context
 from grantval.measurement.market import MODEL as MARKET_MODEL
@@ -51,7 +54,8 @@ class FairValues:
         tranche (``tranche``), with the inputs used.
     tranche_value : ndarray
         Fair value per unit used for each row of ``ledger.tranches`` (the
-        award value for every tranche under the award unit).
+        award value for every tranche under the award unit, except for kinds
+        valued per tranche always, which keep each tranche's value).
     grant_value : ndarray
         Fair value per unit of each grant (quantity-weighted over tranches).
     distinct_valuations : int
@@ -112,6 +116,12 @@ def _grant_values(ctx: ValuationContext, tv: np.ndarray) -> np.ndarray:
     return ref + spread / np.where(ctx.g_qty > 0, ctx.g_qty, 1)
 
 
+def _per_tranche(ctx: ValuationContext) -> np.ndarray:
+    """Per tranche: it keeps its own value (``tranche`` unit, or a kind valued per tranche always)."""
+    own = flag(ctx.award, "valued_per_tranche") & ~ctx.is_supplied
+    return own[ctx.gi] | ctx.per_tranche
+
+
 def compute_fair_values(ledger: Ledger, policy: Policy, shifts: "Shifts | None" = None,
                         cache: dict | None = None) -> FairValues:
     """Value every grant of a checked ledger under ``policy``.
@@ -139,7 +149,7 @@ def compute_fair_values(ledger: Ledger, policy: Policy, shifts: "Shifts | None" 
         apply_shifts(ctx, shifts)
     tv, t_term, award_term, model, term_method, distinct, mc = _value_by_kind(ctx)
     grant_value = _grant_values(ctx, tv)
-    tranche_value = tv if ctx.per_tranche else grant_value[ctx.gi]
+    tranche_value = np.where(_per_tranche(ctx), tv, grant_value[ctx.gi])
     table = fair_value_table(ctx, model, term_method, award_term, t_term, tranche_value, grant_value,
                              mc.std_error, mc.service_years)
     return FairValues(table=table, tranche_value=tranche_value, grant_value=grant_value,

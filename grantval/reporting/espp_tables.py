@@ -11,7 +11,8 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-from grantval.io.xlsx.sheet import Sheet
+from grantval.io.cells import col_letter
+from grantval.io.xlsx.sheet import Formula, Sheet
 
 COLUMNS = (
     "offering_id", "holder_id", "grant_id", "group", "start_date", "purchase_date", "discount", "lookback",
@@ -89,9 +90,38 @@ def espp_table(ledger, fair_values, through) -> pd.DataFrame:
     return frame[list(COLUMNS)]
 
 
+#: sheet headers and widths: short enough that 18 columns print one page wide and legible, wide
+#: enough that each header fits on one line (the writer does not grow the header row for wrapped text)
+LABELS = {
+    "offering_id": "Offering", "holder_id": "Holder", "start_date": "Start", "lookback": "Look-back",
+    "shares_basis": "Basis", "start_purchase_price": "Start buy price", "shares_dropped_by_rounding": "Rounded off",
+    "grant_date_fair_value": "Grant-date fair value", "shares_bought": "Bought", "purchase_price": "Price paid",
+}
+WIDTHS = {
+    "offering_id": 14, "holder_id": 10, "grant_id": 20, "group": 12, "start_date": 11, "purchase_date": 14,
+    "discount": 10, "lookback": 10, "shares_basis": 18, "start_purchase_price": 16, "exact_shares": 13,
+    "shares": 9, "shares_dropped_by_rounding": 12, "fair_value_per_share": 21, "grant_date_fair_value": 22,
+    "status": 21, "shares_bought": 9, "purchase_price": 11,
+}
+#: columns the sheet totals with live SUM formulas (they tie to the activity sheet and the fair values)
+TOTALS = ("shares", "grant_date_fair_value", "shares_bought")
+
+
 def espp_sheet(table: pd.DataFrame) -> Sheet:
-    """The ``purchase_plans`` worksheet of :func:`espp_table`."""
-    return Sheet("purchase_plans", frame=table, formats=FORMATS, widths={"grant_id": 24, "status": 22},
+    """The ``purchase_plans`` worksheet of :func:`espp_table`, with a ``Total`` row of SUM formulas.
+
+    The totals (shares, grant-date fair value, shares bought) are worksheet formulas over the
+    rows above; the table itself carries no total.
+    """
+    cols, n = list(table.columns), len(table)
+    total = {c: None for c in cols}
+    total[cols[0]] = "Total"
+    for c in TOTALS:
+        if c in cols:
+            letter = col_letter(cols.index(c) + 1)
+            total[c] = Formula(f"=SUM({letter}2:{letter}{n + 1})") if n else 0.0
+    frame = pd.concat([table.astype(object), pd.DataFrame([total], dtype=object)], ignore_index=True)
+    return Sheet("purchase_plans", frame=frame, formats=FORMATS, widths=WIDTHS, labels=LABELS,
                  text_columns=("offering_id", "holder_id", "grant_id", "group"))
 
 
@@ -158,7 +188,22 @@ def _wavg(values, weights) -> float:
 
 
 def activity_sheet(frame: pd.DataFrame) -> Sheet:
-    """The ``purchase_plan_activity`` worksheet of :func:`purchase_plan_activity`."""
-    return Sheet("purchase_plan_activity", frame=frame,
-                 formats={"number": "#,##0.####", "weighted_average_grant_date_fair_value": "#,##0.000000"},
-                 widths={"line": 36})
+    """The ``purchase_plan_activity`` worksheet of :func:`purchase_plan_activity`.
+
+    One unit per column: the share counts in ``shares`` (whole numbers), the weighted-average
+    purchase price in a column of its own on the shares-bought line (the table's last line).
+    """
+    counts = frame.iloc[:-1].reset_index(drop=True)
+    price = float(frame["number"].iloc[-1])
+    sheet = pd.DataFrame({
+        "line": counts["line"], "shares": counts["number"],
+        "weighted_average_grant_date_fair_value": counts["weighted_average_grant_date_fair_value"],
+        "weighted_average_purchase_price": [np.nan] * (len(counts) - 1) + [price],
+    })
+    return Sheet("purchase_plan_activity", frame=sheet,
+                 formats={"shares": "#,##0", "weighted_average_grant_date_fair_value": "#,##0.000000",
+                          "weighted_average_purchase_price": "#,##0.0000"},
+                 labels={"weighted_average_grant_date_fair_value": "Weighted-average fair value",
+                         "weighted_average_purchase_price": "Weighted-average price paid"},
+                 widths={"line": 36, "shares": 10, "weighted_average_grant_date_fair_value": 29,
+                         "weighted_average_purchase_price": 29})

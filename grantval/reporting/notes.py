@@ -33,6 +33,12 @@ VALUATION_METHODS = [
      "not the condition is met (ASC 718-10-30-14; IFRS 2.21). Without a vesting schedule (vest_months 0) units "
      "vest on the period end and the requisite service is the derived service period (derived_service_years: the "
      "median time the condition is first met on the paths that meet it; ASC 718-10-55-71 to 55-72, from memory)."),
+    ("Purchase-plan rights",
+     "Each purchase period of an ESPP enrollment is its own option from the offering start to its purchase "
+     "date, valued by the ASC 718-50-55 components (d S e^(-q T) + (1 - d) x call struck at S, plus d x put "
+     "for a fixed withholding; d S e^(-q T) or d S e^(-r T) without a look-back); the same value under "
+     "IFRS 2. Every period keeps its own value whatever the valuation_unit policy; a per-enrollment figure "
+     "is the share-weighted mean of its periods."),
     ("Supplied values",
      "A fair_value in the assumptions table is used as given and marked as supplied by an outside valuation."),
     ("Conventions",

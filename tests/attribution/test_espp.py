@@ -9,7 +9,11 @@ Roadmap section 8.5 (ASC 718-20-35-9) and IFRS 2.28A / 28(a).  Ledgers are inven
 
 from __future__ import annotations
 
+import datetime as dt
 import math
+import pathlib
+import shutil
+import types
 
 import numpy as np
 import pytest
@@ -19,6 +23,7 @@ from scipy import integrate, stats
 from grantval import api
 from grantval.errors import LedgerError
 from grantval.reporting.espp_tables import espp_sheet, espp_table
+from tests.attribution.reference import schedule_cents
 from tests.factory import write_ledger
 
 YEAR = 365.25  # grantval's year fraction: actual days / 365.25
@@ -105,6 +110,30 @@ def test_two_purchase_offering_is_two_options_each_recognised_to_its_purchase_da
         assert abs(cum[k] - round(want * 100)) <= 1
 
 
+@pytest.mark.parametrize("attribution", ["graded", "straight-line"])
+def test_each_purchase_period_keeps_its_own_value_under_the_award_unit(tmp_path, attribution):
+    # valuation_unit = award averages an award's tranches; a purchase period is its own option (ASC 718-50-55,
+    # several purchase periods; from memory), so the ESPP kind is valued per period whatever the policy:
+    # the two QuantLib blackFormula component values, as under the tranche unit above
+    folder = ledger(tmp_path / "l", [offering(purchase_dates="2027-07-01;2028-01-01")], [enrol(withholding="3400")],
+                    policy={"attribution": attribution, "valuation_unit": "award"})
+    run = api.expense(folder, through="2028-03-31", period="quarter")
+    v1 = ql_espp(20, 181, 0.05, 0.3, 0.01, 0.15, "fixed_shares")
+    v2 = ql_espp(20, 365, 0.05, 0.3, 0.01, 0.15, "fixed_shares")
+    assert run.fair_values.tranche_value[run.inputs.t_grant == 1] == pytest.approx([v1, v2], rel=1e-10)
+    # the award-level figure reported per grant is still the quantity-weighted mean (100 shares each)
+    assert run.fair_values.grant_value[1] == pytest.approx((v1 + v2) / 2, rel=1e-10)
+    # the option grant G1 beside it is still valued as one award (its four tranches share one value)
+    assert len(set(run.fair_values.tranche_value[run.inputs.t_grant == 0])) == 1
+    cum = np.cumsum(run.schedule.expense_cents[1])
+    for k, served in enumerate((90, 181, 273, 365, 365)):
+        if attribution == "graded":
+            want = 100 * v1 * min(served / 181, 1) + 100 * v2 * min(served / 365, 1)
+        else:  # straight-line to the last purchase date, at least the periods reached (ASC 718-10-35-8)
+            want = max((100 * v1 + 100 * v2) * min(served / 365, 1), 100 * v1 * (served >= 181))
+        assert abs(cum[k] - round(want * 100)) <= 1
+
+
 def test_plan_without_a_look_back_costs_only_the_discount(tmp_path):
     # no option feature: the purchase price is (1 - d) S_T; per share d S_0 e^{-qT} (fixed shares) and
     # d S_0 e^{-rT} (fixed withholding: a known gain of d/(1-d) of the withholdings), docs/purchase-plans.md;
@@ -175,7 +204,13 @@ def test_withdrawal_status_and_sheet(tmp_path):
     table = espp_table(run.ledger, run.fair_values, "2028-03-31")
     assert table["status"].tolist() == ["purchase date reached", "withdrawn"]
     sheet = espp_sheet(table)
-    assert sheet.name == "purchase_plans" and len(sheet.frame) == 2
+    assert sheet.name == "purchase_plans" and len(sheet.frame) == 3  # two periods and the Total row
+    total = sheet.frame.iloc[-1]
+    # live totals of the columns that tie elsewhere: shares (L), grant-date fair value (O), shares bought (Q)
+    assert total["offering_id"] == "Total"
+    assert (total["shares"], total["grant_date_fair_value"], total["shares_bought"]) == (
+        "=SUM(L2:L3)", "=SUM(O2:O3)", "=SUM(Q2:Q3)")
+    assert total["status"] is None and total["fair_value_per_share"] is None  # no sum of per-share values
 
 
 def test_expense_csv_has_a_row_per_enrollment_beside_the_grants(tmp_path):
@@ -365,7 +400,15 @@ def test_purchase_plan_activity_rolls_forward_and_ties(tmp_path):
     assert year2["number"].iloc[7] == 16
     from grantval.reporting.espp_tables import activity_sheet
 
-    assert activity_sheet(year2).name == "purchase_plan_activity"
+    sheet = activity_sheet(year1)
+    assert sheet.name == "purchase_plan_activity"
+    # one unit per column: share counts (whole-number format) apart from the price paid per share
+    assert list(sheet.frame.columns) == ["line", "shares", "weighted_average_grant_date_fair_value",
+                                         "weighted_average_purchase_price"]
+    assert sheet.frame["shares"].tolist() == [0, 300, 150, 50, 0, 100, 100]
+    assert sheet.frame["weighted_average_purchase_price"].iloc[-1] == 17
+    assert sheet.frame["weighted_average_purchase_price"].iloc[:-1].isna().all()
+    assert sheet.formats["shares"] == "#,##0"
 
 
 def test_cap_on_fixed_shares_limits_the_shares_not_the_value(tmp_path):
@@ -393,3 +436,63 @@ def test_capped_fixed_withholding_value_rises_with_the_cap_to_the_uncapped_value
     assert np.all(np.diff(got) >= -1e-12) and np.all(got <= free + 1e-12)
     assert got[-1] == pytest.approx(free[-1], rel=1e-9)
     assert got[3] == pytest.approx(fixed[3], rel=1e-5)  # continuous at k = 1
+
+
+# --- the demo ledger's offering (sample_grants/, invented) ------------------------------------------
+
+SAMPLE = pathlib.Path(__file__).resolve().parents[2] / "sample_grants"
+
+
+def _espp_only(ledger, esp):
+    """The ESPP grants of a loaded ledger as a ledger view for tests/attribution/reference.py."""
+    g, tr, ch = ledger.grants, ledger.tranches, ledger.changes
+    keep = np.flatnonzero(esp)
+    gpos = {old: new for new, old in enumerate(keep)}
+    tgi = tr["grant_idx"].to_numpy()
+    tsel = np.flatnonzero(esp[tgi])
+    tpos = {old: new for new, old in enumerate(tsel)}
+    m = ch["tranche_idx"].isin(tsel).to_numpy()
+    return types.SimpleNamespace(
+        grants=g.iloc[keep].reset_index(drop=True), estimates=ledger.estimates,
+        tranches=tr.iloc[tsel].assign(grant_idx=[gpos[x] for x in tgi[tsel]]).reset_index(drop=True),
+        changes=ch[m].assign(tranche_idx=[tpos[x] for x in ch["tranche_idx"].to_numpy()[m]]).reset_index(drop=True))
+
+
+def test_demo_offering_values_and_cost_against_quantlib_and_the_reference(tmp_path):
+    # the demo's CV-ESPP-2026 (sample_grants/generate.py): S_0 24.30, 42%, r 3.85%, q 0.8%, 15%, look-back,
+    # fixed shares, purchases 180, 364, 545 and 729 days after 2026-01-01, under the demo's policy
+    # (valuation_unit award, straight-line, estimated forfeitures): each period's value is its QuantLib
+    # blackFormula components, and the cost of every quarter is the independent reference implementation's
+    run = api.expense(SAMPLE, through="2026-12-31")
+    g, tr = run.ledger.grants, run.ledger.tranches
+    esp = (g["award_type"] == "espp").to_numpy()
+    mt = esp[tr["grant_idx"].to_numpy()]
+    assert esp.sum() == 12 and mt.sum() == 48
+    days = (tr["vest_date"].to_numpy("datetime64[D]")[mt] - np.datetime64("2026-01-01")).astype(int)
+    want = np.array([ql_espp(24.30, d, 0.0385, 0.42, 0.008, 0.15, "fixed_shares") for d in days])
+    assert sorted(set(days)) == [180, 364, 545, 729]
+    assert run.fair_values.tranche_value[mt] == pytest.approx(want, rel=1e-10)
+    _ends, ref = schedule_cents(_espp_only(run.ledger, esp), want, dt.date(2024, 1, 1), dt.date(2026, 12, 31),
+                               "straight-line", "estimate", "quarter", 12)
+    ids = list(run.inputs.grant_id)
+    for gid, cents in ref.items():
+        assert list(run.schedule.expense_cents[ids.index(gid)]) == cents, gid
+    # 20,054.20 through 2026-12-31 (E2115's withdrawal on 2026-09-15 recognises its open periods at once)
+    assert sum(sum(c) for c in ref.values()) == 2_005_420
+
+
+def test_demo_total_is_the_ledger_without_the_plan_plus_the_plan(tmp_path):
+    # the offering adds its own cost and changes nobody else's: every other grant's schedule is the same
+    # as in the demo without the purchase-plan tables and events (the demo total was 1,372,969.73 before)
+    bare = tmp_path / "bare"
+    shutil.copytree(SAMPLE, bare, ignore=shutil.ignore_patterns("*.xlsx", "*.py", "market", "espp_*.csv"))
+    lines = (SAMPLE / "events.csv").read_text().splitlines(keepends=True)
+    (bare / "events.csv").write_text("".join(x for x in lines if not x.startswith("CV-ESPP-")))
+    full, plain = api.expense(SAMPLE, through="2026-12-31"), api.expense(bare, through="2026-12-31")
+    ids = list(full.inputs.grant_id)
+    others = [ids.index(k) for k in plain.inputs.grant_id]
+    assert np.array_equal(full.schedule.expense_cents[others], plain.schedule.expense_cents)
+    espp = [i for i, k in enumerate(ids) if k.startswith("CV-ESPP-2026/")]
+    assert len(espp) == 12 and len(ids) == len(plain.inputs.grant_id) + 12
+    assert full.schedule.expense_cents.sum() == plain.schedule.expense_cents.sum() + full.schedule.expense_cents[
+        espp].sum()

@@ -120,7 +120,7 @@ def test_every_check_has_a_corruption_case():
     run = RE.expense(SAMPLE, through="2026-12-31")
     names = {c.name for c in RE.write_expense(run, None, None).checks}
     covered = {name for name, _, _ in CASES} | {"RSU roll-forward: start + granted - vested - forfeited = end",
-                                                 PSU_CHECK}
+                                                 PSU_CHECK, ESPP_CHECK}
     assert names == covered
 
 
@@ -164,6 +164,23 @@ def test_performance_unit_roll_forward_turns_to_fail(tmp_path, monkeypatch):
     monkeypatch.setattr(D, "compute_disclosure", off)
     r = _run(tmp_path)
     assert r.exit_code == 1 and f"check failed: {PSU_CHECK}" in r.output
+
+
+ESPP_CHECK = "Purchase-plan roll-forward: start + granted - reached - withdrawn - forfeited = end"
+
+
+def test_purchase_plan_roll_forward_turns_to_fail(tmp_path, monkeypatch):
+    # the demo's offering (sample_grants/): the flows' side of the tie off by one share
+    import grantval.reporting.espp_tables as E
+
+    real = E.purchase_plan_activity
+
+    def off(*a, **k):
+        frame, (flows, end) = real(*a, **k)
+        return frame, (flows + 1, end)
+    monkeypatch.setattr(E, "purchase_plan_activity", off)
+    r = _run(tmp_path)
+    assert r.exit_code == 1 and f"check failed: {ESPP_CHECK}" in r.output
 
 
 def test_second_bsm_implementation_agrees_with_the_pricing_core():
