@@ -11,9 +11,14 @@ Rules (paragraphs in ``docs/tax-and-dilution.md``):
 - units outstanding for part of the period are weighted by the days they were outstanding
   (ASC 718-10-45-1, IAS 33.38 and 33.48): granted and not yet forfeited, cancelled, exercised,
   expired, or (units) vested, whatever the forfeiture policy;
-- awards whose issue depends on conditions count only as far as the conditions would be met if the
-  period ended now (ASC 260-10-45-48, IAS 33.52): :data:`CONTINGENT_FRACTION` is the hook for such
-  kinds; the kinds grantval has (options, RSUs with service conditions only) count in full.
+- awards whose issue depends on a performance condition are contingently issuable shares (ASC
+  718-10-45-1 pointing to ASC 260-10-45-48 to 45-57; IAS 33.48): they count only as far as the
+  conditions would be met if the end of the period were the end of the contingency period (ASC
+  260-10-45-48; IAS 33.52 and 33.56), from the start of the period or the grant date if later.
+  Performance units (``psu``) count target units outstanding x the payout in force at the period end
+  (:class:`PerformanceUnits`; a stated policy: the ledger's payout is taken as the to-date outcome),
+  with the treasury stock method on the shares so counted; a payout of 0 counts none.
+  :data:`CONTINGENT_FRACTION` is a further per-grant hook for other kinds.
 
 :func:`treasury_stock_shares` is the pure numpy core; :func:`grant_dilution` gathers its inputs from
 a ledger, its expense engine inputs and the periods.

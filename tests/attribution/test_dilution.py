@@ -206,3 +206,76 @@ def test_weighted_units_match_a_day_by_day_count(tmp_path, seed):
             expected[gi] += left.sum()
         expected /= len(days)
         assert np.allclose(run.grants.weighted_units[:, k], expected, atol=1e-9), (seed, k)
+
+
+# --- performance units: contingently issuable shares ---------------------------------------------------------
+
+def _psu_ledger(folder, perf, events=None, months=24, extra_grants=()):
+    from tests.factory import write_ledger
+
+    unit = {**grant("P", award="rsu", qty=1200, months=months, every=months), "award_type": "psu",
+            "condition_set": "ebit", "max_payout": "2"}
+    grants = [unit] + [{**g, "condition_set": "", "max_payout": ""} for g in extra_grants]
+    rows = [{"condition_set": "ebit", "assessed_on": d, "payout": str(x), "expected_vest_date": v}
+            for d, x, v in perf]
+    data = {"grants": grants, "assumptions": [assumption(fair_value="10")], "performance": rows}
+    if events:
+        data["events"] = events
+    return write_ledger(folder, data)
+
+
+PSU_PERF = [("2027-01-01", 1.0, ""), ("2027-05-15", 1.5, ""), ("2027-08-20", 0, ""), ("2027-11-10", 1.2, "")]
+PSU_PRICES = [("2027-03-31", 25), ("2027-06-30", 25), ("2027-09-30", 25), ("2027-12-31", 5)]
+
+
+def _psu_run(tmp_path, perf=PSU_PERF, prices=PSU_PRICES, through="2027-12-31", **kw):
+    loc = _psu_ledger(tmp_path / "l", perf, events=[event("P", "2027-05-01", "forfeit", 200)], **kw)
+    return api.dilution(loc, average_prices=_prices(tmp_path / "p", prices), start="2027-01-01", through=through,
+                        period="quarter")
+
+
+def test_performance_units_worked_example(tmp_path):
+    """Performance units as contingently issuable shares, computed by hand.
+
+    Rules: ASC 718-10-45-1 (performance condition -> contingently issuable shares, ASC 260-10-45-48 to 45-57)
+    and ASC 260-10-45-48 (verified, Deloitte EPS roadmap 4.5.1): the shares issuable if the end of the reporting
+    period were the end of the contingency period, included as of the beginning of the period (or the grant date
+    if later), if dilutive; IAS 33.48 (verified, EY International GAAP: performance-based employee options are
+    contingently issuable shares), IAS 33.52 and 33.56 (33.56 verified there: the status at the end of the
+    reporting period); the treasury stock method with unrecognised cost as proceeds (ASC 718-10-45-2, IAS 33.47A).
+    Policy (docs/tax-and-dilution.md): the ledger's payout in force at the period end is that outcome.
+
+    1,200 target units, fair value 10, granted 2027-01-01, cliff vesting 2029-01-01 (731 days of service);
+    200 forfeited 2027-05-01; payouts 100% (grant date), 150% from 2027-05-15, 0% from 2027-08-20,
+    120% from 2027-11-10.  Unrecognised cost per share counted = 10 x (1 - days served / 731).
+    """
+    run = _psu_run(tmp_path)
+    g = run.grants
+    # Q1 (90 days): 1,200 x 100% from the grant date; unrecognised per share only at the end (none before the grant
+    # date): 10 x (1 - 90/731); average price 25.
+    u = 10 * (1 - 90 / 731)
+    assert g.weighted_units[0, 0] == pytest.approx(1200.0)
+    assert g.incremental[0, 0] == pytest.approx(1200 * (1 - u / 25))
+    # Q2 (91 days): target units (1,200 x 30 + 1,000 x 61) / 91, times 150% in force at 2027-06-30, counted from the
+    # start of the quarter (ASC 260-10-45-48); unrecognised per share: 10 x (1 - 90/731) at the start (payout 100%
+    # then, 1,200 shares) and 10 x (1 - 181/731) at the end (1,500 shares); their mean.
+    target = (1200 * 30 + 1000 * 61) / 91
+    u = (10 * (1 - 90 / 731) + 10 * (1 - 181 / 731)) / 2
+    assert g.weighted_outstanding[0, 1] == pytest.approx(target)
+    assert g.weighted_units[0, 1] == pytest.approx(1.5 * target)
+    assert g.incremental[0, 1] == pytest.approx(1.5 * target * (1 - u / 25))
+    # Q3: payout 0 in force at 2027-09-30: no contingently issuable shares, none added, not anti-dilutive.
+    assert g.weighted_units[0, 2] == 0.0 and g.incremental[0, 2] == 0.0 and not g.antidilutive[0, 2]
+    # Q4: 1,000 x 120% = 1,200 shares; unrecognised per share only at the end (no shares counted at 2027-09-30):
+    # 10 x (1 - 365/731) = 5.0068 >= average price 5: anti-dilutive, left out.
+    assert g.unrecognised_average[0, 3] == pytest.approx(10 * (1 - 365 / 731))
+    assert g.incremental[0, 3] == 0.0 and g.antidilutive[0, 3]
+    totals = dilution_totals(run)
+    assert totals["antidilutive_options"].tolist()[3] == pytest.approx(1200.0)
+    by = dilution_by_grant(run)
+    assert len(by) == 4  # the quarter with payout 0 keeps its row (target units outstanding, nothing counted)
+    assert by["contingent_payout"].tolist() == pytest.approx([1.0, 1.5, 0.0, 1.2])
+    assert by["contingent_assessed_on"].dt.strftime("%Y-%m-%d").tolist() == ["2027-01-01", "2027-05-15", "2027-08-20", "2027-11-10"]
+    assert by["weighted_units_outstanding"].tolist()[1] == pytest.approx(target)
+    assert by["contingent_basis"].str.contains("taken as the outcome if the period ended now").all()
+    assert all(c.tool_pass for c in dilution_checks(run, totals, by))
