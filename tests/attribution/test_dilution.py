@@ -210,10 +210,11 @@ def test_weighted_units_match_a_day_by_day_count(tmp_path, seed):
 
 # --- performance units: contingently issuable shares ---------------------------------------------------------
 
-def _psu_ledger(folder, perf, events=None, months=24, extra_grants=()):
+def _psu_ledger(folder, perf, events=None, months=24, extra_grants=(), gdate="2027-01-01", every=None):
     from tests.factory import write_ledger
 
-    unit = {**grant("P", award="rsu", qty=1200, months=months, every=months), "award_type": "psu",
+    unit = {**grant("P", award="rsu", qty=1200, months=months, every=every or months, gdate=gdate),
+            "award_type": "psu",
             "condition_set": "ebit", "max_payout": "2"}
     grants = [unit] + [{**g, "condition_set": "", "max_payout": ""} for g in extra_grants]
     rows = [{"condition_set": "ebit", "assessed_on": d, "payout": str(x), "expected_vest_date": v}
@@ -279,3 +280,62 @@ def test_performance_units_worked_example(tmp_path):
     assert by["weighted_units_outstanding"].tolist()[1] == pytest.approx(target)
     assert by["contingent_basis"].str.contains("taken as the outcome if the period ended now").all()
     assert all(c.tool_pass for c in dilution_checks(run, totals, by))
+
+
+def test_performance_unit_checks_pass_and_turn_to_fail(tmp_path):
+    run = _psu_run(tmp_path, extra_grants=[grant("G1", strike="12")])
+    totals, by = dilution_totals(run), dilution_by_grant(run)
+    assert all(c.tool_pass for c in dilution_checks(run, totals, by))
+    assert dilution_checks(run, totals, by)[2].name.startswith("Contingently issuable shares")
+    # a performance unit's incremental shares off by one: the by-grant rows no longer tie to dilution.csv
+    run.grants.incremental[0, 1] += 1.0
+    assert not dilution_checks(run, dilution_totals(run), by)[0].tool_pass
+    run.grants.incremental[0, 1] -= 1.0
+    # the contingent count off (and the by-grant table rebuilt from it, so only the ledger recomputation sees it)
+    run.grants.weighted_units[0, 1] *= 1.01
+    by = dilution_by_grant(run)
+    checks = dilution_checks(run, dilution_totals(run), by)
+    assert checks[1].tool_pass and not checks[2].tool_pass
+    run.grants.weighted_units[0, 1] /= 1.01
+    assert dilution_checks(run, dilution_totals(run), dilution_by_grant(run))[2].tool_pass
+    # the performance table read differently by the recomputation (a payout changed after the run)
+    perf = run.ledger.tables["performance"]
+    perf.loc[perf["assessed_on"].astype(str).str.startswith("2027-05-15"), "payout"] = 1.4
+    assert not dilution_checks(run, dilution_totals(run), dilution_by_grant(run))[2].tool_pass
+
+
+def test_performance_units_leave_at_the_vesting_date_in_force(tmp_path):
+    # IFRS 2.15(b) / IG Example 2 (vesting date re-estimated; docs/expense-rules.md): from 2027-05-15 the units are
+    # expected to vest on 2027-08-01 instead of 2029-01-01. Q3 2027 (92 days): 1,000 units x 150% for the 31 days
+    # before 2027-08-01 (hand computation), then issued shares (basic EPS).
+    perf = [("2027-01-01", 1.0, ""), ("2027-05-15", 1.5, "2027-08-01")]
+    run = _psu_run(tmp_path, perf=perf, prices=PSU_PRICES[:3], through="2027-09-30")
+    assert run.grants.weighted_outstanding[0, 2] == pytest.approx(1000 * 31 / 92)
+    assert run.grants.weighted_units[0, 2] == pytest.approx(1.5 * 1000 * 31 / 92)
+    totals, by = dilution_totals(run), dilution_by_grant(run)
+    assert all(c.tool_pass for c in dilution_checks(run, totals, by))
+
+
+def test_performance_tranches_vesting_inside_a_period_keep_their_final_payout(tmp_path):
+    # two yearly tranches of 600 granted 2027-02-15 (vesting 2028-02-15 and 2029-02-15); the payout moves to 80% on
+    # 2028-03-01, after the first tranche vested at 100% (its shares were fixed then: docs/expense-rules.md).
+    # Q1 2028 (91 days, hand computation): tranche 1 counts 600 x 100% for the 45 days before 2028-02-15, then is
+    # issued; tranche 2 counts 600 x 80% (in force at the period end) for the whole quarter.
+    perf = [("2027-02-15", 1.0, ""), ("2028-03-01", 0.8, "")]
+    loc = _psu_ledger(tmp_path / "l", perf, months=24, every=12, gdate="2027-02-15")
+    prices = [("2027-12-31", 25), ("2028-03-31", 25)]
+    run = api.dilution(loc, average_prices=_prices(tmp_path / "p", prices), start="2027-10-01", through="2028-03-31",
+                       period="quarter")
+    assert len(run.ledger.tranches) == 2
+    assert run.grants.weighted_units[0, 0] == pytest.approx(1200.0)
+    assert run.grants.weighted_units[0, 1] == pytest.approx(600 * 45 / 91 + 600 * 0.8)
+    totals, by = dilution_totals(run), dilution_by_grant(run)
+    assert all(c.tool_pass for c in dilution_checks(run, totals, by))
+
+
+def test_ledgers_without_performance_units_have_no_contingent_check(tmp_path):
+    run = _run(tmp_path, [grant("G1")], [("2027-03-31", 20)], "2027-01-01", "2027-03-31")
+    by = dilution_by_grant(run)
+    assert len(dilution_checks(run, dilution_totals(run), by)) == 2
+    assert by["contingent_payout"].tolist() == [1.0] and by["contingent_basis"].tolist() == ["not contingent"]
+    assert by["contingent_assessed_on"].isna().all()
