@@ -339,3 +339,13 @@ def test_ledgers_without_performance_units_have_no_contingent_check(tmp_path):
     assert len(dilution_checks(run, dilution_totals(run), by)) == 2
     assert by["contingent_payout"].tolist() == [1.0] and by["contingent_basis"].tolist() == ["not contingent"]
     assert by["contingent_assessed_on"].isna().all()
+
+
+def test_live_check_tool_verdict_can_fail(tmp_path):
+    from grantval.reporting.dilution_tables import live_check
+
+    run = _psu_run(tmp_path, extra_grants=[grant("G1", strike="12")])
+    totals, by = dilution_totals(run), dilution_by_grant(run)
+    total = float(totals["incremental_shares"].sum())
+    assert live_check(by, total).tool_pass
+    assert not live_check(by, total + 1.0).tool_pass
