@@ -157,6 +157,7 @@ def contingent_fraction(ledger, period_end) -> np.ndarray:
 NOT_CONTINGENT = "not contingent"
 PAYOUT_IN_FORCE = ("performance payout in force at the period end, taken as the outcome if the period "
                    "ended now (policy to be reviewed by an accountant)")
+HOOKED = "fraction of a kind registered in CONTINGENT_FRACTION"
 
 _NO_DAY = np.iinfo(np.int64).max
 
@@ -234,7 +235,7 @@ class GrantDilution:
     weighted_outstanding: np.ndarray | None = None  # units outstanding before any contingency (target units)
     contingent_payout: np.ndarray | None = None     # shares counted per unit outstanding (1: not contingent)
     contingent_assessed: np.ndarray | None = None   # datetime64[D]: the performance row used (NaT: none)
-    contingent: np.ndarray | None = None            # per grant: whether its count depends on a condition
+    contingent: np.ndarray | None = None            # per grant: a performance unit (payout in force counted)
 
 
 def _per_unit(unrec: np.ndarray, units: np.ndarray) -> np.ndarray:
@@ -295,9 +296,10 @@ def grant_dilution(ledger, inp, attribution: str, starts: np.ndarray, ends: np.n
     shape = (n, p)
     wu, wt, u0, u1 = np.zeros(shape), np.zeros(shape), np.zeros(shape), np.zeros(shape)
     assessed = np.full(shape, np.datetime64("NaT", "D"))
+    fixed = outstanding_lots(ledger, inp) if perf.assessments is None else None
     for k in range(p):
         c = perf.at(int(e_day[k]))
-        lots = outstanding_lots(ledger, inp, np.where(perf.psu_t, c.vest_day, inp.prepared().t_vest))
+        lots = fixed or outstanding_lots(ledger, inp, np.where(perf.psu_t, c.vest_day, inp.prepared().t_vest))
         units_t = _tranche_units(lots, n_t, s_day[k], e_day[k])
         frac = contingent_fraction(ledger, ends[k])
         wt[:, k] = np.bincount(inp.t_grant, weights=units_t, minlength=n)
@@ -315,5 +317,4 @@ def grant_dilution(ledger, inp, attribution: str, starts: np.ndarray, ends: np.n
     incr, anti = treasury_stock_shares(wu, price[:, None], np.maximum(avg, 0.0), np.asarray(average_price)[None, :])
     with np.errstate(divide="ignore", invalid="ignore"):
         payout = np.where(wt > 0, wu / np.where(wt > 0, wt, 1.0), 1.0)
-    contingent = (award == "psu") | np.isin(award, list(CONTINGENT_FRACTION))
-    return GrantDilution(wu, u0, u1, avg, price, price[:, None] + avg, incr, anti, wt, payout, assessed, contingent)
+    return GrantDilution(wu, u0, u1, avg, price, price[:, None] + avg, incr, anti, wt, payout, assessed, award == "psu")

@@ -32,12 +32,14 @@ def dilution_totals(run) -> pd.DataFrame:
     })
 
 
-def _basis(g, n: int, p: int) -> np.ndarray:
+def _basis(run, n: int, p: int) -> np.ndarray:
     """Per grant x period: the ``contingent_basis`` text."""
-    from grantval.attribution.dilution import NOT_CONTINGENT, PAYOUT_IN_FORCE
+    from grantval.attribution.dilution import CONTINGENT_FRACTION, HOOKED, NOT_CONTINGENT, PAYOUT_IN_FORCE
 
-    contingent = np.zeros(n, dtype=bool) if g.contingent is None else g.contingent
-    return np.repeat(np.where(contingent, PAYOUT_IN_FORCE, NOT_CONTINGENT).astype(object), p)
+    award = run.ledger.grants["award_type"].to_numpy(dtype=object)
+    psu = np.zeros(n, dtype=bool) if run.grants.contingent is None else run.grants.contingent
+    text = np.where(psu, PAYOUT_IN_FORCE, np.where(np.isin(award, list(CONTINGENT_FRACTION)), HOOKED, NOT_CONTINGENT))
+    return np.repeat(text.astype(object), p)
 
 
 def dilution_by_grant(run) -> pd.DataFrame:
@@ -68,7 +70,7 @@ def dilution_by_grant(run) -> pd.DataFrame:
         "average_share_price": np.tile(run.average_price, n)[keep],
         "incremental_shares": flat(g.incremental), "antidilutive": flat(g.antidilutive),
         "weighted_units_outstanding": flat(outstanding), "contingent_payout": flat(payout),
-        "contingent_assessed_on": flat(assessed), "contingent_basis": _basis(g, n, p)[keep],
+        "contingent_assessed_on": flat(assessed), "contingent_basis": _basis(run, n, p)[keep],
     })
 
 

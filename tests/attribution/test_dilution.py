@@ -128,9 +128,11 @@ def test_contingent_fraction_hook(tmp_path):
     D.CONTINGENT_FRACTION["rsu"] = lambda ledger, mask, end: np.where(mask, 0.25, 1.0)
     try:
         run = _run(tmp_path, g, [("2027-06-30", 12)], "2027-04-01", "2027-06-30")
+        by = dilution_by_grant(run)
     finally:
         del D.CONTINGENT_FRACTION["rsu"]
     assert run.grants.weighted_units[0, 0] == pytest.approx(25.0)
+    assert by["contingent_payout"].tolist() == [0.25] and by["contingent_basis"].tolist() == [D.HOOKED]
 
 
 def test_missing_and_bad_average_prices(tmp_path):
