@@ -8,6 +8,7 @@ Rules (paragraphs in ``docs/tax-and-dilution.md``):
   its end; no tax benefit enters the proceeds (ASU 2016-09 removed it);
 - incremental shares = units x (1 - proceeds / average share price) when proceeds < average price,
   else none: the award is anti-dilutive and is left out (ASC 260-10-45-23 and 45-25; IAS 33.45-47);
+- awards settled in cash (``cash_sar``, ``cash_unit``) issue no shares and are not counted;
 - units outstanding for part of the period are weighted by the days they were outstanding
   (ASC 718-10-45-1, IAS 33.38 and 33.48): granted and not yet forfeited, cancelled, exercised,
   expired, or (units) vested, whatever the forfeiture policy;
@@ -119,8 +120,9 @@ class Lots:
 
 
 def outstanding_lots(ledger, inp, unit_leave_day: np.ndarray | None = None) -> Lots:
-    """Lots of every grant: tranches from the grant date, less every event, less units that vest
-    (share units become issued shares) or expire at the end of the expiration date (options).
+    """Lots of every grant settled in shares: tranches from the grant date, less every event, less units
+    that vest (share units become issued shares) or expire at the end of the expiration date (options).
+    Cash-settled kinds issue no shares and have no lots.
 
     ``unit_leave_day`` (per tranche, day numbers) replaces the schedule's vesting day of share units
     (performance units whose vesting date in force moved); options ignore it.
@@ -139,7 +141,16 @@ def outstanding_lots(ledger, inp, unit_leave_day: np.ndarray | None = None) -> L
     qty = np.concatenate([inp.t_qty.astype(float), -inp.c_qty.astype(float), -left.astype(float)])
     start = np.concatenate([pre.t_gdate, pre.c_date, leave_day])
     tr = np.concatenate([tranche, np.asarray(inp.c_tranche, dtype=np.int64), tranche])
-    return Lots(grant.astype(np.int64), qty, start.astype(np.int64), tr.astype(np.int64))
+    shares = ~cash_settled(award)[grant]
+    return Lots(grant[shares].astype(np.int64), qty[shares], start[shares].astype(np.int64),
+                tr[shares].astype(np.int64))
+
+
+def cash_settled(award_types: np.ndarray) -> np.ndarray:
+    """Per grant: its kind settles in cash (``AwardKind.settlement``): no shares are ever issued for it."""
+    from grantval.awards.registry import kinds
+
+    return np.isin(np.asarray(award_types, dtype=object), [k.name for k in kinds() if k.settlement == "cash"])
 
 
 def contingent_fraction(ledger, period_end) -> np.ndarray:

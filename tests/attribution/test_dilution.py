@@ -351,3 +351,18 @@ def test_live_check_tool_verdict_can_fail(tmp_path):
     total = float(totals["incremental_shares"].sum())
     assert live_check(by, total).tool_pass
     assert not live_check(by, total + 1.0).tool_pass
+
+
+def test_cash_settled_awards_are_not_potential_shares(tmp_path):
+    # cash-settled rights and units issue no shares, so they are no potential ordinary shares (IAS 33.5 definition,
+    # from memory; ASC 260-10-45-45 concerns only contracts that may be settled in shares or cash): only the option
+    # counts, 500 x (1 - 20/40) = 250 (hand computation).
+    from tests.attribution.cash_ledgers import mixed_ledger
+
+    loc = mixed_ledger(tmp_path / "l")
+    run = api.dilution(loc, average_prices=_prices(tmp_path / "p", [("2030-12-31", 40)]), start="2030-01-01",
+                       through="2030-12-31", period="year")
+    by = dilution_by_grant(run)
+    assert by["grant_id"].tolist() == ["O1"]
+    assert dilution_totals(run)["incremental_shares"].tolist() == [pytest.approx(250.0)]
+    assert all(c.tool_pass for c in dilution_checks(run, dilution_totals(run), by))
