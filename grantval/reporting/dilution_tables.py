@@ -34,7 +34,12 @@ def dilution_totals(run) -> pd.DataFrame:
 
 def _basis(run, n: int, p: int) -> np.ndarray:
     """Per grant x period: the ``contingent_basis`` text."""
-    from grantval.attribution.dilution import CONTINGENT_FRACTION, HOOKED, NOT_CONTINGENT, PAYOUT_IN_FORCE
+    from grantval.attribution.dilution import (
+        CONTINGENT_FRACTION,
+        HOOKED,
+        NOT_CONTINGENT,
+        PAYOUT_IN_FORCE,
+    )
 
     award = run.ledger.grants["award_type"].to_numpy(dtype=object)
     psu = np.zeros(n, dtype=bool) if run.grants.contingent is None else run.grants.contingent
