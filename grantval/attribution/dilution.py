@@ -182,6 +182,23 @@ class Contingency:
     vest_day: np.ndarray   # day number the units vest (performance units: the vesting date in force)
 
 
+MARKET_CONDITION = ("market condition: counted at target units; the count at the period-end price (IAS 33.54, "
+                    "ASC 260-10-45-52) is not applied: review")
+
+
+def market_condition_grants(ledger) -> np.ndarray:
+    """Per grant: its ``condition_set`` names a row of the ``market_conditions`` table."""
+    mc = ledger.tables.get("market_conditions")
+    if mc is None or not len(mc) or "condition_set" not in ledger.grants:
+        return np.zeros(len(ledger.grants), dtype=bool)
+    return ledger.grants["condition_set"].isin(frozenset(mc["condition_set"])).to_numpy()
+
+
+def performance_units(ledger) -> np.ndarray:
+    """Per grant: a ``psu`` whose payout follows the ``performance`` table (not a market condition)."""
+    return (ledger.grants["award_type"].to_numpy() == "psu") & ~market_condition_grants(ledger)
+
+
 class PerformanceUnits:
     """The performance conditions of a ledger's psu grants, as contingently issuable shares.
 
@@ -198,7 +215,7 @@ class PerformanceUnits:
     def __init__(self, ledger, inp):
         from grantval.attribution.performance import Assessments
 
-        psu = ledger.grants["award_type"].to_numpy() == "psu"
+        psu = performance_units(ledger)
         self.inp = inp
         self.psu_t = psu[inp.t_grant]
         self.assessments = Assessments(ledger, psu) if psu.any() else None
@@ -328,4 +345,5 @@ def grant_dilution(ledger, inp, attribution: str, starts: np.ndarray, ends: np.n
     incr, anti = treasury_stock_shares(wu, price[:, None], np.maximum(avg, 0.0), np.asarray(average_price)[None, :])
     with np.errstate(divide="ignore", invalid="ignore"):
         payout = np.where(wt > 0, wu / np.where(wt > 0, wt, 1.0), 1.0)
-    return GrantDilution(wu, u0, u1, avg, price, price[:, None] + avg, incr, anti, wt, payout, assessed, award == "psu")
+    return GrantDilution(wu, u0, u1, avg, price, price[:, None] + avg, incr, anti, wt, payout, assessed,
+                         performance_units(ledger))

@@ -34,17 +34,13 @@ def dilution_totals(run) -> pd.DataFrame:
 
 def _basis(run, n: int, p: int) -> np.ndarray:
     """Per grant x period: the ``contingent_basis`` text."""
-    from grantval.attribution.dilution import (
-        CONTINGENT_FRACTION,
-        HOOKED,
-        NOT_CONTINGENT,
-        PAYOUT_IN_FORCE,
-    )
+    from grantval.attribution import dilution as D
 
     award = run.ledger.grants["award_type"].to_numpy(dtype=object)
     psu = np.zeros(n, dtype=bool) if run.grants.contingent is None else run.grants.contingent
-    text = np.where(psu, PAYOUT_IN_FORCE, np.where(np.isin(award, list(CONTINGENT_FRACTION)), HOOKED, NOT_CONTINGENT))
-    return np.repeat(text.astype(object), p)
+    text = np.where(np.isin(award, list(D.CONTINGENT_FRACTION)), D.HOOKED, D.NOT_CONTINGENT)
+    text = np.where(D.market_condition_grants(run.ledger), D.MARKET_CONDITION, text)
+    return np.repeat(np.where(psu, D.PAYOUT_IN_FORCE, text).astype(object), p)
 
 
 def dilution_by_grant(run) -> pd.DataFrame:
@@ -110,8 +106,10 @@ def recomputed_contingent_shares(run) -> float:
     from the vesting date in force) x days overlapping the period / days, times the payout of the row
     in force on the earlier of the period end and that vesting date.
     """
+    from grantval.attribution.dilution import performance_units
+
     led = run.ledger
-    psu = (led.grants["award_type"] == "psu").to_numpy()
+    psu = performance_units(led)
     tr = led.tranches[psu[led.tranches["grant_idx"].to_numpy()]]
     if not len(tr):
         return 0.0
@@ -154,7 +152,7 @@ def dilution_checks(run, totals: pd.DataFrame, by_grant: pd.DataFrame) -> list[C
         CheckRow("Weighted units: engine vs by-grant table", units, counted, 1e-6 * max(1.0, units),
                  abs(units - counted) <= 1e-6 * max(1.0, units)),
     ]
-    psu = (run.ledger.grants["award_type"] == "psu").to_numpy()
+    psu = np.zeros(len(run.ledger.grants), dtype=bool) if run.grants.contingent is None else run.grants.contingent
     if psu.any():
         engine = float(run.grants.weighted_units[psu].sum())
         again = recomputed_contingent_shares(run)

@@ -82,11 +82,12 @@ def _unit_vesting(ledger, inp, left: np.ndarray, through: int) -> tuple[np.ndarr
     shares are floor(units x payout in force on that date), as the cost hook fixes them
     (:mod:`grantval.attribution.performance`): the deduction and the cost settled are those shares'.
     """
+    from grantval.attribution.dilution import performance_units
     from grantval.attribution.performance import Assessments
 
     pre = inp.prepared()
     vest, shares = pre.t_vest.astype(np.int64), left.astype(float)
-    psu = ledger.grants["award_type"].to_numpy() == "psu"
+    psu = performance_units(ledger)
     if not psu.any():
         return vest, shares
     A, psu_t = Assessments(ledger, psu), psu[inp.t_grant]

@@ -366,3 +366,18 @@ def test_cash_settled_awards_are_not_potential_shares(tmp_path):
     assert by["grant_id"].tolist() == ["O1"]
     assert dilution_totals(run)["incremental_shares"].tolist() == [pytest.approx(250.0)]
     assert all(c.tool_pass for c in dilution_checks(run, dilution_totals(run), by))
+
+
+def test_market_condition_units_are_not_read_from_the_performance_table():
+    # a psu whose condition set is a market condition has no performance rows: it is not a PerformanceUnits grant
+    # (its count at the period-end price, IAS 33.54, is not applied; contingent_basis says so)
+    from types import SimpleNamespace
+
+    import pandas as pd
+
+    grants = pd.DataFrame({"award_type": ["psu", "psu", "option"], "condition_set": ["ebit", "tsr", "tsr"]})
+    led = SimpleNamespace(grants=grants, tables={"market_conditions": pd.DataFrame({"condition_set": ["tsr"]})})
+    assert D.market_condition_grants(led).tolist() == [False, True, True]
+    assert D.performance_units(led).tolist() == [True, False, False]
+    led.tables = {}
+    assert D.performance_units(led).tolist() == [True, True, False]
