@@ -8,12 +8,18 @@ Rules (paragraphs in ``docs/tax-and-dilution.md``):
   its end; no tax benefit enters the proceeds (ASU 2016-09 removed it);
 - incremental shares = units x (1 - proceeds / average share price) when proceeds < average price,
   else none: the award is anti-dilutive and is left out (ASC 260-10-45-23 and 45-25; IAS 33.45-47);
+- awards settled in cash (``cash_sar``, ``cash_unit``) issue no shares and are not counted;
 - units outstanding for part of the period are weighted by the days they were outstanding
   (ASC 718-10-45-1, IAS 33.38 and 33.48): granted and not yet forfeited, cancelled, exercised,
   expired, or (units) vested, whatever the forfeiture policy;
-- awards whose issue depends on conditions count only as far as the conditions would be met if the
-  period ended now (ASC 260-10-45-48, IAS 33.52): :data:`CONTINGENT_FRACTION` is the hook for such
-  kinds; the kinds grantval has (options, RSUs with service conditions only) count in full.
+- awards whose issue depends on a performance condition are contingently issuable shares (ASC
+  718-10-45-1 pointing to ASC 260-10-45-48 to 45-57; IAS 33.48): they count only as far as the
+  conditions would be met if the end of the period were the end of the contingency period (ASC
+  260-10-45-48; IAS 33.52 and 33.56), from the start of the period or the grant date if later.
+  Performance units (``psu``) count target units outstanding x the payout in force at the period end
+  (:class:`PerformanceUnits`; a stated policy: the ledger's payout is taken as the to-date outcome),
+  with the treasury stock method on the shares so counted; a payout of 0 counts none.
+  :data:`CONTINGENT_FRACTION` is a further per-grant hook for other kinds.
 
 :func:`treasury_stock_shares` is the pure numpy core; :func:`grant_dilution` gathers its inputs from
 a ledger, its expense engine inputs and the periods.
@@ -110,11 +116,17 @@ class Lots:
     grant: np.ndarray
     qty: np.ndarray
     start: np.ndarray
+    tranche: np.ndarray | None = None   # the tranche of each lot
 
 
-def outstanding_lots(ledger, inp) -> Lots:
-    """Lots of every grant: tranches from the grant date, less every event, less units that vest
-    (share units become issued shares) or expire at the end of the expiration date (options)."""
+def outstanding_lots(ledger, inp, unit_leave_day: np.ndarray | None = None) -> Lots:
+    """Lots of every grant settled in shares: tranches from the grant date, less every event, less units
+    that vest (share units become issued shares) or expire at the end of the expiration date (options).
+    Cash-settled kinds issue no shares and have no lots.
+
+    ``unit_leave_day`` (per tranche, day numbers) replaces the schedule's vesting day of share units
+    (performance units whose vesting date in force moved); options ignore it.
+    """
     pre = inp.prepared()
     n_t = len(inp.t_qty)
     left = inp.t_qty - np.bincount(inp.c_tranche, weights=inp.c_qty, minlength=n_t)
@@ -122,11 +134,23 @@ def outstanding_lots(ledger, inp) -> Lots:
     exercisable = flag(award, "exercisable")[inp.t_grant]
     expiry = ledger.grants["expiration_date"].to_numpy("datetime64[D]").astype("datetime64[D]")
     exp_day = np.where(np.isnat(expiry), np.iinfo(np.int64).max // 2, expiry.astype(np.int64) + 1)[inp.t_grant]
-    leave_day = np.where(exercisable, exp_day, pre.t_vest)
+    unit_day = pre.t_vest if unit_leave_day is None else unit_leave_day
+    leave_day = np.where(exercisable, exp_day, unit_day)
+    tranche = np.arange(n_t)
     grant = np.concatenate([inp.t_grant, inp.t_grant[inp.c_tranche], inp.t_grant])
     qty = np.concatenate([inp.t_qty.astype(float), -inp.c_qty.astype(float), -left.astype(float)])
     start = np.concatenate([pre.t_gdate, pre.c_date, leave_day])
-    return Lots(grant.astype(np.int64), qty, start.astype(np.int64))
+    tr = np.concatenate([tranche, np.asarray(inp.c_tranche, dtype=np.int64), tranche])
+    shares = ~cash_settled(award)[grant]
+    return Lots(grant[shares].astype(np.int64), qty[shares], start[shares].astype(np.int64),
+                tr[shares].astype(np.int64))
+
+
+def cash_settled(award_types: np.ndarray) -> np.ndarray:
+    """Per grant: its kind settles in cash (``AwardKind.settlement``): no shares are ever issued for it."""
+    from grantval.awards.registry import kinds
+
+    return np.isin(np.asarray(award_types, dtype=object), [k.name for k in kinds() if k.settlement == "cash"])
 
 
 def contingent_fraction(ledger, period_end) -> np.ndarray:
@@ -140,11 +164,95 @@ def contingent_fraction(ledger, period_end) -> np.ndarray:
     return out
 
 
+#: ``contingent_basis`` of units without a performance condition, and of performance units
+NOT_CONTINGENT = "not contingent"
+PAYOUT_IN_FORCE = ("performance payout in force at the period end, taken as the outcome if the period "
+                   "ended now (policy to be reviewed by an accountant)")
+HOOKED = "fraction of a kind registered in CONTINGENT_FRACTION"
+
+_NO_DAY = np.iinfo(np.int64).max
+
+
+@dataclass
+class Contingency:
+    """Per tranche, as at one day: shares counted per unit, the assessment used, the vesting day in force."""
+
+    payout: np.ndarray     # shares per unit counted (1 for kinds without a performance condition)
+    assessed: np.ndarray   # day number of the ``performance`` row used (``_NO_DAY`` where none)
+    vest_day: np.ndarray   # day number the units vest (performance units: the vesting date in force)
+
+
+MARKET_CONDITION = ("market condition: counted at target units; the count at the period-end price (IAS 33.54, "
+                    "ASC 260-10-45-52) is not applied: review")
+
+
+def market_condition_grants(ledger) -> np.ndarray:
+    """Per grant: its ``condition_set`` names a row of the ``market_conditions`` table."""
+    mc = ledger.tables.get("market_conditions")
+    if mc is None or not len(mc) or "condition_set" not in ledger.grants:
+        return np.zeros(len(ledger.grants), dtype=bool)
+    return ledger.grants["condition_set"].isin(frozenset(mc["condition_set"])).to_numpy()
+
+
+def performance_units(ledger) -> np.ndarray:
+    """Per grant: a ``psu`` whose payout follows the ``performance`` table (not a market condition)."""
+    return (ledger.grants["award_type"].to_numpy() == "psu") & ~market_condition_grants(ledger)
+
+
+class PerformanceUnits:
+    """The performance conditions of a ledger's psu grants, as contingently issuable shares.
+
+    The shares counted per target unit at a day d are the ``payout`` of the grant's ``performance`` row
+    with the latest ``assessed_on`` on or before d (on or before the vesting day in force, once that has
+    passed): the payout the expense engine uses (:mod:`grantval.attribution.performance`), taken as the
+    number issuable "if the end of the reporting period were the end of the contingency period"
+    (ASC 260-10-45-48; IAS 33.52 and 33.56).  That the ledger's payout (the probable outcome, ASC
+    718-10-25-20; the best estimate, IFRS 2.19-20) equals the outcome on the results to date is the
+    stated policy of ``docs/tax-and-dilution.md``; where the two differ, the ledger needs a row with the
+    to-date outcome.
+    """
+
+    def __init__(self, ledger, inp):
+        from grantval.attribution.performance import Assessments
+
+        psu = performance_units(ledger)
+        self.inp = inp
+        self.psu_t = psu[inp.t_grant]
+        self.assessments = Assessments(ledger, psu) if psu.any() else None
+
+    def _row(self, grants: np.ndarray, days: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Index of the row in force and whether there is one (the lookup of ``Assessments.at``)."""
+        A = self.assessments
+        key = A.grant * (1 << 32) + A.day
+        pos = np.searchsorted(key, grants.astype(np.int64) * (1 << 32) + days.astype(np.int64), side="right") - 1
+        ok = (pos >= 0) & (A.grant[np.maximum(pos, 0)] == grants)
+        return np.maximum(pos, 0), ok
+
+    def at(self, day: int) -> Contingency:
+        """Per tranche: the shares counted per unit, the assessment used and the vesting day, as at ``day``."""
+        pre = self.inp.prepared()
+        n_t = len(self.inp.t_grant)
+        if self.assessments is None:
+            return Contingency(np.ones(n_t), np.full(n_t, _NO_DAY), pre.t_vest.astype(np.int64))
+        A, g_t = self.assessments, self.inp.t_grant
+        _, vest_now = A.at(g_t, np.full(n_t, day))
+        vest = np.where(self.psu_t & (vest_now != _NO_DAY), vest_now, pre.t_vest).astype(np.int64)
+        pos, ok = self._row(g_t, np.minimum(vest, day))
+        payout = np.where(self.psu_t, np.where(ok, A.payout[pos], 0.0), 1.0)
+        assessed = np.where(self.psu_t & ok, A.day[pos], _NO_DAY)
+        return Contingency(payout, assessed, vest)
+
+
+def _tranche_units(lots: Lots, n_t: int, start: int, end: int) -> np.ndarray:
+    """Per tranche: units outstanding on each day of [start, end], averaged over its days."""
+    return weighted_units(lots.tranche, lots.qty, lots.start, start, end, n_t)
+
+
 @dataclass
 class GrantDilution:
     """Per grant x period figures of the treasury stock method (arrays of shape (grants, periods))."""
 
-    weighted_units: np.ndarray
+    weighted_units: np.ndarray       # units counted (performance units: contingently issuable shares)
     unrecognised_start: np.ndarray   # unrecognised cost per unit at the end of the day before the period
     unrecognised_end: np.ndarray     # unrecognised cost per unit at the period end
     unrecognised_average: np.ndarray
@@ -152,6 +260,10 @@ class GrantDilution:
     proceeds: np.ndarray             # assumed proceeds per unit
     incremental: np.ndarray
     antidilutive: np.ndarray
+    weighted_outstanding: np.ndarray | None = None  # units outstanding before any contingency (target units)
+    contingent_payout: np.ndarray | None = None     # shares counted per unit outstanding (1: not contingent)
+    contingent_assessed: np.ndarray | None = None   # datetime64[D]: the performance row used (NaT: none)
+    contingent: np.ndarray | None = None            # per grant: a performance unit (payout in force counted)
 
 
 def _per_unit(unrec: np.ndarray, units: np.ndarray) -> np.ndarray:
@@ -167,9 +279,28 @@ def _mean_of_points(a: np.ndarray, b: np.ndarray) -> np.ndarray:
     return np.where(n > 0, both / np.maximum(n, 1), 0.0)
 
 
+def _counted_at(inp, perf: PerformanceUnits, lots: Lots, day: int) -> np.ndarray:
+    """Per grant: shares counted at the end of ``day`` (units outstanding x payout in force then)."""
+    n_t = len(inp.t_grant)
+    units_t = _tranche_units(lots, n_t, day, day)
+    return np.bincount(inp.t_grant, weights=units_t * perf.at(day).payout, minlength=inp.n_grants)
+
+
+def _assessed_dates(inp, c: Contingency, units_t: np.ndarray) -> np.ndarray:
+    """Per grant: the latest assessment used by a tranche with units outstanding (NaT where none)."""
+    day = np.where((units_t > 0) & (c.assessed != _NO_DAY), c.assessed, np.iinfo(np.int64).min)
+    out = np.full(inp.n_grants, np.iinfo(np.int64).min, dtype=np.int64)
+    np.maximum.at(out, inp.t_grant, day)
+    return np.where(out == np.iinfo(np.int64).min, np.datetime64("NaT", "D"), out.astype("datetime64[D]"))
+
+
 def grant_dilution(ledger, inp, attribution: str, starts: np.ndarray, ends: np.ndarray,
                    average_price: np.ndarray) -> GrantDilution:
     """The treasury stock method for every grant and period.
+
+    Performance units count as contingently issuable shares: target units outstanding (time-weighted)
+    x the payout in force at the period end (:class:`PerformanceUnits`); their unrecognised cost is
+    divided by the shares so counted at each of the two points.
 
     Parameters
     ----------
@@ -185,24 +316,34 @@ def grant_dilution(ledger, inp, attribution: str, starts: np.ndarray, ends: np.n
     """
     from grantval.attribution.engine import measure
 
-    n, p = inp.n_grants, len(ends)
-    lots = outstanding_lots(ledger, inp)
+    n, p, n_t = inp.n_grants, len(ends), len(inp.t_grant)
+    perf = PerformanceUnits(ledger, inp)
     s_day = np.asarray(starts, dtype="datetime64[D]").astype(np.int64)
     e_day = np.asarray(ends, dtype="datetime64[D]").astype(np.int64)
     kw = {"attribution": attribution, "forfeitures": "as-occur"}
     shape = (n, p)
-    wu, u0, u1 = np.zeros(shape), np.zeros(shape), np.zeros(shape)
+    wu, wt, u0, u1 = np.zeros(shape), np.zeros(shape), np.zeros(shape), np.zeros(shape)
+    assessed = np.full(shape, np.datetime64("NaT", "D"))
+    fixed = outstanding_lots(ledger, inp) if perf.assessments is None else None
     for k in range(p):
+        c = perf.at(int(e_day[k]))
+        lots = fixed or outstanding_lots(ledger, inp, np.where(perf.psu_t, c.vest_day, inp.prepared().t_vest))
+        units_t = _tranche_units(lots, n_t, s_day[k], e_day[k])
         frac = contingent_fraction(ledger, ends[k])
-        wu[:, k] = weighted_units(lots.grant, lots.qty, lots.start, s_day[k], e_day[k], n) * frac
+        wt[:, k] = np.bincount(inp.t_grant, weights=units_t, minlength=n)
+        wu[:, k] = np.bincount(inp.t_grant, weights=units_t * c.payout, minlength=n) * frac
+        assessed[:, k] = _assessed_dates(inp, c, units_t)
         before = int(s_day[k]) - 1
         u0[:, k] = _per_unit(measure(inp, np.datetime64(before, "D"), **kw).unrecognised,
-                             units_at(lots.grant, lots.qty, lots.start, before, n))
-        u1[:, k] = _per_unit(measure(inp, ends[k], **kw).unrecognised,
-                             units_at(lots.grant, lots.qty, lots.start, e_day[k], n))
+                             _counted_at(inp, perf, lots, before))
+        u1[:, k] = _per_unit(measure(inp, ends[k], **kw).unrecognised, _counted_at(inp, perf, lots, int(e_day[k])))
     avg = _mean_of_points(u0, u1)
+    award = ledger.grants["award_type"].to_numpy()
     price = ledger.grants["exercise_price"].to_numpy(float)
-    price = np.where(flag(ledger.grants["award_type"].to_numpy(), "option_terms") & np.isfinite(price), price, 0.0)
+    price = np.where(flag(award, "option_terms") & np.isfinite(price), price, 0.0)
     wu = np.maximum(wu, 0.0)
     incr, anti = treasury_stock_shares(wu, price[:, None], np.maximum(avg, 0.0), np.asarray(average_price)[None, :])
-    return GrantDilution(wu, u0, u1, avg, price, price[:, None] + avg, incr, anti)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        payout = np.where(wt > 0, wu / np.where(wt > 0, wt, 1.0), 1.0)
+    return GrantDilution(wu, u0, u1, avg, price, price[:, None] + avg, incr, anti, wt, payout, assessed,
+                         performance_units(ledger))

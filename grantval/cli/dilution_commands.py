@@ -43,4 +43,7 @@ def dilution_cmd(
     total = run.grants.incremental.sum(axis=0)
     say(f"{run.ledger.n_grants} grants, {len(run.ends)} periods from {run.start} through {run.through}; "
         f"incremental shares in the last period {total[-1]:,.2f}")
+    if run.grants.contingent is not None and run.grants.contingent.any():
+        say(f"{int(run.grants.contingent.sum())} grants with performance conditions counted at the payout in force at "
+            "each period end, taken as the outcome if the period ended now (a policy to review: see the notes)")
     report_outputs(result)

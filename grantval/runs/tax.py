@@ -74,6 +74,29 @@ def _prices(ledger):
     return lambda day: table.get(int(day), float("nan"))
 
 
+def _unit_vesting(ledger, inp, left: np.ndarray, through: int) -> tuple[np.ndarray, np.ndarray]:
+    """Per tranche: the day share units vest and the shares then issued.
+
+    The schedule's vesting date and the units left, except for performance units (``psu``), whose
+    vesting date is the one in force at ``through`` (day number; ``expected_vest_date``) and whose
+    shares are floor(units x payout in force on that date), as the cost hook fixes them
+    (:mod:`grantval.attribution.performance`): the deduction and the cost settled are those shares'.
+    """
+    from grantval.attribution.dilution import performance_units
+    from grantval.attribution.performance import Assessments
+
+    pre = inp.prepared()
+    vest, shares = pre.t_vest.astype(np.int64), left.astype(float)
+    psu = performance_units(ledger)
+    if not psu.any():
+        return vest, shares
+    A, psu_t = Assessments(ledger, psu), psu[inp.t_grant]
+    _, moved = A.at(inp.t_grant, np.full(len(vest), through))
+    vest = np.where(psu_t & (moved != np.iinfo(np.int64).max), moved, vest)
+    payout, _ = A.at(inp.t_grant, np.minimum(vest, through))
+    return vest, np.where(psu_t, np.floor(left * payout + 1e-9), shares)
+
+
 def _settlements(ledger, inp, deductible, strike, price_at, window, problems) -> Settlements:
     """Exercises, expiries, cancellations, unit vestings and automatic expiries of deductible grants."""
     ch, ev, g = ledger.changes, ledger.events, ledger.grants
@@ -94,16 +117,17 @@ def _settlements(ledger, inp, deductible, strike, price_at, window, problems) ->
     expiry = g["expiration_date"].to_numpy("datetime64[D]")[tg]
     units = ~exercisable & deductible[tg] & (left > 0)
     lapse = exercisable & deductible[tg] & (left > 0) & ~np.isnat(expiry)
-    vest_price = np.array([price_at(d) for d in pre.t_vest[units]], dtype=float)
-    in_window = (pre.t_vest[units] >= window[0]) & (pre.t_vest[units] <= window[1])
-    for d, t in zip(pre.t_vest[units][in_window & ~np.isfinite(vest_price)], np.flatnonzero(units)[in_window
-                                                                                           & ~np.isfinite(vest_price)]):
+    t_vest, issued = _unit_vesting(ledger, inp, left, window[1])
+    vest_price = np.array([price_at(d) for d in t_vest[units]], dtype=float)
+    in_window = (t_vest[units] >= window[0]) & (t_vest[units] <= window[1])
+    for d, t in zip(t_vest[units][in_window & ~np.isfinite(vest_price)], np.flatnonzero(units)[in_window
+                                                                                       & ~np.isfinite(vest_price)]):
         problems.append(Problem(ledger.sources.get("share_prices", "share_prices"), None, "date",
                                 f"no share price on {np.datetime64(int(d), 'D')}, the vesting date of deductible "
                                 f"grant {inp.grant_id[tg[t]]} (its tax deduction is the share value then)"))
     parts = [
         (t_idx[keep], day[keep], qty[keep], ded[keep], outst[keep], kind[keep]),
-        (np.flatnonzero(units), pre.t_vest[units], left[units], np.nan_to_num(vest_price), np.ones(units.sum(), bool),
+        (np.flatnonzero(units), t_vest[units], issued[units], np.nan_to_num(vest_price), np.ones(units.sum(), bool),
          np.full(units.sum(), "vest", dtype=object)),
         (np.flatnonzero(lapse), expiry[lapse].astype(np.int64), left[lapse], np.zeros(lapse.sum()),
          np.ones(lapse.sum(), bool), np.full(lapse.sum(), "lapse", dtype=object)),

@@ -128,9 +128,11 @@ def test_contingent_fraction_hook(tmp_path):
     D.CONTINGENT_FRACTION["rsu"] = lambda ledger, mask, end: np.where(mask, 0.25, 1.0)
     try:
         run = _run(tmp_path, g, [("2027-06-30", 12)], "2027-04-01", "2027-06-30")
+        by = dilution_by_grant(run)
     finally:
         del D.CONTINGENT_FRACTION["rsu"]
     assert run.grants.weighted_units[0, 0] == pytest.approx(25.0)
+    assert by["contingent_payout"].tolist() == [0.25] and by["contingent_basis"].tolist() == [D.HOOKED]
 
 
 def test_missing_and_bad_average_prices(tmp_path):
@@ -206,3 +208,176 @@ def test_weighted_units_match_a_day_by_day_count(tmp_path, seed):
             expected[gi] += left.sum()
         expected /= len(days)
         assert np.allclose(run.grants.weighted_units[:, k], expected, atol=1e-9), (seed, k)
+
+
+# --- performance units: contingently issuable shares ---------------------------------------------------------
+
+def _psu_ledger(folder, perf, events=None, months=24, extra_grants=(), gdate="2027-01-01", every=None):
+    from tests.factory import write_ledger
+
+    unit = {**grant("P", award="rsu", qty=1200, months=months, every=every or months, gdate=gdate),
+            "award_type": "psu",
+            "condition_set": "ebit", "max_payout": "2"}
+    grants = [unit] + [{**g, "condition_set": "", "max_payout": ""} for g in extra_grants]
+    rows = [{"condition_set": "ebit", "assessed_on": d, "payout": str(x), "expected_vest_date": v}
+            for d, x, v in perf]
+    data = {"grants": grants, "assumptions": [assumption(fair_value="10")], "performance": rows}
+    if events:
+        data["events"] = events
+    return write_ledger(folder, data)
+
+
+PSU_PERF = [("2027-01-01", 1.0, ""), ("2027-05-15", 1.5, ""), ("2027-08-20", 0, ""), ("2027-11-10", 1.2, "")]
+PSU_PRICES = [("2027-03-31", 25), ("2027-06-30", 25), ("2027-09-30", 25), ("2027-12-31", 5)]
+
+
+def _psu_run(tmp_path, perf=PSU_PERF, prices=PSU_PRICES, through="2027-12-31", **kw):
+    loc = _psu_ledger(tmp_path / "l", perf, events=[event("P", "2027-05-01", "forfeit", 200)], **kw)
+    return api.dilution(loc, average_prices=_prices(tmp_path / "p", prices), start="2027-01-01", through=through,
+                        period="quarter")
+
+
+def test_performance_units_worked_example(tmp_path):
+    """Performance units as contingently issuable shares, computed by hand.
+
+    Rules: ASC 718-10-45-1 (performance condition -> contingently issuable shares, ASC 260-10-45-48 to 45-57)
+    and ASC 260-10-45-48 (verified, Deloitte EPS roadmap 4.5.1): the shares issuable if the end of the reporting
+    period were the end of the contingency period, included as of the beginning of the period (or the grant date
+    if later), if dilutive; IAS 33.48 (verified, EY International GAAP: performance-based employee options are
+    contingently issuable shares), IAS 33.52 and 33.56 (33.56 verified there: the status at the end of the
+    reporting period); the treasury stock method with unrecognised cost as proceeds (ASC 718-10-45-2, IAS 33.47A).
+    Policy (docs/tax-and-dilution.md): the ledger's payout in force at the period end is that outcome.
+
+    1,200 target units, fair value 10, granted 2027-01-01, cliff vesting 2029-01-01 (731 days of service);
+    200 forfeited 2027-05-01; payouts 100% (grant date), 150% from 2027-05-15, 0% from 2027-08-20,
+    120% from 2027-11-10.  Unrecognised cost per share counted = 10 x (1 - days served / 731).
+    """
+    run = _psu_run(tmp_path)
+    g = run.grants
+    # Q1 (90 days): 1,200 x 100% from the grant date; unrecognised per share only at the end (none before the grant
+    # date): 10 x (1 - 90/731); average price 25.
+    u = 10 * (1 - 90 / 731)
+    assert g.weighted_units[0, 0] == pytest.approx(1200.0)
+    assert g.incremental[0, 0] == pytest.approx(1200 * (1 - u / 25))
+    # Q2 (91 days): target units (1,200 x 30 + 1,000 x 61) / 91, times 150% in force at 2027-06-30, counted from the
+    # start of the quarter (ASC 260-10-45-48); unrecognised per share: 10 x (1 - 90/731) at the start (payout 100%
+    # then, 1,200 shares) and 10 x (1 - 181/731) at the end (1,500 shares); their mean.
+    target = (1200 * 30 + 1000 * 61) / 91
+    u = (10 * (1 - 90 / 731) + 10 * (1 - 181 / 731)) / 2
+    assert g.weighted_outstanding[0, 1] == pytest.approx(target)
+    assert g.weighted_units[0, 1] == pytest.approx(1.5 * target)
+    assert g.incremental[0, 1] == pytest.approx(1.5 * target * (1 - u / 25))
+    # Q3: payout 0 in force at 2027-09-30: no contingently issuable shares, none added, not anti-dilutive.
+    assert g.weighted_units[0, 2] == 0.0 and g.incremental[0, 2] == 0.0 and not g.antidilutive[0, 2]
+    # Q4: 1,000 x 120% = 1,200 shares; unrecognised per share only at the end (no shares counted at 2027-09-30):
+    # 10 x (1 - 365/731) = 5.0068 >= average price 5: anti-dilutive, left out.
+    assert g.unrecognised_average[0, 3] == pytest.approx(10 * (1 - 365 / 731))
+    assert g.incremental[0, 3] == 0.0 and g.antidilutive[0, 3]
+    totals = dilution_totals(run)
+    assert totals["antidilutive_options"].tolist()[3] == pytest.approx(1200.0)
+    by = dilution_by_grant(run)
+    assert len(by) == 4  # the quarter with payout 0 keeps its row (target units outstanding, nothing counted)
+    assert by["contingent_payout"].tolist() == pytest.approx([1.0, 1.5, 0.0, 1.2])
+    assert by["contingent_assessed_on"].dt.strftime("%Y-%m-%d").tolist() == ["2027-01-01", "2027-05-15", "2027-08-20", "2027-11-10"]
+    assert by["weighted_units_outstanding"].tolist()[1] == pytest.approx(target)
+    assert by["contingent_basis"].str.contains("taken as the outcome if the period ended now").all()
+    assert all(c.tool_pass for c in dilution_checks(run, totals, by))
+
+
+def test_performance_unit_checks_pass_and_turn_to_fail(tmp_path):
+    run = _psu_run(tmp_path, extra_grants=[grant("G1", strike="12")])
+    totals, by = dilution_totals(run), dilution_by_grant(run)
+    assert all(c.tool_pass for c in dilution_checks(run, totals, by))
+    assert dilution_checks(run, totals, by)[2].name.startswith("Contingently issuable shares")
+    # a performance unit's incremental shares off by one: the by-grant rows no longer tie to dilution.csv
+    run.grants.incremental[0, 1] += 1.0
+    assert not dilution_checks(run, dilution_totals(run), by)[0].tool_pass
+    run.grants.incremental[0, 1] -= 1.0
+    # the contingent count off (and the by-grant table rebuilt from it, so only the ledger recomputation sees it)
+    run.grants.weighted_units[0, 1] *= 1.01
+    by = dilution_by_grant(run)
+    checks = dilution_checks(run, dilution_totals(run), by)
+    assert checks[1].tool_pass and not checks[2].tool_pass
+    run.grants.weighted_units[0, 1] /= 1.01
+    assert dilution_checks(run, dilution_totals(run), dilution_by_grant(run))[2].tool_pass
+    # the performance table read differently by the recomputation (a payout changed after the run)
+    perf = run.ledger.tables["performance"]
+    perf.loc[perf["assessed_on"].astype(str).str.startswith("2027-05-15"), "payout"] = 1.4
+    assert not dilution_checks(run, dilution_totals(run), dilution_by_grant(run))[2].tool_pass
+
+
+def test_performance_units_leave_at_the_vesting_date_in_force(tmp_path):
+    # IFRS 2.15(b) / IG Example 2 (vesting date re-estimated; docs/expense-rules.md): from 2027-05-15 the units are
+    # expected to vest on 2027-08-01 instead of 2029-01-01. Q3 2027 (92 days): 1,000 units x 150% for the 31 days
+    # before 2027-08-01 (hand computation), then issued shares (basic EPS).
+    perf = [("2027-01-01", 1.0, ""), ("2027-05-15", 1.5, "2027-08-01")]
+    run = _psu_run(tmp_path, perf=perf, prices=PSU_PRICES[:3], through="2027-09-30")
+    assert run.grants.weighted_outstanding[0, 2] == pytest.approx(1000 * 31 / 92)
+    assert run.grants.weighted_units[0, 2] == pytest.approx(1.5 * 1000 * 31 / 92)
+    totals, by = dilution_totals(run), dilution_by_grant(run)
+    assert all(c.tool_pass for c in dilution_checks(run, totals, by))
+
+
+def test_performance_tranches_vesting_inside_a_period_keep_their_final_payout(tmp_path):
+    # two yearly tranches of 600 granted 2027-02-15 (vesting 2028-02-15 and 2029-02-15); the payout moves to 80% on
+    # 2028-03-01, after the first tranche vested at 100% (its shares were fixed then: docs/expense-rules.md).
+    # Q1 2028 (91 days, hand computation): tranche 1 counts 600 x 100% for the 45 days before 2028-02-15, then is
+    # issued; tranche 2 counts 600 x 80% (in force at the period end) for the whole quarter.
+    perf = [("2027-02-15", 1.0, ""), ("2028-03-01", 0.8, "")]
+    loc = _psu_ledger(tmp_path / "l", perf, months=24, every=12, gdate="2027-02-15")
+    prices = [("2027-12-31", 25), ("2028-03-31", 25)]
+    run = api.dilution(loc, average_prices=_prices(tmp_path / "p", prices), start="2027-10-01", through="2028-03-31",
+                       period="quarter")
+    assert len(run.ledger.tranches) == 2
+    assert run.grants.weighted_units[0, 0] == pytest.approx(1200.0)
+    assert run.grants.weighted_units[0, 1] == pytest.approx(600 * 45 / 91 + 600 * 0.8)
+    totals, by = dilution_totals(run), dilution_by_grant(run)
+    assert all(c.tool_pass for c in dilution_checks(run, totals, by))
+
+
+def test_ledgers_without_performance_units_have_no_contingent_check(tmp_path):
+    run = _run(tmp_path, [grant("G1")], [("2027-03-31", 20)], "2027-01-01", "2027-03-31")
+    by = dilution_by_grant(run)
+    assert len(dilution_checks(run, dilution_totals(run), by)) == 2
+    assert by["contingent_payout"].tolist() == [1.0] and by["contingent_basis"].tolist() == ["not contingent"]
+    assert by["contingent_assessed_on"].isna().all()
+
+
+def test_live_check_tool_verdict_can_fail(tmp_path):
+    from grantval.reporting.dilution_tables import live_check
+
+    run = _psu_run(tmp_path, extra_grants=[grant("G1", strike="12")])
+    totals, by = dilution_totals(run), dilution_by_grant(run)
+    total = float(totals["incremental_shares"].sum())
+    assert live_check(by, total).tool_pass
+    assert not live_check(by, total + 1.0).tool_pass
+
+
+def test_cash_settled_awards_are_not_potential_shares(tmp_path):
+    # cash-settled rights and units issue no shares, so they are no potential ordinary shares (IAS 33.5 definition,
+    # from memory; ASC 260-10-45-45 concerns only contracts that may be settled in shares or cash): only the option
+    # counts, 500 x (1 - 20/40) = 250 (hand computation).
+    from tests.attribution.cash_ledgers import mixed_ledger
+
+    loc = mixed_ledger(tmp_path / "l")
+    run = api.dilution(loc, average_prices=_prices(tmp_path / "p", [("2030-12-31", 40)]), start="2030-01-01",
+                       through="2030-12-31", period="year")
+    by = dilution_by_grant(run)
+    assert by["grant_id"].tolist() == ["O1"]
+    assert dilution_totals(run)["incremental_shares"].tolist() == [pytest.approx(250.0)]
+    assert all(c.tool_pass for c in dilution_checks(run, dilution_totals(run), by))
+
+
+def test_market_condition_units_are_not_read_from_the_performance_table():
+    # a psu whose condition set is a market condition has no performance rows: it is not a PerformanceUnits grant
+    # (its count at the period-end price, IAS 33.54, is not applied; contingent_basis says so)
+    from types import SimpleNamespace
+
+    import pandas as pd
+
+    grants = pd.DataFrame({"award_type": ["psu", "psu", "option"], "condition_set": ["ebit", "tsr", "tsr"]})
+    led = SimpleNamespace(grants=grants, tables={"market_conditions": pd.DataFrame({"condition_set": ["tsr"]})})
+    assert D.market_condition_grants(led).tolist() == [False, True, True]
+    assert D.performance_units(led).tolist() == [True, False, False]
+    led.tables = {}
+    assert D.performance_units(led).tolist() == [True, True, False]

@@ -363,3 +363,39 @@ def test_ifrs_share_units(tmp_path):
     assert _by(run, eff, "R1", "current_tax_benefit")[2] == pytest.approx(480.0)
     assert eff.current_to_equity[0, 2] == pytest.approx(180.0)
     assert _by(run, eff, "R1", "deferred_tax_asset")[2] == 0.0
+
+
+# --- performance units: the deduction is on the shares issued ----------------------------------------------
+
+def _psu_tax_ledger(folder, payout="1.5", expected_vest=""):
+    from tests.factory import write_ledger
+
+    unit = {**grant("P", award="rsu", qty=1000), "award_type": "psu", "condition_set": "c", "max_payout": "2"}
+    perf = [{"condition_set": "c", "assessed_on": "2027-01-01", "payout": payout, "expected_vest_date": expected_vest}]
+    prices = [price("2028-01-01", 12), price("2027-10-01", 12)]
+    return write_ledger(folder, {"grants": [unit], "assumptions": [assumption(fair_value="10")], "performance": perf,
+                                 "tax_rates": [rate("*", "2027-01-01", "0.25")], "share_prices": prices})
+
+
+def test_psu_deduction_and_cost_at_the_payout(tmp_path):
+    # ASC 718-740-35-2 / 45-2 (docs/tax-and-dilution.md; hand computation): 1,000 target units at 150% vest
+    # 2028-01-01 as 1,500 shares; cost 1,500 x 10 = 15,000, deferred tax 25% x 15,000 = 3,750 at 2027-12-31;
+    # deduction 1,500 x 12 = 18,000; excess (18,000 - 15,000) x 25% = 750; no deferred tax left.
+    run = api.expense(_psu_tax_ledger(tmp_path / "l"), through="2028-12-31", start="2027-01-01", period="year")
+    eff = tax_effects(run)
+    assert _by(run, eff, "P", "deferred_tax_asset").tolist() == pytest.approx([3750.0, 0.0])
+    assert _by(run, eff, "P", "tax_deduction")[1] == pytest.approx(18000.0)
+    assert _by(run, eff, "P", "excess_tax_benefit")[1] == pytest.approx(750.0)
+    deferred, roll, j = deferred_tax_table(run.inputs, eff), tax_rollforward(eff), tax_journal(run.inputs, eff)
+    assert all(c.tool_pass for c in tax_checks(run.inputs, eff, deferred, roll, j))
+
+
+def test_psu_settles_at_the_vesting_date_in_force(tmp_path):
+    # expected_vest_date 2027-10-01 (IFRS 2.15(b), docs/expense-rules.md): the shares vest then, at price 12;
+    # 1,000 x 100% = 1,000 shares: deduction 12,000, excess (12,000 - 10,000) x 25% = 500 in 2027.
+    run = api.expense(_psu_tax_ledger(tmp_path / "l", payout="1", expected_vest="2027-10-01"), through="2028-12-31",
+                      start="2027-01-01", period="year")
+    eff = tax_effects(run)
+    assert _by(run, eff, "P", "tax_deduction")[0] == pytest.approx(12000.0)
+    assert _by(run, eff, "P", "excess_tax_benefit")[0] == pytest.approx(500.0)
+    assert _by(run, eff, "P", "deferred_tax_asset")[0] == pytest.approx(0.0)

@@ -98,3 +98,62 @@ def test_workbook_formulas_recalculate_to_pass(tmp_path):
     i, j = head.index("Incremental shares"), head.index("Recomputed incremental shares")
     for row in ws.iter_rows(min_row=2, values_only=True):
         assert abs(row[i] - row[j]) < 1e-9
+
+
+def _psu_inputs(tmp_path):
+    from tests.factory import write_ledger
+
+    loc, prices = _inputs(tmp_path)
+    unit = {**grant("P1", award="rsu", qty=1200, months=24, every=24), "award_type": "psu", "condition_set": "ebit",
+            "max_payout": "2"}
+    others = [{**g, "condition_set": "", "max_payout": ""} for g in (grant("G1"), grant("G2", strike="12"))]
+    perf = [{"condition_set": "ebit", "assessed_on": d, "payout": x, "expected_vest_date": ""}
+            for d, x in (("2027-01-01", "1"), ("2027-05-15", "1.5"), ("2027-08-20", "0"))]
+    from tests.attribution.tax_ledgers import assumption
+
+    loc = write_ledger(tmp_path / "lp", {"grants": [unit] + others, "assumptions": [assumption()], "performance": perf})
+    return loc, prices
+
+
+def test_performance_units_in_the_csv_and_workbook(tmp_path):
+    loc, prices = _psu_inputs(tmp_path)
+    out = tmp_path / "d.xlsx"
+    r = run("dilution", loc, "--average-prices", prices, "--from", "2027-01-01", "--through", "2027-12-31",
+            "-o", out, "--csv-dir", tmp_path / "csv", "--no-timestamp")
+    assert r.exit_code == 0, r.output
+    assert "payout in force at each period end" in r.output
+    with open(tmp_path / "csv" / "dilution_by_grant.csv", newline="") as fh:
+        by_grant = list(csv.DictReader(fh))
+    head = list(by_grant[0])
+    assert head[:13] == ["grant_id", "group", "award_type", "period_end", "weighted_units", "exercise_price",
+                         "unrecognised_per_unit_start", "unrecognised_per_unit_end", "average_unrecognised_per_unit",
+                         "assumed_proceeds_per_unit", "average_share_price", "incremental_shares", "antidilutive"]
+    assert head[13:] == ["weighted_units_outstanding", "contingent_payout", "contingent_assessed_on",
+                         "contingent_basis"]
+    p1 = [x for x in by_grant if x["grant_id"] == "P1"]
+    assert [x["contingent_assessed_on"] for x in p1] == ["2027-01-01", "2027-05-15", "2027-08-20", "2027-08-20"]
+    assert [float(x["contingent_payout"]) for x in p1] == [1.0, 1.5, 0.0, 0.0]
+    assert [float(x["incremental_shares"]) for x in p1][2:] == [0.0, 0.0]
+    assert all(x["contingent_basis"] == "not contingent" for x in by_grant if x["grant_id"] != "P1")
+    wb = openpyxl.load_workbook(out)
+    names = [row[0] for row in wb["checks"].iter_rows(min_row=2, values_only=True)]
+    assert any(str(n).startswith("Contingently issuable shares") for n in names)
+    notes = " ".join(str(c) for row in wb["notes"].iter_rows(values_only=True) for c in row if c)
+    assert "stated policy for an accountant to review" in notes
+
+
+def test_performance_unit_workbook_recalculates_to_pass(tmp_path):
+    import pytest
+
+    from tests.io.test_recalculation import SOFFICE, recalculate
+
+    if SOFFICE is None:
+        pytest.skip("LibreOffice is not installed")
+    loc, prices = _psu_inputs(tmp_path)
+    out = tmp_path / "d.xlsx"
+    r = run("dilution", loc, "--average-prices", prices, "--from", "2027-01-01", "--through", "2027-12-31",
+            "-o", out, "--no-timestamp")
+    assert r.exit_code == 0, r.output
+    wb = openpyxl.load_workbook(recalculate(out, tmp_path), data_only=True)
+    status = [row[5] for row in wb["checks"].iter_rows(min_row=2, values_only=True)]
+    assert len(status) == 4 and all(s == "PASS" for s in status), status
