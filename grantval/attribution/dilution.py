@@ -188,15 +188,16 @@ MARKET_CONDITION = ("market condition: counted at target units; the count at the
 
 def market_condition_grants(ledger) -> np.ndarray:
     """Per grant: its ``condition_set`` names a row of the ``market_conditions`` table."""
-    mc = ledger.tables.get("market_conditions")
-    if mc is None or not len(mc) or "condition_set" not in ledger.grants:
-        return np.zeros(len(ledger.grants), dtype=bool)
-    return ledger.grants["condition_set"].isin(frozenset(mc["condition_set"])).to_numpy()
+    from grantval.ledger.ext.market import market_grants
+
+    return market_grants(ledger.grants, ledger.tables)
 
 
 def performance_units(ledger) -> np.ndarray:
     """Per grant: a ``psu`` whose payout follows the ``performance`` table (not a market condition)."""
-    return (ledger.grants["award_type"].to_numpy() == "psu") & ~market_condition_grants(ledger)
+    from grantval.attribution.performance import performance_grants
+
+    return performance_grants(ledger)
 
 
 class PerformanceUnits:
