@@ -209,3 +209,29 @@ def test_engine_matches_the_reference_implementation(tmp_path, attribution, forf
     for i, gid in enumerate(run.ledger.grants["grant_id"]):
         assert list(run.schedule.expense_cents[i]) == ref[gid], gid
     assert run.schedule.expense_cents[:2, :3].sum() > 0   # pre-grant periods carry cost
+
+
+def test_notes_state_the_rule_only_when_the_ledger_uses_it(tmp_path):
+    from grantval.reporting.notes import expense_notes
+
+    with_it = api.expense(rsu_ledger(tmp_path / "a"), through="2027-12-31", period="quarter")
+    without = api.expense(rsu_ledger(tmp_path / "b", grants=[grant(grant_id="R", quantity="1200",
+                                                                  service_inception_date="")]),
+                          through="2027-12-31", period="quarter")
+    keys = lambda run: [k for k, _ in expense_notes(run.policy, run.ledger)]  # noqa: E731
+    assert "service inception" in keys(with_it) and "service inception" not in keys(without)
+    text = dict(expense_notes(with_it.policy, with_it.ledger))["service inception"]
+    assert "ASC 718-10-30-25" in text and "each reporting date" in text
+
+
+def test_expense_workbook_notes_and_checks_with_a_through_date_before_the_grant_date(tmp_path):
+    import openpyxl
+
+    from grantval.runs.expense import write_expense
+
+    run = api.expense(rsu_ledger(tmp_path / "l"), through="2027-06-30", period="quarter")
+    out = write_expense(run, tmp_path / "o.xlsx", None, timestamp=False)
+    assert out.checks and not out.failed           # recognised + unrecognised ties at the value of 2027-06-30
+    wb = openpyxl.load_workbook(tmp_path / "o.xlsx")
+    notes = [str(c) for row in wb["notes"].iter_rows(values_only=True) for c in row if c]
+    assert any("Service inception before the grant date" in t for t in notes)
