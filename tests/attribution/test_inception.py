@@ -24,7 +24,7 @@ from tests.factory import write_ledger
 
 
 def cents(x: float) -> int:
-    return int(math.floor(x * 100 + 0.5))
+    return math.floor(x * 100 + 0.5)
 
 
 def test_rsu_worked_example_by_hand_asc718(tmp_path):
