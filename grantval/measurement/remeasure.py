@@ -344,13 +344,12 @@ class AsIfGranted:
         d = str(np.datetime64(dn, "D"))
         g = self.ledger.grants
         gsrc = self.ledger.sources.get("grants", "grants")
-        asrc = self.ledger.sources.get("assumptions", "assumptions")
-        problems = [Problem(asrc, None, "assumption_set",
-                            f"grant {g['grant_id'].iat[i]} ({gsrc} row {int(g['_row'].iat[i])}) has no fair value for "
-                            f"{d}, before its grant date {np.datetime64(g['grant_date'].iat[i], 'D')} (its service "
-                            f"began on service_inception_date {np.datetime64(g['service_inception_date'].iat[i], 'D')}, "
-                            f"so cost is measured at the fair value at each reporting date until the grant date): "
-                            f"give an assumptions row for {d} (assumption_set {d}, or grant_date {d} with "
-                            "assumption_set blank), with a fair_value or the inputs to value it")
+        problems = [Problem(gsrc, int(g["_row"].iat[i]), "service_inception_date",
+                            f"grant {g['grant_id'].iat[i]} has no fair value for {d}, before its grant date "
+                            f"{np.datetime64(g['grant_date'].iat[i], 'D')}: its service began on "
+                            f"{np.datetime64(g['service_inception_date'].iat[i], 'D')}, so its cost is measured at the "
+                            f"fair value at each reporting date until the grant date. Give an assumptions row for {d} "
+                            f"(assumption_set {d}, or grant_date {d} with assumption_set blank), with a fair_value "
+                            "or the inputs to value it")
                     for i in np.flatnonzero(grants)[:20]]
         return LedgerError(problems, self.ledger.location)

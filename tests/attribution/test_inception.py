@@ -118,9 +118,10 @@ def test_missing_value_before_the_grant_date_names_the_grant_and_the_date(tmp_pa
     folder = rsu_ledger(tmp_path / "l", pre_grant_rows=(("2027-06-30", "22"),))
     with pytest.raises(LedgerError) as e:
         api.expense(folder, through="2027-12-31", period="quarter")
-    text = str(e.value)
-    assert "grant R" in text and "2027-03-31" in text and "before its grant date 2027-07-01" in text
-    assert "assumption_set 2027-03-31" in text
+    [p] = e.value.problems
+    assert (p.source, p.row, p.column) == ("grants.csv", 2, "service_inception_date")
+    assert "grant R has no fair value for 2027-03-31, before its grant date 2027-07-01" in p.message
+    assert "assumption_set 2027-03-31" in p.message
 
 
 def test_a_start_inside_the_pre_grant_service_needs_the_value_of_the_day_before(tmp_path):
