@@ -236,3 +236,15 @@ def test_expense_workbook_notes_and_checks_with_a_through_date_before_the_grant_
     wb = openpyxl.load_workbook(tmp_path / "o.xlsx")
     notes = [str(c) for row in wb["notes"].iter_rows(values_only=True) for c in row if c]
     assert any("Service inception before the grant date" in t for t in notes)
+
+
+def test_no_value_is_asked_for_when_no_reporting_date_falls_before_the_grant_date(tmp_path):
+    # inception 2027-04-10 and grant 2027-06-01 in the same quarter: no pre-grant rows, none needed;
+    # through 2027-06-30, 82 days served (2027-04-10 to 2027-06-30 inclusive) of 632 (to 2029-01-01)
+    folder = rsu_ledger(tmp_path / "l", pre_grant_rows=(),
+                        grants=[grant(grant_id="R", quantity="1200", grant_date="2027-06-01",
+                                      service_inception_date="2027-04-10")],
+                        assumptions=[assumption(grant_date="2027-06-01", share_price="25")])
+    run = api.expense(folder, through="2027-06-30", period="quarter")
+    assert str(run.schedule.window_start) == "2027-04-01"
+    assert list(run.schedule.cumulative_cents[0]) == [cents(1200 * 25 * 82 / 632)]
