@@ -248,3 +248,15 @@ def test_no_value_is_asked_for_when_no_reporting_date_falls_before_the_grant_dat
     run = api.expense(folder, through="2027-06-30", period="quarter")
     assert str(run.schedule.window_start) == "2027-04-01"
     assert list(run.schedule.cumulative_cents[0]) == [cents(1200 * 25 * 82 / 632)]
+
+
+def test_rsu_valued_as_if_granted_discounts_dividends_to_vesting_from_the_reporting_date(tmp_path):
+    # RSU value S exp(-q t) (docs: share price less the present value of dividends forgone), with t from the
+    # reporting date 2027-03-31 to the vesting date 2029-01-01: 642 days / 365.25
+    rows = (("2027-03-31", "20"), ("2027-06-30", "22"))
+    folder = rsu_ledger(tmp_path / "l", pre_grant_rows=rows,
+                        assumptions=[assumption(grant_date="2027-07-01", share_price="25")]
+                        + [assumption(assumption_set=d, share_price=p, dividend_yield="0.02") for d, p in rows])
+    run = api.expense(folder, through="2027-03-31", period="quarter")
+    value = 20 * math.exp(-0.02 * 642 / 365.25)    # = 19.31...
+    assert run.schedule.cumulative_cents[0, 0] == cents(value * 1200 * 90 / 731)
