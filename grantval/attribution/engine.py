@@ -167,7 +167,8 @@ def _apply_hooks(inp: ExpenseInputs, Q: _Quantities, dn: int, attribution: str, 
     """Replace the cost of the grants a cost hook owns by the hook's own figures (in place)."""
     for hook in inp.cost_hooks:
         h = hook.cost(inp, Q, dn, attribution)
-        m = hook.grants
+        m = getattr(h, "owned", None)
+        m = hook.grants if m is None else m
         cost[m], expected_total[m] = h.grant_cost[m], h.expected_total[m]
         unrec[m], remaining[m] = h.unrecognised[m], h.remaining_years[m]
         per_tranche = getattr(h, "n_expensed", None)

@@ -89,6 +89,8 @@ class CostHook:
         ``grant_cost``, ``expected_total``, ``unrecognised`` and ``remaining_years`` arrays (all grants;
         only the owned entries are used).  ``quantities`` holds the engine's per-tranche quantities
         at the date (``n_exp``, ``outstanding``, ``vested``, ...; see :mod:`grantval.attribution.engine`).
+        A result with an ``owned`` mask (per grant) owns only those grants at that date (a hook that owns
+        its grants on some dates only: service before the grant date); otherwise it owns ``grants``.
     """
 
     grants: np.ndarray
@@ -194,8 +196,15 @@ def build_inputs(ledger: Ledger, fair_values: "FairValues", policy=None) -> Expe
         est_fraction=est["expected_vest_fraction"].to_numpy(float),
         t_service_end=service_end(ledger, t_vest, getattr(fair_values, "service_years", None)),
     )
+    from grantval.attribution import inception
+
+    early = inception.start_service_at_inception(inp, ledger)  # before modifications measure anything
     _modify(ledger, fair_values, inp, policy)
     inp.cost_hooks = [h for h in (b(ledger, fair_values, inp) for b in hook_builders()) if h is not None]
+    if early.any():
+        from grantval.policy import resolve_policy
+
+        inception.install_inception_hook(inp, ledger, early, policy or resolve_policy(ledger.policy_values))
     # cash-settled awards (settlement "cash"): no grant-date layer value; their cost is the liability hook's
     from grantval.attribution.liability import install_liability_hook
 

@@ -79,8 +79,12 @@ def _ends(first: np.datetime64, last: np.datetime64, policy: Policy) -> np.ndarr
 
 
 def default_start(inp: ExpenseInputs, policy: Policy) -> np.datetime64:
-    """First day of the fiscal period containing the earliest grant date."""
-    first = inp.grant_date.min()
+    """First day of the fiscal period containing the earliest grant date or earlier start of service.
+
+    (A grant whose service began before its grant date, ``service_inception_date``, starts its
+    grant-date cost layer on that date.)
+    """
+    first = min(inp.grant_date.min(), np.asarray(inp.layers.start, dtype="datetime64[D]").min())
     end = period_ends(first, first, policy.period, policy.fiscal_year_end_month)[0]
     months = {"month": 1, "quarter": 3, "year": 12}[policy.period]
     start_month = (end.astype("datetime64[M]") - np.timedelta64(months - 1, "M"))

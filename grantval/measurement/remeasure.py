@@ -247,3 +247,109 @@ class Remeasurer:
             price[rest] = float(self.a["share_price"].iat[j])
             method[rest] = f"share_price, {self.a_src} row {int(self.a['_row'].iat[j])}"
         return price, method
+
+
+class AsIfGranted:
+    """Fair values per unit of equity awards at dates before their grant date (service inception earlier).
+
+    Rule (docs/expense-rules.md, "Service inception before the grant date"): at a date ``d`` before
+    the grant date an award is valued exactly as the ledger would value it were it granted on ``d``:
+    same terms (exercise price, expiration, vesting dates), its award kind's own valuer (options by
+    ``bsm`` at the expected term given or by the simplified method from ``d``, or by the lattice over
+    ``expiration - d``; units as the share price less dividends to each vesting date), on the
+    ``assumptions`` row for ``d`` (its ``assumption_set`` is the ISO text of ``d``, or its
+    ``assumption_set`` is blank and its ``grant_date`` is ``d``; a ``fair_value`` on that row is used
+    as given).  ``liability_values`` rows are not used: they hold values of cash-settled awards.
+    A date with no such row is a :class:`~grantval.errors.LedgerError` naming the grant and the date.
+
+    Parameters
+    ----------
+    ledger : Ledger
+        A checked ledger.
+    policy : Policy
+        Valuation unit and lattice steps, as for the grant-date values.
+    """
+
+    def __init__(self, ledger: Ledger, policy):
+        self.ledger, self.policy = ledger, policy
+        self.by_date = Remeasurer._assumption_dates(ledger.assumptions)
+        self.gi = ledger.tranches["grant_idx"].to_numpy(np.int64)
+        self.cache: dict[int, UnitValues] = {}
+        self.priced: dict = {}  # input sets already priced (measurement.unique)
+
+    def values_at(self, d, grants: np.ndarray) -> UnitValues:
+        """Fair value per unit at ``d`` of every tranche of the grants in the mask ``grants`` (currency)."""
+        dn = _day(d)
+        grants = np.asarray(grants, dtype=bool)
+        out = self.cache.get(dn)
+        if out is None:
+            out = UnitValues(np.full(len(self.gi), np.nan), np.full(len(grants), "", dtype=object))
+            self.cache[dn] = out
+        todo = grants & (out.method == "")
+        if not todo.any():
+            return out
+        j = self.by_date.get(dn)
+        if j is None:
+            raise self._missing(dn, todo)
+        self._check_row(dn, j, todo)
+        idx = np.flatnonzero(todo)
+        values = self._value(self._as_if(idx, dn, j))
+        mt = todo[self.gi]
+        out.tranche_value[mt] = values
+        where = f"{self.ledger.sources.get('assumptions', 'assumptions')} row {int(self.ledger.assumptions['_row'].iat[j])}"
+        out.method[todo] = f"valued as if granted on {np.datetime64(dn, 'D')}, {where}"
+        return out
+
+    def _as_if(self, idx: np.ndarray, dn: int, j: int) -> Ledger:
+        """The ledger of grants ``idx`` only, granted on day ``dn`` and valued on assumptions row ``j``."""
+        from dataclasses import replace
+
+        led = self.ledger
+        g = led.grants.iloc[idx].reset_index(drop=True).copy()
+        g["grant_date"] = np.datetime64(dn, "D")
+        tr = led.tranches
+        keep = np.isin(self.gi, idx)
+        sub = tr[keep].reset_index(drop=True).copy()
+        pos = np.full(len(led.grants), -1, dtype=np.int64)
+        pos[idx] = np.arange(len(idx))
+        sub["grant_idx"] = pos[self.gi[keep]]
+        return replace(led, grants=g, tranches=sub, grant_assumption=np.full(len(idx), j, dtype=np.int64))
+
+    def _value(self, led: Ledger) -> np.ndarray:
+        from grantval.measurement.fairvalue import compute_fair_values
+
+        return np.asarray(compute_fair_values(led, self.policy, cache=self.priced).tranche_value, dtype=float)
+
+    def _check_row(self, dn: int, j: int, grants: np.ndarray) -> None:
+        """An option valued on row ``j`` (no fair_value given) needs its volatility and risk-free rate."""
+        from grantval.awards.registry import flag
+
+        a = self.ledger.assumptions
+        if not np.isnan(float(a["fair_value"].iat[j])):
+            return
+        options = grants & flag(self.ledger.grants["award_type"].to_numpy(), "option_terms")
+        if not options.any():
+            return
+        for c in ("volatility", "risk_free_rate"):
+            if np.isnan(float(a[c].iat[j])):
+                first = np.flatnonzero(options)[0]
+                raise LedgerError([Problem(self.ledger.sources.get("assumptions", "assumptions"),
+                                           int(a["_row"].iat[j]), c,
+                                           f"is required to value option grant {self.ledger.grants['grant_id'].iat[first]} "
+                                           f"on {np.datetime64(dn, 'D')}, before its grant date (its service began "
+                                           "earlier, service_inception_date); or give a fair_value")],
+                                  self.ledger.location)
+
+    def _missing(self, dn: int, grants: np.ndarray) -> LedgerError:
+        d = str(np.datetime64(dn, "D"))
+        g = self.ledger.grants
+        gsrc = self.ledger.sources.get("grants", "grants")
+        problems = [Problem(gsrc, int(g["_row"].iat[i]), "service_inception_date",
+                            f"grant {g['grant_id'].iat[i]} has no fair value for {d}, before its grant date "
+                            f"{np.datetime64(g['grant_date'].iat[i], 'D')}: its service began on "
+                            f"{np.datetime64(g['service_inception_date'].iat[i], 'D')}, so its cost is measured at the "
+                            f"fair value at each reporting date until the grant date. Give an assumptions row for {d} "
+                            f"(assumption_set {d}, or grant_date {d} with assumption_set blank), with a fair_value "
+                            "or the inputs to value it")
+                    for i in np.flatnonzero(grants)[:20]]
+        return LedgerError(problems, self.ledger.location)

@@ -189,7 +189,7 @@ def close_sheets(result, info: RunInfo) -> list[Sheet]:
     bframe, _ = bridge_frame(plan)
     money = {**FORMATS, "expense": MONEY, "catch_up": MONEY, "debit": MONEY, "credit": MONEY, "amount": MONEY,
              "recomputed_through_last_close": MONEY, "booked_through_last_close": MONEY, "period_end": "yyyy-mm-dd"}
-    rules = CLOSE_RULES + [(f"Bridge: {k}", v) for k, v in B.notes()] + expense_notes(plan.run.policy)
+    rules = CLOSE_RULES + [(f"Bridge: {k}", v) for k, v in B.notes()] + expense_notes(plan.run.policy, plan.run.ledger)
     rules += [(f"Policy {k}", v) for k, v in plan.run.policy.describe()]
     return [
         run_sheet(info, info.workbook_time()),

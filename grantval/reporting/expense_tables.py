@@ -87,6 +87,10 @@ def tranche_table(inp: ExpenseInputs, sched: ExpenseSchedule, tranche_no) -> pd.
     lay = inp.layers
     started = lay.start <= np.datetime64(sched.period_ends[-1], "D")
     fv_in_force = np.bincount(lay.tranche[started], weights=lay.fair_value[started], minlength=len(inp.t_qty))
+    # service begun before the grant date (service_inception_date): measured at the value of the through date
+    from grantval.attribution.inception import pre_grant_values
+
+    pre, pre_fv = pre_grant_values(inp, sched.period_ends[-1])
     return pd.DataFrame({
         "grant_id": inp.grant_id[inp.t_grant],
         "tranche": tranche_no,
@@ -95,9 +99,10 @@ def tranche_table(inp: ExpenseInputs, sched: ExpenseSchedule, tranche_no) -> pd.
         "forfeited": forfeited.astype(np.int64),
         "cancelled_unvested": m.cancelled.astype(np.int64),
         "vested": m.vested,
-        "status": _status(inp, m, granted),
-        "quantity_expected_to_vest": np.where(granted, m.n_expensed, 0.0),
-        "fair_value_per_unit": fv_in_force,  # grant-date value plus modifications in force (else = t_fv)
+        "status": np.where(pre, "service before grant", _status(inp, m, granted)).astype(object),
+        "quantity_expected_to_vest": np.where(granted | pre, m.n_expensed, 0.0),
+        # grant-date value plus modifications in force (else = t_fv); before the grant date, the value then
+        "fair_value_per_unit": np.where(pre, pre_fv, fv_in_force),
         "grant_date_fair_value": inp.t_qty * inp.t_fv,
         "service_elapsed": m.elapsed,
     })

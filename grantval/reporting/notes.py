@@ -93,7 +93,22 @@ MARKET_NOTES = [
 ]
 
 
-def expense_notes(policy) -> list[tuple[str, str]]:
-    """Statements of the attribution and forfeiture rules applied under ``policy``."""
+#: stated only when the ledger has a grant whose service began before its grant date
+SERVICE_INCEPTION = (
+    "Service inception before the grant date (grants.service_inception_date): service and cost run from the "
+    "inception date; before the grant date cost is measured at the fair value at each reporting date (the "
+    "assumptions row for that date, valued as if granted then) and from the grant date at the grant-date fair "
+    "value, with the cumulative catch-up in the period of the grant date (ASC 718-10-30-25; ASC 718-10-35-6 and "
+    "55-108 to 55-109, IFRS 2 IG4: from memory).")
+
+
+def expense_notes(policy, ledger=None) -> list[tuple[str, str]]:
+    """Statements of the attribution and forfeiture rules applied under ``policy`` (and the ledger's features)."""
     rules = [("attribution", EXPENSE_RULES[policy.attribution]), ("forfeitures", EXPENSE_RULES[policy.forfeitures])]
-    return rules + [(k, EXPENSE_RULES[k]) for k in ("service", "cancel", "rounding", "forecast")]
+    rules += [(k, EXPENSE_RULES[k]) for k in ("service", "cancel", "rounding", "forecast")]
+    if ledger is not None:
+        from grantval.attribution.inception import uses_inception
+
+        if uses_inception(ledger):
+            rules.append(("service inception", SERVICE_INCEPTION))
+    return rules

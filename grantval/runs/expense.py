@@ -116,7 +116,7 @@ def _write_book(run: ExpenseRun, xlsx, tables: dict, disc, checks, command, time
     sheets = expense_book.expense_sheets(run, info, fv_frame, tables["by_grant"], tables["by_group"],
                                          tables["tranches"], tables["unrec"], tables["unrec_total"],
                                          tables["unrec_wa"], tables["forecast"],
-                                         disc if share_price is not None else None, checks, expense_notes(run.policy))
+                                         disc if share_price is not None else None, checks, expense_notes(run.policy, run.ledger))
     if tables.get("liability_sheets"):
         at = next(i for i, sh in enumerate(sheets) if sh.name == "checks")
         sheets[at:at] = tables["liability_sheets"]

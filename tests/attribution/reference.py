@@ -40,8 +40,22 @@ def estimate_for(estimates, grant_id, group, day):
     return best
 
 
-def cumulative_cost(ledger, fv_tranche, day: dt.date, attribution: str, forfeitures: str, events_through=None):
-    """Cost per grant id through ``day`` (inclusive)."""
+def service_start(ledger, i) -> dt.date:
+    """First day of service of grant ``i``: its service inception date when that precedes the grant date."""
+    grant = _d(ledger.grants["grant_date"].iat[i])
+    inc = ledger.grants["service_inception_date"].iat[i] if "service_inception_date" in ledger.grants else None
+    if inc is None or (isinstance(inc, float) and math.isnan(inc)) or str(inc) in ("NaT", "nan", "None"):
+        return grant
+    return min(_d(inc), grant)
+
+
+def cumulative_cost(ledger, fv_tranche, day: dt.date, attribution: str, forfeitures: str, events_through=None,
+                    pre_grant_value=None):
+    """Cost per grant id through ``day`` (inclusive).
+
+    ``pre_grant_value(t, day)``: fair value per unit of tranche ``t`` at ``day``, for grants whose
+    service began before the grant date and whose grant date is after ``day``.
+    """
     g = ledger.grants
     estimates = [dict(applies_to=a, effective=_d(e), rate=r, frac=f) for a, e, r, f in zip(
         ledger.estimates["applies_to"], ledger.estimates["effective_date"],
@@ -57,6 +71,8 @@ def cumulative_cost(ledger, fv_tranche, day: dt.date, attribution: str, forfeitu
         by_grant.setdefault(int(ledger.tranches["grant_idx"].iat[t]), []).append(t)
     for i in range(len(g)):
         gid, group, grant = g["grant_id"].iat[i], g["group"].iat[i], _d(g["grant_date"].iat[i])
+        start = service_start(ledger, i)
+        before_grant = start <= day < grant
         items = []
         cancel_cost = 0.0
         for t in by_grant.get(i, []):
@@ -83,17 +99,17 @@ def cumulative_cost(ledger, fv_tranche, day: dt.date, attribution: str, forfeitu
                     n = outstanding * (1 - e["rate"]) ** years
             else:
                 n = outstanding
-            fv = fv_tranche[t]
+            fv = pre_grant_value(t, day) if before_grant else fv_tranche[t]
             if grant <= day:
                 cancel_cost += fv * canc
             items.append((vest, n, fv, vested))
         if attribution == "graded":
-            cost = sum(fv * n * served_fraction(day, grant, vest) for vest, n, fv, _ in items)
+            cost = sum(fv * n * served_fraction(day, start, vest) for vest, n, fv, _ in items)
         else:
             last = max(v for v, _, _, _ in items)
             total = sum(fv * n for _, n, fv, _ in items)
             floor = sum(fv * n for _, n, fv, v in items if v)
-            cost = max(total * served_fraction(day, grant, last), floor) if grant <= day else 0.0
+            cost = max(total * served_fraction(day, start, last), floor) if start <= day else 0.0
         out[gid] = cost + cancel_cost
     return out
 
@@ -115,15 +131,16 @@ def period_ends(start: dt.date, through: dt.date, period: str, fye: int):
     return ends + [through]
 
 
-def schedule_cents(ledger, fv_tranche, start, through, attribution, forfeitures, period, fye):
+def schedule_cents(ledger, fv_tranche, start, through, attribution, forfeitures, period, fye, pre_grant_value=None):
     """{grant_id: [period expense in cents]} by the rounding rule: round cumulative, then difference."""
     ends = period_ends(start, through, period, fye)
     rnd = lambda x: int(math.floor(x * 100 + 0.5))  # noqa: E731
     prev = {k: rnd(v) for k, v in cumulative_cost(ledger, fv_tranche, start - dt.timedelta(days=1),
-                                                   attribution, forfeitures).items()}
+                                                   attribution, forfeitures, pre_grant_value=pre_grant_value).items()}
     out = {k: [] for k in prev}
     for d in ends:
-        cur = {k: rnd(v) for k, v in cumulative_cost(ledger, fv_tranche, d, attribution, forfeitures).items()}
+        cur = {k: rnd(v) for k, v in cumulative_cost(ledger, fv_tranche, d, attribution, forfeitures,
+                                                     pre_grant_value=pre_grant_value).items()}
         for k in cur:
             out[k].append(cur[k] - prev[k])
         prev = cur

@@ -46,6 +46,7 @@ def _grant_problems(g: pd.DataFrame, src: str, market: frozenset = frozenset()) 
     for r in rows_where(g, ~np.isnat(inception) & (inception > gd)):
         p.append(Problem(src, r, "service_inception_date", "is after the grant date; service that begins after the "
                          "grant date needs no inception date"))
+    p += _inception_problems(g, src, inception, gd)
     for r in rows_where(g, psu & g["exercise_price"].notna().to_numpy()):
         p.append(Problem(src, r, "exercise_price", "a psu (performance share unit) has no exercise price; leave it blank"))
     for r in rows_where(g, psu & g["condition_set"].isna().to_numpy()):
@@ -56,6 +57,20 @@ def _grant_problems(g: pd.DataFrame, src: str, market: frozenset = frozenset()) 
     mp = g["max_payout"].to_numpy(float)
     for r in rows_where(g, ~np.isnan(mp) & (mp < 0)):
         p.append(Problem(src, r, "max_payout", "must be zero or more"))
+    return p
+
+
+def _inception_problems(g: pd.DataFrame, src: str, inception: np.ndarray, gd: np.ndarray) -> list[Problem]:
+    """Award kinds whose cost follows a rule of their own take no earlier service inception date (yet)."""
+    from grantval.ledger.ext.cash import CASH_TYPES
+
+    early = ~np.isnat(inception) & (inception < gd)
+    award = g["award_type"].to_numpy(dtype=object)
+    p: list[Problem] = []
+    for r, a in zip(rows_where(g, early & np.isin(award, ("psu",) + CASH_TYPES)),
+                    award[early & np.isin(award, ("psu",) + CASH_TYPES)]):
+        p.append(Problem(src, r, "service_inception_date", f"service before the grant date is supported for "
+                         f"share-settled options and units only, not for award_type {a}; leave it blank"))
     return p
 
 
