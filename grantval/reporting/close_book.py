@@ -163,11 +163,35 @@ def _cash_checks(plan) -> list[CheckRow]:
                      round(0.01 * n + 0.005, 2), abs(a - b) <= n)]
 
 
+def _tax_checks(plan) -> list[CheckRow]:
+    """Tax lines booked through the close = tax lines recomputed from the first period, per account and group.
+
+    Side A: the nets booked by earlier closes (their recorded :data:`~grantval.runs.close_late.TAX_KEY`)
+    plus this close's tax lines as written in the journal.  Side B: a fresh schedule from the first
+    period through the close's last period end and its tax journal.  A tax effect of a closed period
+    that changed after its close and is not caught up makes them differ.
+    """
+    from grantval.runs.close_late import tax_through
+
+    before = plan.late.tax_booked_before
+    if before is None:
+        return []
+    j = plan.journal[plan.journal["entry"] == "tax"]
+    booked = dict(before)
+    group = j["group"].astype(object).where(j["group"].notna(), "(none)")
+    for acct, grp, dr, cr in zip(j["account"], group, j["debit_cents"], j["credit_cents"]):
+        booked[f"{acct}\t{grp}"] = booked.get(f"{acct}\t{grp}", 0) + int(dr) - int(cr)
+    fresh = tax_through(plan.run, plan.run.through)
+    off = [k for k in set(booked) | set(fresh) if booked.get(k, 0) != fresh.get(k, 0)]
+    return [CheckRow(f"Tax lines booked through {plan.run.through} (earlier closes + this close) = tax lines "
+                     "recomputed from the first period: accounts and groups that differ", len(off), 0, 0, not off)]
+
+
 def close_checks(plan) -> list[CheckRow]:
     """Tie-outs of a close, each comparing two computations (computed before booking)."""
     _, total_rows = bridge_frame(plan)
     return (_journal_checks(plan, len(plan.journal)) + _cumulative_checks(plan, len(plan.rows))
-            + _bridge_checks(plan, total_rows) + _cash_checks(plan))
+            + _bridge_checks(plan, total_rows) + _cash_checks(plan) + _tax_checks(plan))
 
 
 def _catch_up_frame(plan) -> pd.DataFrame:

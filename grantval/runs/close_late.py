@@ -49,6 +49,9 @@ class LateEntries:
         What the close says of them.
     cash_booked_before : int
         Cash paid booked through the last closed period end (all grants), cents.
+    tax_booked_before : dict or None
+        Per "account<TAB>group": net of the tax lines booked through the last closed period end,
+        cents (None without tax rates).
     """
 
     cash: pd.DataFrame | None = None
@@ -56,6 +59,7 @@ class LateEntries:
     stored: dict = field(default_factory=dict)
     warnings: list = field(default_factory=list)
     cash_booked_before: int = 0
+    tax_booked_before: dict | None = None
 
 
 def _money_text(cents: int) -> str:
@@ -97,7 +101,7 @@ def late_cash(last, run, figures, removed: pd.DataFrame, out: LateEntries) -> No
                         f"(grants {', '.join(list(catch)[:10])}); closed periods are unchanged")
 
 
-def _nets(lines: pd.DataFrame | None) -> dict:
+def nets(lines: pd.DataFrame | None) -> dict:
     """Per "account<TAB>group": net of debit less credit of tax journal lines, cents."""
     if lines is None or not len(lines):
         return {}
@@ -109,15 +113,17 @@ def _nets(lines: pd.DataFrame | None) -> dict:
     return out
 
 
-def _tax_through(run, day, tax_lines) -> dict:
+def tax_through(run, day, tax_lines=None) -> dict:
     """Nets of the tax lines recomputed from the first period through ``day`` (the close's inputs)."""
     from grantval.attribution.periods import compute_schedule, default_start
 
+    if tax_lines is None:
+        from grantval.runs.close import tax_lines
     if default_start(run.inputs, run.policy) > np.datetime64(day, "D"):
         return {}
     sched = compute_schedule(run.inputs, run.policy, np.datetime64(day, "D"))
     hist = dataclasses.replace(run, schedule=sched, through=str(sched.period_ends[-1]), start=str(sched.window_start))
-    return _nets(tax_lines(hist))
+    return nets(tax_lines(hist))
 
 
 def late_tax(last, run, window_lines, tax_lines, out: LateEntries) -> None:
@@ -130,12 +136,13 @@ def late_tax(last, run, window_lines, tax_lines, out: LateEntries) -> None:
         out.warnings.append(f"close {last.close_id} did not record the tax lines it booked (an earlier grantval): "
                             f"tax effects dated on or before {d0} that changed after their close are not caught up "
                             "by this close")
-    recomputed = _tax_through(run, d0, tax_lines)
+    recomputed = tax_through(run, d0, tax_lines)
     booked = dict(recomputed) if stored is None else {str(k): int(v) for k, v in stored.items()}
+    out.tax_booked_before = dict(booked)
     catch = {k: recomputed.get(k, 0) - booked.get(k, 0) for k in sorted(set(recomputed) | set(booked))}
     catch = {k: v for k, v in catch.items() if v}
     after = dict(booked)
-    for k, v in list(catch.items()) + list(_nets(window_lines).items()):
+    for k, v in list(catch.items()) + list(nets(window_lines).items()):
         after[k] = after.get(k, 0) + v
     out.stored[TAX_KEY] = {k: v for k, v in after.items() if v}
     if not catch:

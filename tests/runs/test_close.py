@@ -608,3 +608,32 @@ def test_late_tax_effect_in_a_closed_period_is_caught_up_in_the_open_period(tmp_
     j3 = res3.plan.journal
     assert not j3["description"].astype(str).str.startswith("Catch-up of closed periods").any()
     assert not res.failed and not res3.failed
+
+
+def test_tax_check_turns_to_fail_when_a_late_tax_effect_is_not_caught_up(tmp_path, monkeypatch):
+    from grantval.runs import close_late
+    from tests.attribution.tax_ledgers import event, grant, ledger, rate
+
+    reg = tmp_path / "r.gvreg"
+    rates = [rate("*", "2027-01-01", "0.21")]
+    C.close(ledger(tmp_path / "a", grants=[grant("G1")], rates=rates), register=reg, through="2027-12-31",
+            start="2027-01-01", period="year")
+    after = ledger(tmp_path / "b", grants=[grant("G1")], rates=rates, events=[event("G1", "2027-06-30", "forfeit", 500)])
+    monkeypatch.setattr(C, "late_tax", lambda last, run, window, lines, out: close_late.late_tax(
+        last, run, window, lines, out) or setattr(out, "tax", None))  # the catch-up lines left out
+    with pytest.raises(Exception, match="Tax lines booked through 2028-12-31"):
+        C.close(after, register=reg, through="2028-12-31", period="year")
+
+
+def test_register_from_an_earlier_grantval_says_late_payments_are_not_caught_up(tmp_path, monkeypatch):
+    reg = tmp_path / "r.gvreg"
+    before, after = _late_exercise_ledgers(tmp_path)
+    record = C._record
+    # a first close that records no cash or tax figures, as closes made before they were recorded
+    monkeypatch.setattr(C, "_record", lambda *a, **k: record(*a[:7]))
+    C.close(before, register=reg, through="2032-12-31", period="year")
+    monkeypatch.setattr(C, "_record", record)
+    res = C.close(after, register=reg, through="2033-12-31", period="year")
+    assert any("close 1 did not record the cash paid it booked" in w for w in res.warnings)
+    assert not res.plan.journal["description"].astype(str).str.startswith("Catch-up of closed periods").any()
+    assert not res.failed
