@@ -236,22 +236,11 @@ def cash_paid(run: ExpenseRun, figures: dict | None = None) -> pd.DataFrame | No
     """Cash paid per cash-settled grant in each period of the run (:data:`journal.CASH_COLUMNS`), or None.
 
     ``figures``: :func:`~grantval.reporting.liability_tables.liability_figures` of the run, when known.
+    (:func:`grantval.reporting.liability_tables.cash_paid_rows`.)
     """
-    from grantval.reporting.liability_tables import liability_figures, paid_in_period
+    from grantval.reporting.liability_tables import cash_paid_rows
 
-    f = liability_figures(run) if figures is None else figures
-    if f is None:
-        return None
-    paid = paid_in_period(f)
-    gi, k = np.nonzero(paid)
-    g = run.ledger.grants
-    types = dict(zip(g["grant_id"], g["award_type"]))
-    pos = f["grants"][gi]
-    ids = np.asarray(run.inputs.grant_id, dtype=object)[pos]
-    return pd.DataFrame({"grant_id": ids, "group": np.asarray(run.inputs.group, dtype=object)[pos],
-                         "award_type": np.array([types.get(i, "*") for i in ids], dtype=object),
-                         "period_end": np.asarray(f["ends"], dtype="datetime64[D]")[k],
-                         "cash_cents": paid[gi, k]})
+    return cash_paid_rows(run, figures)
 
 
 def tax_lines(run: ExpenseRun) -> pd.DataFrame | None:
