@@ -27,6 +27,11 @@ CLOSE_RULES = [
     ("Journal", "Equity-settled awards: debit stock-based compensation expense by group (cost centre), credit "
                 "additional paid-in capital; a negative net amount (a reversal) credits expense and debits paid-in "
                 "capital. Account names from the ledger's accounts table, else the defaults."),
+    ("Payments and tax effects of closed periods", "Cash paid to settle cash-settled awards and tax effects dated "
+                "in an already closed period that the close of that period did not book (entered or changed later) "
+                "are booked in the close's first period, their descriptions starting 'Catch-up of closed periods': "
+                "recomputed through the last closed period end less what the closes recorded as booked through it. "
+                "Closed periods are never restated."),
     ("Register", "The close is one transaction in the close register; its rows are never changed or deleted. "
                  "A reopen marks the latest close superseded, with who, when and why."),
 ]
