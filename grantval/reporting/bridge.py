@@ -71,7 +71,7 @@ def _held(inp, d0, d1, kw, **when):
 
 
 def _ongoing(inp, d0, d1, kw):
-    return _held(without_modifications_after(inp, d0), d0, d1, kw, events_through=d0, estimates_as_of=d0)
+    return _held(without_modifications_after(inp, d0, d1), d0, d1, kw, events_through=d0, estimates_as_of=d0)
 
 
 def _modified(inp, d0, d1, kw):
@@ -90,10 +90,12 @@ def _full(inp, d0, d1, kw):
     return measure(inp, d1, **kw).grant_cost
 
 
-def without_modifications_after(inp, d0):
-    """``inp`` without the modifications dated after ``d0``: their cost layers at 0, accelerations undone.
+def without_modifications_after(inp, d0, d1=None):
+    """``inp`` without the modifications dated after ``d0`` (through ``d1``): layers at 0, accelerations undone.
 
-    Returns ``inp`` itself when the ledger has no modification after ``d0``.  The copy shares the
+    Modifications dated after ``d1`` change nothing at ``d1`` (their layers have not started and their
+    accelerations are not reached), so they are kept.  Returns ``inp`` itself when the ledger has no
+    modification in the interval.  The copy shares the
     liability engine and other cost hooks (they do not see modifications), not the quantities memo
     (vest dates differ).
     """
@@ -102,17 +104,20 @@ def without_modifications_after(inp, d0):
     from grantval.attribution.layers import CostLayers
 
     day = np.datetime64(d0, "D")
+    end = np.datetime64("9999-12-31") if d1 is None else np.datetime64(d1, "D")
     lay = inp.layers
-    late = (lay.kind == "modification") & (np.asarray(lay.start, dtype="datetime64[D]") > day)
+    start = np.asarray(lay.start, dtype="datetime64[D]")
+    late = (lay.kind == "modification") & (start > day) & (start <= end)
     vest = np.asarray(inp.t_vest, dtype="datetime64[D]")
     undone = vest.copy()
     values = getattr(inp.modifications, "values", None)
     if values is not None:
         t = values.terms
-        when = t.date[values.p_mod]
-        for j in np.argsort(when, kind="stable")[::-1]:  # the earliest acceleration after d0 is applied last
-            if t.accelerate[values.p_mod[j]] and when[j] > day:
-                undone[values.p_tranche[j]] = values.vest_before[j]
+        when = np.asarray(t.date, dtype="datetime64[D]")[values.p_mod]
+        sel = np.flatnonzero(t.accelerate[values.p_mod] & (when > day) & (when <= end))
+        order = sel[np.lexsort((when[sel], values.p_tranche[sel]))]  # by tranche, then date
+        tranche, first = np.unique(values.p_tranche[order], return_index=True)
+        undone[tranche] = values.vest_before[order[first]]  # in force before the earliest such acceleration
     if not late.any() and np.array_equal(undone, vest):
         return inp
     layers = CostLayers(lay.tranche, np.where(late, 0.0, lay.fair_value), lay.start, lay.set_id, lay.kind)
