@@ -163,8 +163,8 @@ def _cash_checks(plan) -> list[CheckRow]:
     ledger = cash_from_ledger(plan.run, np.datetime64("1900-01-01"), np.datetime64(plan.run.through, "D"))
     b = int(np.floor(ledger[engine.cash] * 100.0 + 0.5).sum())
     n = int(engine.cash.sum())
-    return [CheckRow(f"Cash paid to settle cash-settled awards booked through {plan.run.through} (earlier closes + "
-                     "this close's cash lines) = cash paid from the ledger's events", a / 100.0, b / 100.0,
+    return [CheckRow(f"Cash paid booked through {plan.run.through} (earlier closes + this close) = cash paid from "
+                     "the events", a / 100.0, b / 100.0,
                      round(0.01 * n + 0.005, 2), abs(a - b) <= n)]
 
 
@@ -188,8 +188,8 @@ def _tax_checks(plan) -> list[CheckRow]:
         booked[f"{acct}\t{grp}"] = booked.get(f"{acct}\t{grp}", 0) + int(dr) - int(cr)
     fresh = tax_through(plan.run, plan.run.through)
     off = [k for k in set(booked) | set(fresh) if booked.get(k, 0) != fresh.get(k, 0)]
-    return [CheckRow(f"Tax lines booked through {plan.run.through} (earlier closes + this close) = tax lines "
-                     "recomputed from the first period: accounts and groups that differ", len(off), 0, 0, not off)]
+    return [CheckRow(f"Tax lines booked through {plan.run.through} (earlier closes + this close) vs recomputed: "
+                     "accounts differing", len(off), 0, 0, not off)]
 
 
 def close_checks(plan) -> list[CheckRow]:

@@ -564,7 +564,7 @@ def test_late_cash_payment_in_a_closed_period_is_caught_up_in_the_open_period(tm
     # the closed close is unchanged
     pd.testing.assert_frame_equal(booked(reg, 1), closed_rows)
     pd.testing.assert_frame_equal(R.open_register(reg, readonly=True).journal(1), closed_journal)
-    assert not res.failed and any(c.name.startswith("Cash paid to settle") and c.tool_pass for c in res.checks)
+    assert not res.failed and any(c.name.startswith("Cash paid booked through") and c.tool_pass for c in res.checks)
 
 
 def test_cash_check_turns_to_fail_when_a_late_payment_is_not_caught_up(tmp_path, monkeypatch):
@@ -575,7 +575,7 @@ def test_cash_check_turns_to_fail_when_a_late_payment_is_not_caught_up(tmp_path,
     C.close(before, register=reg, through="2032-12-31", period="year")
     monkeypatch.setattr(C, "late_cash", lambda last, run, figures, removed, out: close_late.late_cash(
         last, run, figures, removed, out) or setattr(out, "cash", None))  # the catch-up lines left out
-    with pytest.raises(Exception, match="Cash paid to settle cash-settled awards booked through 2033-12-31"):
+    with pytest.raises(Exception, match="Cash paid booked through 2033-12-31"):
         C.close(after, register=reg, through="2033-12-31", period="year")
     assert len(booked(reg)) == len(booked(reg, 1))  # nothing booked
 
