@@ -68,14 +68,14 @@ def _money_text(cents: int) -> str:
 
 def late_cash(last, run, figures, removed: pd.DataFrame, out: LateEntries) -> None:
     """Cash catch-up per grant (in place into ``out``); ``figures`` from ``liability_figures(run)``."""
-    if figures is None:
+    stored = None if last is None else last.options.get(CASH_KEY)
+    if figures is None and not stored:  # no cash-settled grant now, and none paid before
         return
     from grantval.reporting.liability_tables import paid_in_period
 
-    pos = figures["grants"]
+    pos = figures["grants"] if figures is not None else np.zeros(0, dtype=np.int64)
     ids = np.asarray(run.inputs.grant_id, dtype=object)[pos]
-    recomputed = dict(zip(ids, figures["opening_cash"].astype(np.int64).tolist()))
-    stored = None if last is None else last.options.get(CASH_KEY)
+    recomputed = dict(zip(ids, figures["opening_cash"].astype(np.int64).tolist())) if figures is not None else {}
     d0 = np.datetime64(run.schedule.window_start, "D") - DAY
     if last is not None and stored is None:
         out.warnings.append(f"close {last.close_id} did not record the cash paid it booked (an earlier grantval): "
@@ -88,7 +88,8 @@ def late_cash(last, run, figures, removed: pd.DataFrame, out: LateEntries) -> No
     types = dict(zip(run.ledger.grants["grant_id"], run.ledger.grants["award_type"]))
     catch = {g: recomputed.get(g, 0) - booked.get(g, 0) for g in sorted(set(recomputed) | set(booked))}
     catch = {g: c for g, c in catch.items() if c}
-    total = np.column_stack([figures["opening_cash"], paid_in_period(figures)]).sum(axis=1)
+    total = (np.column_stack([figures["opening_cash"], paid_in_period(figures)]).sum(axis=1) if figures is not None
+             else np.zeros(0))
     out.stored[CASH_KEY] = {g: int(c) for g, c in zip(ids, total.astype(np.int64)) if c}
     if not catch:
         return
@@ -96,9 +97,10 @@ def late_cash(last, run, figures, removed: pd.DataFrame, out: LateEntries) -> No
     out.cash = pd.DataFrame({"grant_id": list(catch), "group": [groups.get(g) for g in catch],
                              "award_type": [types.get(g, "*") for g in catch], "period_end": first,
                              "cash_cents": np.array(list(catch.values()), dtype=np.int64)})
-    out.warnings.append(f"cash paid of {_money_text(sum(catch.values()))} dated on or before {d0} (closed periods) "
-                        f"was not booked in its period: booked as a catch-up in the period ending {first} "
-                        f"(grants {', '.join(list(catch)[:10])}); closed periods are unchanged")
+    out.warnings.append(f"cash paid dated on or before {d0} (closed periods) differs from the cash booked through it by "
+                        f"{_money_text(sum(catch.values()))} (payments entered or changed after their close, grants "
+                        f"{', '.join(list(catch)[:10])}): booked as a catch-up in the period ending {first}; closed "
+                        "periods are unchanged")
 
 
 def nets(lines: pd.DataFrame | None) -> dict:

@@ -560,7 +560,8 @@ def test_late_cash_payment_in_a_closed_period_is_caught_up_in_the_open_period(tm
     assert own["debit_cents"].sum() == 28_000_000
     # expense catch-up of 2032: 25,300 x 21.40 + 225,000 - 40,300 x 21.40 = -96,000.00
     assert int(res.plan.rows["catch_up_cents"].sum()) == -9_600_000
-    assert any("cash paid of 225,000.00 dated on or before 2032-12-31" in w for w in res.warnings)
+    assert any("cash paid dated on or before 2032-12-31 (closed periods) differs from the cash booked through it by "
+               "225,000.00" in w for w in res.warnings)
     # the closed close is unchanged
     pd.testing.assert_frame_equal(booked(reg, 1), closed_rows)
     pd.testing.assert_frame_equal(R.open_register(reg, readonly=True).journal(1), closed_journal)
@@ -637,3 +638,19 @@ def test_register_from_an_earlier_grantval_says_late_payments_are_not_caught_up(
     assert any("close 1 did not record the cash paid it booked" in w for w in res.warnings)
     assert not res.plan.journal["description"].astype(str).str.startswith("Catch-up of closed periods").any()
     assert not res.failed
+
+
+def test_payment_removed_from_a_closed_period_is_reversed_in_the_open_period(tmp_path):
+    from tests.attribution.cash_ledgers import IFRS_VALUES, ifrs_example_12
+
+    # the other way round: the 2032-01-01 exercise (225,000.00, as above) was booked, then taken out
+    # of the ledger (entered in error): the next close books Cr liability / Dr cash 225,000.00
+    reg = tmp_path / "r.gvreg"
+    before, after = _late_exercise_ledgers(tmp_path)
+    C.close(after, register=reg, through="2032-12-31", period="year")
+    res = C.close(before, register=reg, through="2033-12-31", period="year")
+    late = res.plan.journal[res.plan.journal["description"].str.startswith("Catch-up of closed periods")]
+    assert late.loc[late["account"] == "Cash", "debit_cents"].sum() == 22_500_000
+    assert late.loc[late["account"] == "Share-based payment liability", "credit_cents"].sum() == 22_500_000
+    assert int(res.plan.rows["catch_up_cents"].sum()) == 9_600_000 and not res.failed
+    assert any("differs from the cash booked through it by -225,000.00" in w for w in res.warnings)
