@@ -22,6 +22,7 @@ Rules (IFRS 2.30-33 and IG Example 12; ASC 718-30-35-1 to 35-3; see docs/cash-se
 
 from __future__ import annotations
 
+from contextlib import contextmanager
 from dataclasses import dataclass
 
 import numpy as np
@@ -112,6 +113,10 @@ class LiabilityEngine:
         self._price_memo: dict[int, np.ndarray] = {}
         #: forecasts: on dates after this day number, events after it are ignored and fair values held at it
         self.hold_after: int | None = None
+        #: the bridge (values-only hold): on dates after this day number, events still count but the fair
+        #: values per unit are those of this day for grants granted by it, and settlements after it are
+        #: paid at those values (the carrying amount), so that only a change of value moves the cost
+        self.values_held_at: int | None = None
 
     def _removed(self, cut: int) -> np.ndarray:
         """Vested units per tranche exercised, expired or cancelled through day ``cut``.
@@ -138,18 +143,58 @@ class LiabilityEngine:
             out[on] = known[want]
         return out
 
-    def _cash_paid(self, dn: int, cut: int, outstanding: np.ndarray, vested: np.ndarray) -> np.ndarray:
-        """Cash paid per grant through day ``dn`` (events through ``cut``)."""
+    def _cash_paid(self, dn: int, cut: int, outstanding: np.ndarray, vested: np.ndarray,
+                   vday: int | None = None) -> np.ndarray:
+        """Cash paid per grant through day ``dn`` (events through ``cut``).
+
+        With ``vday`` (values-only hold), settlements after ``vday`` of grants granted by it are
+        counted at the fair value per unit of ``vday`` instead of the cash paid.
+        """
         m = self.c_day <= cut
-        paid = np.bincount(self.gi[self.c_t[m]], weights=self.c_cash[m], minlength=self.n_g).astype(float)
+        amount = self.c_cash
+        if vday is not None:
+            late = m & (self.c_day > vday) & (self.c_kind == "exercise") & (self.grant_day[self.gi[self.c_t]] <= vday)
+            if late.any():
+                amount = amount.copy()
+                amount[late] = self.c_qty[late] * self._held_values(vday, self.c_t[late])
+        paid = np.bincount(self.gi[self.c_t[m]], weights=amount[m], minlength=self.n_g).astype(float)
         settled = np.flatnonzero(self.unit_t & vested & (outstanding > 0))
         if settled.size:
             days = self.t_vest[settled]
             if self.hold_after is not None:
                 days = np.minimum(days, self.hold_after)
             price = self._prices(settled, days)
+            if vday is not None:
+                late = (days > vday) & (self.grant_day[self.gi[settled]] <= vday)
+                if late.any():
+                    price[late] = self._held_values(vday, settled[late])
             paid += np.bincount(self.gi[settled], weights=outstanding[settled] * price, minlength=self.n_g)
         return paid
+
+    def _held_values(self, vday: int, tranches: np.ndarray) -> np.ndarray:
+        """Fair value per unit on day ``vday`` of each of ``tranches`` (values-only hold)."""
+        grants = np.zeros(self.n_g, dtype=bool)
+        grants[self.gi[tranches]] = True
+        return self.values.values_at(np.datetime64(vday, "D"), grants).tranche_value[tranches]
+
+    def _unit_values(self, day: int, need: np.ndarray, vday: int | None):
+        """Per tranche fair value per unit (where ``need``) and per grant method, at ``day``.
+
+        With ``vday``, grants granted by ``vday`` take the values of ``vday`` (values-only hold).
+        """
+        fv = np.zeros(self.n_t)
+        method = np.full(self.n_g, "", dtype=object)
+        early = self.grant_day <= (vday if vday is not None else np.iinfo(np.int64).min)
+        for when, part in ((day, ~early), (vday, early)):
+            sel = need & part[self.gi]
+            if not sel.any():
+                continue
+            grants = np.zeros(self.n_g, dtype=bool)
+            grants[self.gi[sel]] = True
+            got = self.values.values_at(np.datetime64(when, "D"), grants)
+            fv[sel] = got.tranche_value[sel]
+            method[grants] = got.method[grants]
+        return fv, method
 
     def state(self, dn: int, n_exp, outstanding, vested, elapsed, attribution: str) -> LiabilityState:
         """Liability figures at day number ``dn`` from the engine's per-tranche quantities.
@@ -160,6 +205,8 @@ class LiabilityEngine:
         """
         held = self.hold_after is not None and dn > self.hold_after
         cut = self.hold_after if held else dn
+        vday = self.values_held_at
+        vday = vday if (vday is not None and not held and dn > vday) else None
         outstanding = np.asarray(outstanding, dtype=float)
         left = outstanding - self._removed(cut)
         live = self.cash_t & (self.grant_day[self.gi] <= dn) & (dn < self.expiry_day[self.gi])
@@ -172,14 +219,7 @@ class LiabilityEngine:
                                      self.last_vest.astype("datetime64[D]"))
             frac = award[self.gi]
         need = units > 0
-        fv = np.zeros(self.n_t)
-        method = np.full(self.n_g, "", dtype=object)
-        if need.any():
-            grants = np.zeros(self.n_g, dtype=bool)
-            grants[self.gi[need]] = True
-            got = self.values.values_at(np.datetime64(cut if held else dn, "D"), grants)
-            fv[need] = got.tranche_value[need]
-            method[grants] = got.method[grants]
+        fv, method = self._unit_values(cut if held else dn, need, vday)
         full = fv * units
         if attribution == "graded":
             liability = np.bincount(self.gi, weights=full * frac, minlength=self.n_g)
@@ -187,7 +227,7 @@ class LiabilityEngine:
             spread = np.bincount(self.gi, weights=full * frac, minlength=self.n_g)
             floor = np.bincount(self.gi, weights=np.where(vested, full, 0.0), minlength=self.n_g)
             liability = np.maximum(spread, floor)
-        cash = self._cash_paid(dn, cut, outstanding, np.asarray(vested, dtype=bool))
+        cash = self._cash_paid(dn, cut, outstanding, np.asarray(vested, dtype=bool), vday)
         total = np.bincount(self.gi, weights=full, minlength=self.n_g)
         u_g = np.bincount(self.gi, weights=units, minlength=self.n_g)
         with np.errstate(invalid="ignore", divide="ignore"):
@@ -253,6 +293,28 @@ def liability_engine(inp: ExpenseInputs) -> LiabilityEngine | None:
         if isinstance(owner, LiabilityEngine):
             return owner
     return None
+
+
+@contextmanager
+def values_held_at(inp: ExpenseInputs, day):
+    """Within the block, the liability engine of ``inp`` holds fair values (not events) at ``day``.
+
+    On dates after ``day`` the engine counts every event through the date but values the units of
+    grants granted by ``day`` at their fair values per unit of ``day``, and counts their settlements
+    after ``day`` at those values (the carrying amount per unit). The cost so measured differs from the
+    full cost only by the remeasurement (the bridge's remeasurement line). Without a liability engine
+    the block changes nothing.
+    """
+    engine = liability_engine(inp)
+    if engine is None:
+        yield
+        return
+    before = engine.values_held_at
+    engine.values_held_at = int(np.datetime64(day, "D").astype(np.int64))
+    try:
+        yield
+    finally:
+        engine.values_held_at = before
 
 
 def hold_values_after(inp: ExpenseInputs, through) -> None:

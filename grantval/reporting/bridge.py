@@ -7,16 +7,21 @@ per grant at ``d1`` under some of the period's news; the states run from
 states, each rounded per grant to cents, so the lines add up exactly:
 
 - awards granted in the period: ``cum(d1)`` of grants granted after ``d0``;
-- ongoing cost of earlier awards: ``cum(d1; events through d0, estimates as of d0) - cum(d0)``;
-- forfeitures and cancellations: ``cum(d1; events through d1, estimates as of d0)`` less the previous state;
-- changes of estimate: ``cum(d1)`` less the previous state;
+- ongoing cost of earlier awards: ``cum(d1; events through d0, estimates as of d0, fair values of
+  liabilities as of d0, no modification dated after d0) - cum(d0)``;
+- modifications: the same state with the modifications dated in the period (their incremental cost
+  layers and accelerations) less the previous state (ledgers with modifications);
+- forfeitures and cancellations: events through ``d1`` (liability values still as of ``d0``);
+- changes of estimate: estimates as of ``d1`` (liability values still as of ``d0``);
+- remeasurement of cash-settled liabilities: ``cum(d1)`` less the previous state: the change of the
+  fair value per unit from ``d0`` to ``d1``, and to the cash paid for units settled in the period
+  (ledgers with cash-settled awards; :func:`grantval.attribution.liability.values_held_at`);
 - catch-ups of closed periods: from the close (recomputed through the last
   closed period end less booked through it), in the close's first period.
 
-A feature (modifications, remeasurement of liabilities ...) inserts its own
-:class:`BridgeStep` into :data:`STEPS` before the last one: a state function
-returning the cumulative cost at ``d1`` with its news in and the later steps'
-news out.  The last step must be the full recomputation ``cum(d1)``.
+A feature inserts its own :class:`BridgeStep` into :data:`STEPS` before the last one: a state
+function returning the cumulative cost at ``d1`` with its news in and the later steps' news out.
+The last step must be the full recomputation ``cum(d1)``.
 """
 
 from __future__ import annotations
@@ -28,6 +33,7 @@ import numpy as np
 import pandas as pd
 
 from grantval.attribution.engine import measure
+from grantval.attribution.liability import liability_engine, values_held_at
 from grantval.attribution.periods import to_cents
 
 GRANTED = "Awards granted in the period"
@@ -53,29 +59,112 @@ class BridgeStep:
     label: str
     how: str
     state: Callable
+    #: ``applies(inputs) -> bool``: the line is shown for these inputs (a feature's line only when the
+    #: ledger uses the feature); a step left out must change nothing (its state equals the previous one)
+    applies: Callable = lambda inp: True
+
+
+def _held(inp, d0, d1, kw, **when):
+    """Cumulative cost at ``d1`` with the liabilities' fair values held at ``d0`` (events as ``when``)."""
+    with values_held_at(inp, d0):
+        return measure(inp, d1, **when, **kw).grant_cost
 
 
 def _ongoing(inp, d0, d1, kw):
-    return measure(inp, d1, events_through=d0, estimates_as_of=d0, **kw).grant_cost
+    return _held(without_modifications_after(inp, d0, d1), d0, d1, kw, events_through=d0, estimates_as_of=d0)
+
+
+def _modified(inp, d0, d1, kw):
+    return _held(inp, d0, d1, kw, events_through=d0, estimates_as_of=d0)
 
 
 def _events(inp, d0, d1, kw):
-    return measure(inp, d1, estimates_as_of=d0, **kw).grant_cost
+    return _held(inp, d0, d1, kw, estimates_as_of=d0)
+
+
+def _estimates(inp, d0, d1, kw):
+    return _held(inp, d0, d1, kw)
 
 
 def _full(inp, d0, d1, kw):
     return measure(inp, d1, **kw).grant_cost
 
 
+def without_modifications_after(inp, d0, d1=None):
+    """``inp`` without the modifications dated after ``d0`` (through ``d1``): layers at 0, accelerations undone.
+
+    Modifications dated after ``d1`` change nothing at ``d1`` (their layers have not started and their
+    accelerations are not reached), so they are kept.  Returns ``inp`` itself when the ledger has no
+    modification in the interval.  The copy shares the
+    liability engine and other cost hooks (they do not see modifications), not the quantities memo
+    (vest dates differ).
+    """
+    import dataclasses
+
+    from grantval.attribution.layers import CostLayers
+
+    day = np.datetime64(d0, "D")
+    end = np.datetime64("9999-12-31") if d1 is None else np.datetime64(d1, "D")
+    lay = inp.layers
+    start = np.asarray(lay.start, dtype="datetime64[D]")
+    late = (lay.kind == "modification") & (start > day) & (start <= end)
+    vest = np.asarray(inp.t_vest, dtype="datetime64[D]")
+    undone = vest.copy()
+    values = getattr(inp.modifications, "values", None)
+    if values is not None:
+        t = values.terms
+        when = np.asarray(t.date, dtype="datetime64[D]")[values.p_mod]
+        sel = np.flatnonzero(t.accelerate[values.p_mod] & (when > day) & (when <= end))
+        order = sel[np.lexsort((when[sel], values.p_tranche[sel]))]  # by tranche, then date
+        tranche, first = np.unique(values.p_tranche[order], return_index=True)
+        undone[tranche] = values.vest_before[order[first]]  # in force before the earliest such acceleration
+    if not late.any() and np.array_equal(undone, vest):
+        return inp
+    layers = CostLayers(lay.tranche, np.where(late, 0.0, lay.fair_value), lay.start, lay.set_id, lay.kind)
+    return dataclasses.replace(inp, layers=layers, t_vest=undone, memo=None, _prep=None)
+
+
+def _has_modifications(inp) -> bool:
+    return inp.modifications is not None
+
+
+def _has_liabilities(inp) -> bool:
+    return liability_engine(inp) is not None
+
+
+MODIFICATIONS = "Modifications (incremental cost)"
+REMEASUREMENT = "Remeasurement of cash-settled liabilities"
+
 #: the lines for awards granted before the period, in order; the last is the full recomputation
 STEPS: list[BridgeStep] = [
     BridgeStep("Ongoing cost of earlier awards",
-               "cum(d1; events through d0, estimates as of d0) - cum(d0), for awards granted by d0", _ongoing),
+               "cum(d1; events through d0, estimates as of d0, liabilities at fair values of d0, no modification "
+               "dated after d0) - cum(d0), for awards granted by d0", _ongoing),
+    BridgeStep(MODIFICATIONS,
+               "the same state with the modifications dated after d0 through d1 (their incremental cost layers, "
+               "Type III reversals and accelerations), less the previous state (ASC 718-20-35-3; IFRS 2.27, B43)",
+               _modified, _has_modifications),
     BridgeStep("Forfeitures and cancellations",
-               "cum(d1; events through d1, estimates as of d0) - cum(d1; events through d0, estimates as of d0)",
-               _events),
-    BridgeStep("Changes of estimate", "cum(d1) - cum(d1; events through d1, estimates as of d0)", _full),
+               "cum(d1; events through d1, estimates as of d0, liabilities at fair values of d0) less the "
+               "previous state", _events),
+    BridgeStep("Changes of estimate",
+               "cum(d1; liabilities at fair values of d0) - cum(d1; events through d1, estimates as of d0, "
+               "liabilities at fair values of d0)", _estimates),
+    BridgeStep(REMEASUREMENT,
+               "cum(d1) - cum(d1; liabilities at fair values of d0): the change of the fair value per unit of "
+               "cash-settled awards from d0 to d1, and to the cash paid for units settled in the period "
+               "(IFRS 2.30, 33; ASC 718-30-35-3)", _full, _has_liabilities),
 ]
+
+
+def active_steps(inp, steps: list[BridgeStep] | None = None) -> list[BridgeStep]:
+    """The steps shown for ``inp``: those whose feature the ledger uses.
+
+    A step left out changes nothing for such inputs (no modification; no liability engine, so that
+    holding liability values is a no-op), so the last step shown is still the full recomputation.
+    """
+    steps = STEPS if steps is None else steps
+    return [s for s in steps if s.applies(inp)]
 
 
 def notes() -> list[tuple[str, str]]:
@@ -146,9 +235,9 @@ def compute_bridge(inp, policy, start, period_ends, opening_cents, cumulative_ce
     previous_cents : int, optional
         Booked expense of the period before the first (from the register).
     steps : list of BridgeStep, optional
-        Default :data:`STEPS`.
+        Default :data:`STEPS`; only the steps that apply to ``inp`` are shown (:func:`active_steps`).
     """
-    steps = STEPS if steps is None else steps
+    steps = active_steps(inp, steps)
     ends = np.asarray(period_ends, dtype="datetime64[D]")
     kw = dict(attribution=policy.attribution, forfeitures=policy.forfeitures)
     n, p = len(inp.grant_id), len(ends)

@@ -49,6 +49,11 @@ class JournalResults:
 
     cash_paid: pd.DataFrame | None = None
     tax_lines: pd.DataFrame | None = None
+    #: cash paid dated in closed periods and not booked there (:data:`CASH_COLUMNS`, either sign), booked
+    #: as a catch-up in the close's first period (``grantval.runs.close_late``)
+    cash_catch_up: pd.DataFrame | None = None
+    #: tax lines of closed periods not booked there (same columns as ``tax_lines``), catch-up likewise
+    tax_catch_up: pd.DataFrame | None = None
 
 
 def _net_lines(part: pd.DataFrame, keys: list[str]) -> pd.DataFrame:
@@ -126,11 +131,23 @@ def cash_payment_lines(rows: pd.DataFrame, accounts, results: JournalResults | N
 
     In the period of the settlement (exercise of a cash SAR, vesting of a cash unit): the
     liability is settled by the payment (IFRS 2.30-33, IG Example 12; ASC 718-30-35).  The
-    amounts are ``results.cash_paid`` (none without it); the lines balance per period.
+    amounts are ``results.cash_paid`` (none without it); the lines balance per period.  Cash paid
+    dated in a closed period and not booked then (``results.cash_catch_up``) is booked the same way
+    in the close's first period, its descriptions starting "Catch-up of closed periods"; a negative
+    catch-up (a payment removed from a closed period) swaps debit and credit.
     """
-    cash = None if results is None else results.cash_paid
-    if cash is None or not len(cash):
-        return pd.DataFrame(columns=list(LINE_COLUMNS))
+    parts = [] if results is None else [(results.cash_paid, ""), (results.cash_catch_up, _LATE_CASH)]
+    out = [line for cash, what in parts if cash is not None and len(cash) for line in _payment_lines(cash, accounts, what)]
+    return pd.DataFrame(out, columns=list(LINE_COLUMNS))
+
+
+#: words of the description of every cash-account line (the close's cash check finds them by it)
+CASH_SIDE = "Cash paid to settle cash-settled awards"
+_LATE_CASH = "Catch-up of closed periods (dated on or before the last closed period end, not booked then): "
+
+
+def _payment_lines(cash: pd.DataFrame, accounts, what: str) -> list[tuple]:
+    """Dr liability by group / Cr cash per period of ``cash`` (a negative net swaps the sides)."""
     part = cash.copy()
     award = part["award_type"].to_numpy(dtype=object)
     part["liability_account"] = accounts.accounts(award, "liability")
@@ -141,14 +158,17 @@ def cash_payment_lines(rows: pd.DataFrame, accounts, results: JournalResults | N
         day = np.datetime64(pe, "D")
         dr = per.groupby(["group", "liability_account"], sort=True)["cash_cents"].sum().reset_index()
         for g, acct, amt in zip(dr["group"], dr["liability_account"], dr["cash_cents"]):
-            where = f", group {g}" if g else ""
-            out.append((pe, acct, g or None, int(amt), 0,
-                        f"Settlement of cash-settled awards (cash paid), period ending {day}{where}", "cash"))
+            where, amt = (f", group {g}" if g else ""), int(amt)
+            if amt:
+                out.append((pe, acct, g or None, max(amt, 0), max(-amt, 0),
+                            f"{what}Settlement of cash-settled awards (cash paid), period ending {day}{where}", "cash"))
         cr = per.groupby("cash_account", sort=True)["cash_cents"].sum().reset_index()
         for acct, amt in zip(cr["cash_account"], cr["cash_cents"]):
-            out.append((pe, acct, None, 0, int(amt),
-                        f"Cash paid to settle cash-settled awards, period ending {day}", "cash"))
-    return pd.DataFrame(out, columns=list(LINE_COLUMNS))
+            amt = int(amt)
+            if amt:
+                out.append((pe, acct, None, max(-amt, 0), max(amt, 0),
+                            f"{what}{CASH_SIDE}, period ending {day}", "cash"))
+    return out
 
 
 def tax_effect_lines(rows: pd.DataFrame, accounts, results: JournalResults | None = None) -> pd.DataFrame:
@@ -157,9 +177,10 @@ def tax_effect_lines(rows: pd.DataFrame, accounts, results: JournalResults | Non
     The accounts and amounts are those of ``tax_journal.csv`` of the expense run (ASC 718-740;
     IAS 12.68A-68C); each pair balances, so the period balance check covers them.
     """
-    tax = None if results is None else results.tax_lines
-    if tax is None or not len(tax):
+    parts = [] if results is None else [t for t in (results.tax_lines, results.tax_catch_up) if t is not None and len(t)]
+    if not parts:
         return pd.DataFrame(columns=list(LINE_COLUMNS))
+    tax = pd.concat(parts, ignore_index=True)
     group = tax["group"].astype(object)
     return pd.DataFrame({
         "period_end": tax["period_end"].to_numpy("datetime64[D]"), "account": tax["account"].to_numpy(dtype=object),

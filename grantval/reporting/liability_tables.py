@@ -17,15 +17,17 @@ from grantval.attribution.liability import LiabilityEngine, liability_engine
 from grantval.attribution.periods import to_cents
 from grantval.dates import DAY
 from grantval.io.xlsx.sheet import Formula, Sheet
+from grantval.ledger.ext.accounts import DEFAULT_ACCOUNTS
 from grantval.reporting.checks import CheckRow
 from grantval.reporting.formats import MONEY, UNIT
 
 #: columns of liabilities.csv
 COLUMNS = ("grant_id", "period_end", "liability", "cash_paid", "fair_value_per_unit", "fair_value_source")
-#: accounts of the journal lines
-EXPENSE_ACCOUNT = "Share-based compensation expense"
-LIABILITY_ACCOUNT = "Share-based payment liability (cash-settled)"
-CASH_ACCOUNT = "Cash"
+#: default accounts of the journal lines (the close's: ``ledger/ext/accounts.DEFAULT_ACCOUNTS``; a ledger's
+#: ``accounts`` table renames them)
+EXPENSE_ACCOUNT = DEFAULT_ACCOUNTS["expense"]
+LIABILITY_ACCOUNT = DEFAULT_ACCOUNTS["liability"]
+CASH_ACCOUNT = DEFAULT_ACCOUNTS["cash"]
 
 
 def _states(run, engine: LiabilityEngine, dates) -> list:
@@ -129,33 +131,59 @@ def liability_disclosure(run, figures: dict | None = None) -> pd.DataFrame:
     return pd.DataFrame({"item": [i for i, _ in items], "value": [float(v) for _, v in items]})
 
 
-def liability_journal(run, figures: dict | None = None) -> pd.DataFrame:
-    """Journal lines of the close for cash-settled awards, by period and group.
+def cash_paid_rows(run, figures: dict | None = None) -> pd.DataFrame | None:
+    """Cash paid per cash-settled grant in each period of the run, cents, or None without cash grants.
 
-    Expense: debit expense, credit the liability account (reversed when negative); cash paid:
-    debit the liability, credit cash.  Columns ``period_end``, ``account``, ``group``, ``debit``,
-    ``credit``, ``description``.
+    Columns :data:`grantval.reporting.journal.CASH_COLUMNS`, one row per grant and period with a
+    payment (:func:`paid_in_period`).  The close journalises these (``JournalResults.cash_paid``).
     """
     f = liability_figures(run) if figures is None else figures
-    cols = ["period_end", "account", "group", "debit", "credit", "description"]
     if f is None:
-        return pd.DataFrame({c: [] for c in cols})
-    groups = run.inputs.group[f["grants"]]
-    expense = run.schedule.expense_cents[f["grants"]]
+        return None
     paid = paid_in_period(f)
-    rows = []
-    for k, end in enumerate(f["ends"]):
-        for grp in sorted(set(groups)):
-            m = groups == grp
-            e, c = int(expense[m, k].sum()), int(paid[m, k].sum())
-            if e:
-                dr, cr = (EXPENSE_ACCOUNT, LIABILITY_ACCOUNT) if e > 0 else (LIABILITY_ACCOUNT, EXPENSE_ACCOUNT)
-                what = "cash-settled awards: service and remeasurement of the liability"
-                rows += [(end, dr, grp, abs(e) / 100.0, 0.0, what), (end, cr, grp, 0.0, abs(e) / 100.0, what)]
-            if c:
-                what = "cash-settled awards: cash paid on exercise or settlement"
-                rows += [(end, LIABILITY_ACCOUNT, grp, c / 100.0, 0.0, what), (end, CASH_ACCOUNT, grp, 0.0, c / 100.0, what)]
-    return pd.DataFrame(rows, columns=cols)
+    gi, k = np.nonzero(paid)
+    g = run.ledger.grants
+    types = dict(zip(g["grant_id"], g["award_type"]))
+    pos = f["grants"][gi]
+    ids = np.asarray(run.inputs.grant_id, dtype=object)[pos]
+    return pd.DataFrame({"grant_id": ids, "group": np.asarray(run.inputs.group, dtype=object)[pos],
+                         "award_type": np.array([types.get(i, "*") for i in ids], dtype=object),
+                         "period_end": np.asarray(f["ends"], dtype="datetime64[D]")[k],
+                         "cash_cents": paid[gi, k]})
+
+
+def liability_journal(run, figures: dict | None = None) -> pd.DataFrame:
+    """Journal lines of the cash-settled awards of an expense run: a view of the close's journal.
+
+    The lines are :func:`grantval.reporting.journal.build_journal` with the close's cash contributors
+    (``cash_settled_lines``: expense by group against the liability, reversed when negative;
+    ``cash_payment_lines``: cash paid, debit the liability, credit cash) over each period's expense
+    of the cash-settled grants, with the ledger's account names (``accounts`` table, else
+    :data:`EXPENSE_ACCOUNT`, :data:`LIABILITY_ACCOUNT`, :data:`CASH_ACCOUNT`).  No line touches equity.
+
+    Returns
+    -------
+    DataFrame
+        Columns ``period_end``, ``account``, ``group``, ``debit``, ``credit``, ``description``
+        (currency, as ``journal.csv``).
+    """
+    from grantval.ledger.ext.accounts import account_map
+    from grantval.reporting import journal as J
+
+    f = liability_figures(run) if figures is None else figures
+    if f is None:
+        return pd.DataFrame({c: [] for c in ("period_end", "account", "group", "debit", "credit", "description")})
+    pos = f["grants"]
+    expense = run.schedule.expense_cents[pos]
+    gi, k = np.nonzero(expense)
+    award = run.ledger.grants["award_type"].to_numpy(dtype=object)[pos]
+    rows = pd.DataFrame({"grant_id": np.asarray(run.inputs.grant_id, dtype=object)[pos][gi],
+                         "group": np.asarray(run.inputs.group, dtype=object)[pos][gi], "award_type": award[gi],
+                         "settlement": "cash", "period_end": np.asarray(f["ends"], dtype="datetime64[D]")[k],
+                         "booked_cents": expense[gi, k].astype(np.int64), "catch_up_cents": 0})
+    lines = J.build_journal(rows, account_map(run.ledger), [J.cash_settled_lines, J.cash_payment_lines],
+                            J.JournalResults(cash_paid=cash_paid_rows(run, f)))
+    return J.journal_csv_frame(lines)
 
 
 def cash_from_ledger(run, lo, hi) -> np.ndarray:

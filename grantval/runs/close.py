@@ -29,6 +29,7 @@ from grantval.ledger.ext.accounts import account_map
 from grantval.progress import stage
 from grantval.reporting import journal as J
 from grantval.reporting.bridge import Bridge, compute_bridge
+from grantval.runs.close_late import LateEntries, late_cash, late_tax
 from grantval.runs.common import as_day, csv_paths, ledger_inputs
 from grantval.runs.expense import ExpenseRun, expense
 
@@ -69,6 +70,8 @@ class ClosePlan:
         First close with ``--from``: per-grant cost before the register, cents.
     record : CloseRecord
     checks : list of CheckRow
+    late : LateEntries
+        Cash payments and tax effects dated in closed periods and booked as catch-ups.
     """
 
     run: ExpenseRun
@@ -84,6 +87,7 @@ class ClosePlan:
     opening: dict
     record: R.CloseRecord
     checks: list = field(default_factory=list)
+    late: LateEntries = field(default_factory=LateEntries)
 
     @property
     def failed(self) -> list:
@@ -228,23 +232,15 @@ def _rows(run: ExpenseRun, catch_up: np.ndarray, removed: pd.DataFrame) -> pd.Da
     return rows
 
 
-def cash_paid(run: ExpenseRun) -> pd.DataFrame | None:
-    """Cash paid per cash-settled grant in each period of the run (:data:`journal.CASH_COLUMNS`), or None."""
-    from grantval.reporting.liability_tables import liability_figures, paid_in_period
+def cash_paid(run: ExpenseRun, figures: dict | None = None) -> pd.DataFrame | None:
+    """Cash paid per cash-settled grant in each period of the run (:data:`journal.CASH_COLUMNS`), or None.
 
-    f = liability_figures(run)
-    if f is None:
-        return None
-    paid = paid_in_period(f)
-    gi, k = np.nonzero(paid)
-    g = run.ledger.grants
-    types = dict(zip(g["grant_id"], g["award_type"]))
-    pos = f["grants"][gi]
-    ids = np.asarray(run.inputs.grant_id, dtype=object)[pos]
-    return pd.DataFrame({"grant_id": ids, "group": np.asarray(run.inputs.group, dtype=object)[pos],
-                         "award_type": np.array([types.get(i, "*") for i in ids], dtype=object),
-                         "period_end": np.asarray(f["ends"], dtype="datetime64[D]")[k],
-                         "cash_cents": paid[gi, k]})
+    ``figures``: :func:`~grantval.reporting.liability_tables.liability_figures` of the run, when known.
+    (:func:`grantval.reporting.liability_tables.cash_paid_rows`.)
+    """
+    from grantval.reporting.liability_tables import cash_paid_rows
+
+    return cash_paid_rows(run, figures)
 
 
 def tax_lines(run: ExpenseRun) -> pd.DataFrame | None:
@@ -264,11 +260,13 @@ def _previous_booked(reg: R.Register, last: R.Close | None) -> int | None:
     return int(rows.loc[rows["period_end"].to_numpy("datetime64[D]") == end, "booked_cents"].sum())
 
 
-def _record(run: ExpenseRun, register, through, start, opening: dict, command: str, user) -> R.CloseRecord:
+def _record(run: ExpenseRun, register, through, start, opening: dict, command: str, user,
+            stored: dict | None = None) -> R.CloseRecord:
     options = {"through": str(through), "from": None if start is None else str(start), "register": str(register),
                "ledger": run.ledger.location, "command": command or "(Python API)"}
     if opening:
         options[OPENING_KEY] = opening
+    options.update(stored or {})
     return R.CloseRecord(
         through=str(run.schedule.period_ends[-1]), period_ends=[str(d) for d in run.schedule.period_ends],
         ledger_digests={p: d for p, d in run.ledger.files}, policies=dataclasses.asdict(run.policy),
@@ -308,16 +306,29 @@ def plan_close(reg: R.Register, location, *, through, start=None, period=None, s
         before, opening, removed = _booked_before(reg, run.inputs, last, sched.opening_cents)
         catch_up = sched.opening_cents - before
         rows = _rows(run, catch_up, removed)
-        journal = J.build_journal(rows, account_map(run.ledger), results=J.JournalResults(cash_paid(run), tax_lines(run)))
+        late, results = _settlements_and_tax(run, last, removed)
+        journal = J.build_journal(rows, account_map(run.ledger), results=results)
         catch_totals = np.zeros(len(sched.period_ends), dtype=np.int64)
         catch_totals[0] = int(rows["catch_up_cents"].sum())
         bridge = compute_bridge(run.inputs, run.policy, sched.window_start, sched.period_ends, sched.opening_cents,
                                 sched.cumulative_cents, catch_totals, _previous_booked(reg, last))
-    record = _record(run, reg.path, through_d, start_d, opening, command, user)
+    record = _record(run, reg.path, through_d, start_d, opening, command, user, late.stored)
     plan = ClosePlan(run, reg.path, last, sched.period_ends, before, catch_up, rows, journal, bridge, removed,
-                     opening, record)
+                     opening, record, late=late)
     plan.checks = close_checks(plan)
     return plan
+
+
+def _settlements_and_tax(run: ExpenseRun, last: R.Close | None, removed: pd.DataFrame):
+    """Cash paid and tax lines of the close's periods, and the catch-ups of those of closed periods."""
+    from grantval.reporting.liability_tables import liability_figures
+
+    figures = liability_figures(run)
+    window_tax = tax_lines(run)
+    late = LateEntries()
+    late_cash(last, run, figures, removed, late)
+    late_tax(last, run, window_tax, tax_lines, late)
+    return late, J.JournalResults(cash_paid(run, figures), window_tax, late.cash, late.tax)
 
 
 # ------------------------------------------------------------------- book
@@ -420,7 +431,7 @@ def close(location, *, register, through, start=None, period=None, standard=None
             close_id = reg.book(plan.record, _register_rows(plan.rows), _register_journal(plan.journal))
         head = reg.head_digest()
         checks = plan.checks + [_read_back_check(reg, close_id, plan)]
-    result = CloseResult(plan, close_id, head, outputs, checks, _policy_warnings(plan))
+    result = CloseResult(plan, close_id, head, outputs, checks, _policy_warnings(plan) + plan.late.warnings)
     if plan.removed is not None and len(plan.removed):
         result.warnings.append(f"{len(plan.removed)} grant(s) booked earlier are no longer in the ledger; their "
                                f"cost is reversed as a catch-up: {', '.join(map(str, plan.removed['grant_id'][:10]))}")

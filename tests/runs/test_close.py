@@ -526,3 +526,131 @@ def test_tax_effects_are_booked_in_the_close_journal(tmp_path):
     with R.open_register(tmp_path / "r.gvreg", readonly=True) as reg:  # the register holds the tax lines
         stored = reg.journal()
     assert stored.loc[stored["account"] == DTA, "debit_cents"].sum() == 84_000
+
+
+def _late_exercise_ledgers(tmp_path):
+    from tests.attribution.cash_ledgers import IFRS_VALUES, event, ifrs_example_12
+
+    # IFRS 2 IG Example 12's ledger (tests/attribution/cash_ledgers.py) on calendar years, with the
+    # year-end values 18.20 (2031), 21.40 (2032, reused) and 21.40 (2033, reused, invented)
+    vals = IFRS_VALUES + (("2031-12-31", "18.20"), ("2032-12-31", "21.40"), ("2033-12-31", "21.40"))
+    events = [event("SAR", "2029-12-31", "forfeit", "3500"), event("SAR", "2030-12-31", "forfeit", "4000"),
+              event("SAR", "2031-12-31", "forfeit", "2200"), event("SAR", "2033-01-01", "exercise", "14000", "30")]
+    late = event("SAR", "2032-01-01", "exercise", "15000", "25")
+    return (ifrs_example_12(tmp_path / "before", values=vals, events=events),
+            ifrs_example_12(tmp_path / "after", values=vals, events=events + [late]))
+
+
+def test_late_cash_payment_in_a_closed_period_is_caught_up_in_the_open_period(tmp_path):
+    reg = tmp_path / "r.gvreg"
+    before, after = _late_exercise_ledgers(tmp_path)
+    first = C.close(before, register=reg, through="2032-12-31", period="year")
+    assert not (first.plan.journal["entry"] == "cash").any()  # nothing paid in 2029-2032 as then entered
+    closed_rows, closed_journal = booked(reg, 1), R.open_register(reg, readonly=True).journal(1)
+    # the 2032-01-01 exercise of 15,000 SARs is entered after 2032 was closed
+    res = C.close(after, register=reg, through="2033-12-31", period="year")
+    lines = res.plan.journal
+    cash = lines[(lines["entry"] == "cash")]
+    late = cash[cash["description"].str.startswith("Catch-up of closed periods")]
+    # catch-up: 15,000 x (25 - 10) = 225,000.00, Dr liability / Cr cash in the period ending 2033-12-31
+    assert set(late["period_end"].astype(str)) == {"2033-12-31"}
+    assert late["debit_cents"].sum() == late["credit_cents"].sum() == 22_500_000
+    # the year's own payment: 14,000 x (30 - 10) = 280,000.00
+    own = cash[~cash.index.isin(late.index)]
+    assert own["debit_cents"].sum() == 28_000_000
+    # expense catch-up of 2032: 25,300 x 21.40 + 225,000 - 40,300 x 21.40 = -96,000.00
+    assert int(res.plan.rows["catch_up_cents"].sum()) == -9_600_000
+    assert any("cash paid dated on or before 2032-12-31 (closed periods) differs from the cash booked through it by "
+               "225,000.00" in w for w in res.warnings)
+    # the closed close is unchanged
+    pd.testing.assert_frame_equal(booked(reg, 1), closed_rows)
+    pd.testing.assert_frame_equal(R.open_register(reg, readonly=True).journal(1), closed_journal)
+    assert not res.failed and any(c.name.startswith("Cash paid booked through") and c.tool_pass for c in res.checks)
+
+
+def test_cash_check_turns_to_fail_when_a_late_payment_is_not_caught_up(tmp_path, monkeypatch):
+    from grantval.runs import close_late
+
+    reg = tmp_path / "r.gvreg"
+    before, after = _late_exercise_ledgers(tmp_path)
+    C.close(before, register=reg, through="2032-12-31", period="year")
+    monkeypatch.setattr(C, "late_cash", lambda last, run, figures, removed, out: close_late.late_cash(
+        last, run, figures, removed, out) or setattr(out, "cash", None))  # the catch-up lines left out
+    with pytest.raises(Exception, match="Cash paid booked through 2033-12-31"):
+        C.close(after, register=reg, through="2033-12-31", period="year")
+    assert len(booked(reg)) == len(booked(reg, 1))  # nothing booked
+
+
+def test_late_tax_effect_in_a_closed_period_is_caught_up_in_the_open_period(tmp_path):
+    from grantval.reporting.tax_tables import DTA, DEFERRED_PL
+    from tests.attribution.tax_ledgers import event, grant, ledger, rate
+
+    # 1,000 options, fair value 4, vesting 2028-01-01 (tests above), rate 21% (ASC 718-740-30-1, from
+    # memory): 4,000 x 21% = 840.00 deferred tax asset booked for 2027. A forfeiture of 500 dated
+    # 2027-06-30 is entered after 2027 was closed: recomputed 2027 cost 2,000, deferred tax 420.00, so the
+    # next close books Dr deferred income tax / Cr deferred tax asset 420.00 in 2028 (hand computation).
+    reg = tmp_path / "r.gvreg"
+    rates = [rate("*", "2027-01-01", "0.21")]
+    before = ledger(tmp_path / "a", grants=[grant("G1")], rates=rates)
+    after = ledger(tmp_path / "b", grants=[grant("G1")], rates=rates, events=[event("G1", "2027-06-30", "forfeit", 500)])
+    C.close(before, register=reg, through="2027-12-31", start="2027-01-01", period="year")
+    closed_journal = R.open_register(reg, readonly=True).journal(1)
+    res = C.close(after, register=reg, through="2028-12-31", period="year")
+    tax = res.plan.journal[res.plan.journal["entry"] == "tax"]
+    late = tax[tax["description"].str.startswith("Catch-up of closed periods")]
+    assert late.loc[late["account"] == DTA, "credit_cents"].sum() == 42_000
+    assert late.loc[late["account"] == DEFERRED_PL, "debit_cents"].sum() == 42_000
+    assert set(late["period_end"].astype(str)) == {"2028-12-31"}
+    assert int(res.plan.rows["catch_up_cents"].sum()) == -200_000  # the expense catch-up: 2,000 - 4,000
+    assert any("tax effects dated on or before 2027-12-31" in w for w in res.warnings)
+    pd.testing.assert_frame_equal(R.open_register(reg, readonly=True).journal(1), closed_journal)
+    # a third close with nothing new entered books no further tax catch-up
+    res3 = C.close(after, register=reg, through="2029-12-31", period="year")
+    j3 = res3.plan.journal
+    assert not j3["description"].astype(str).str.startswith("Catch-up of closed periods").any()
+    assert not res.failed and not res3.failed
+
+
+def test_tax_check_turns_to_fail_when_a_late_tax_effect_is_not_caught_up(tmp_path, monkeypatch):
+    from grantval.runs import close_late
+    from tests.attribution.tax_ledgers import event, grant, ledger, rate
+
+    reg = tmp_path / "r.gvreg"
+    rates = [rate("*", "2027-01-01", "0.21")]
+    C.close(ledger(tmp_path / "a", grants=[grant("G1")], rates=rates), register=reg, through="2027-12-31",
+            start="2027-01-01", period="year")
+    after = ledger(tmp_path / "b", grants=[grant("G1")], rates=rates, events=[event("G1", "2027-06-30", "forfeit", 500)])
+    monkeypatch.setattr(C, "late_tax", lambda last, run, window, lines, out: close_late.late_tax(
+        last, run, window, lines, out) or setattr(out, "tax", None))  # the catch-up lines left out
+    with pytest.raises(Exception, match="Tax lines booked through 2028-12-31"):
+        C.close(after, register=reg, through="2028-12-31", period="year")
+
+
+def test_register_from_an_earlier_grantval_says_late_payments_are_not_caught_up(tmp_path, monkeypatch):
+    reg = tmp_path / "r.gvreg"
+    before, after = _late_exercise_ledgers(tmp_path)
+    record = C._record
+    # a first close that records no cash or tax figures, as closes made before they were recorded
+    monkeypatch.setattr(C, "_record", lambda *a, **k: record(*a[:7]))
+    C.close(before, register=reg, through="2032-12-31", period="year")
+    monkeypatch.setattr(C, "_record", record)
+    res = C.close(after, register=reg, through="2033-12-31", period="year")
+    assert any("close 1 did not record the cash paid it booked" in w for w in res.warnings)
+    assert not res.plan.journal["description"].astype(str).str.startswith("Catch-up of closed periods").any()
+    assert not res.failed
+
+
+def test_payment_removed_from_a_closed_period_is_reversed_in_the_open_period(tmp_path):
+    from tests.attribution.cash_ledgers import IFRS_VALUES, ifrs_example_12
+
+    # the other way round: the 2032-01-01 exercise (225,000.00, as above) was booked, then taken out
+    # of the ledger (entered in error): the next close books Cr liability / Dr cash 225,000.00
+    reg = tmp_path / "r.gvreg"
+    before, after = _late_exercise_ledgers(tmp_path)
+    C.close(after, register=reg, through="2032-12-31", period="year")
+    res = C.close(before, register=reg, through="2033-12-31", period="year")
+    late = res.plan.journal[res.plan.journal["description"].str.startswith("Catch-up of closed periods")]
+    assert late.loc[late["account"] == "Cash", "debit_cents"].sum() == 22_500_000
+    assert late.loc[late["account"] == "Share-based payment liability", "credit_cents"].sum() == 22_500_000
+    assert int(res.plan.rows["catch_up_cents"].sum()) == 9_600_000 and not res.failed
+    assert any("differs from the cash booked through it by -225,000.00" in w for w in res.warnings)
