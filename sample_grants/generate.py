@@ -130,6 +130,55 @@ def purchase_plan():
     return offerings, enrollments, events
 
 
+QUARTER_ENDS = ["2026-03-31", "2026-06-30", "2026-09-30"]
+
+
+def _closes() -> dict:
+    """ticker -> (dates, closes) from the demo market data."""
+    out: dict = {}
+    with open(HERE / "market" / "prices.csv", encoding="utf-8") as fh:
+        for r in csv.DictReader(fh):
+            out.setdefault(r["ticker"], ([], []))
+            out[r["ticker"]][0].append(r["date"])
+            out[r["ticker"]][1].append(float(r["close"]))
+    return out
+
+
+def _total_return_index(dates, closes, dividends) -> np.ndarray:
+    """Close x the shares one share grows to when each dividend is reinvested at the ex-date close."""
+    shares, out = 1.0, []
+    for d, c in zip(dates, closes):
+        shares *= 1 + dividends.get(d, 0.0) / c
+        out.append(c * shares)
+    return np.array(out)
+
+
+def market_rows(start="2026-02-17", averaging=20):
+    """Returns to date of the TSR condition's members and the share price at each quarter end of 2026
+    (for diluted shares), and the average share price of each quarter (the dilution command's input)."""
+    closes = _closes()
+    with open(HERE / "market" / "dividends.csv", encoding="utf-8") as fh:
+        crvn_div = {r["ex_date"]: float(r["amount"]) for r in csv.DictReader(fh) if r["ticker"] == "CRVN"}
+    returns, prices = [], []
+    for member in ["self"] + [p[1] for p in PEERS]:
+        dates, cl = closes["CRVN" if member == "self" else member]
+        keep = [i for i, d in enumerate(dates) if d >= start]
+        dates, cl = [dates[i] for i in keep], [cl[i] for i in keep]
+        tri = _total_return_index(dates, cl, crvn_div if member == "self" else {})
+        base = tri[:averaging].mean()
+        for qe in QUARTER_ENDS:
+            k = max(i for i, d in enumerate(dates) if d <= qe)
+            returns.append(["rtsr-2026", member, qe, f"{tri[k] / base - 1:.6f}"])
+            if member == "self":
+                prices.append([qe, f"{cl[k]:.2f}"])
+    dates, cl = closes["CRVN"]
+    averages = []
+    for first, qe in zip(["2026-01-01"] + QUARTER_ENDS[:-1], QUARTER_ENDS):
+        inside = [c for d, c in zip(dates, cl) if first <= d <= qe]
+        averages.append([qe, f"{sum(inside) / len(inside):.4f}"])
+    return returns, prices, averages
+
+
 def main() -> None:
     grants, events = [], []
     gid = 0
@@ -264,6 +313,11 @@ def main() -> None:
                                 "peer_set", "payout_curve", "negative_tsr_cap"], MARKET_CONDITIONS)
     write("peers", ["peer_set", "peer_id", "volatility", "dividend_yield"], PEERS)
     write("correlations", ["peer_set", "first", "second", "correlation"], CORRELATIONS)
+    returns, prices, averages = market_rows()
+    write("market_returns", ["condition_set", "member", "measured_on", "total_return"], returns)
+    write("share_prices", ["date", "share_price"], prices)
+    with open(HERE / "market" / "average_prices.csv", "w", newline="", encoding="utf-8") as fh:
+        csv.writer(fh, lineterminator="\n").writerows([["period_end", "average_share_price"]] + averages)
     write("espp_offerings", list(offerings[0]), offerings)
     write("espp_enrollments", list(enrollments[0]), enrollments)
     from grantval.io.convert import csv_folder_to_workbook
