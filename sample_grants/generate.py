@@ -24,6 +24,43 @@ GRANT_DATES = ["2024-02-15", "2024-05-15", "2024-08-15", "2024-11-15", "2025-02-
 PRICES = [18.40, 19.85, 17.60, 21.10, 23.45, 22.80, 25.30, 27.15, 26.40, 29.90, 31.25]
 LATTICE_DATES = {"2025-08-15", "2026-05-15"}
 GROUPS = ["engineering", "sales", "operations", "finance"]
+MARKET_CONDITIONS = [
+    ["rtsr-2026", "relative_tsr", "2026-02-17", "2029-02-16", "20", "end", "sector_peers", "25:0.5;50:1;75:2", "1"],
+    ["hurdle-2026", "share_price", "2026-02-17", "2029-02-16", "20", "any_day", "", "40:1", ""],
+]
+# sector_peers: derived by `grantval assumptions --peer-tables` from sample_grants/market/prices.csv
+# (daily log returns over the 3-year lookback ending 2026-02-17), rounded to 4 places
+PEERS = [
+    ['sector_peers', 'PEERA', '0.3241', '0.0000'],
+    ['sector_peers', 'PEERB', '0.3830', '0.0000'],
+    ['sector_peers', 'PEERC', '0.4457', '0.0000'],
+    ['sector_peers', 'PEERD', '0.5324', '0.0000'],
+    ['sector_peers', 'PEERE', '0.4135', '0.0000'],
+    ['sector_peers', 'PEERF', '0.6015', '0.0000'],
+]
+CORRELATIONS = [
+    ['sector_peers', 'self', 'PEERA', '0.4772'],
+    ['sector_peers', 'self', 'PEERB', '0.4183'],
+    ['sector_peers', 'self', 'PEERC', '0.3271'],
+    ['sector_peers', 'self', 'PEERD', '0.2884'],
+    ['sector_peers', 'self', 'PEERE', '0.4265'],
+    ['sector_peers', 'self', 'PEERF', '0.2108'],
+    ['sector_peers', 'PEERA', 'PEERB', '0.3829'],
+    ['sector_peers', 'PEERA', 'PEERC', '0.3132'],
+    ['sector_peers', 'PEERA', 'PEERD', '0.2522'],
+    ['sector_peers', 'PEERA', 'PEERE', '0.3089'],
+    ['sector_peers', 'PEERA', 'PEERF', '0.2307'],
+    ['sector_peers', 'PEERB', 'PEERC', '0.3842'],
+    ['sector_peers', 'PEERB', 'PEERD', '0.3252'],
+    ['sector_peers', 'PEERB', 'PEERE', '0.3274'],
+    ['sector_peers', 'PEERB', 'PEERF', '0.3129'],
+    ['sector_peers', 'PEERC', 'PEERD', '0.2453'],
+    ['sector_peers', 'PEERC', 'PEERE', '0.2693'],
+    ['sector_peers', 'PEERC', 'PEERF', '0.2385'],
+    ['sector_peers', 'PEERD', 'PEERE', '0.2234'],
+    ['sector_peers', 'PEERD', 'PEERF', '0.2504'],
+    ['sector_peers', 'PEERE', 'PEERF', '0.2009'],
+]
 SCHEDULES = {  # name: (vest_months, vest_every_months, cliff_months)
     "annual": (48, 12, 0),
     "monthly-after-cliff": (48, 1, 12),
@@ -91,6 +128,55 @@ def purchase_plan():
         if k == 4:  # stops contributing while still employed: a cancellation of the open periods
             events.append([gid, "2026-09-15", "withdraw", "", ""])
     return offerings, enrollments, events
+
+
+QUARTER_ENDS = ["2026-03-31", "2026-06-30", "2026-09-30"]
+
+
+def _closes() -> dict:
+    """ticker -> (dates, closes) from the demo market data."""
+    out: dict = {}
+    with open(HERE / "market" / "prices.csv", encoding="utf-8") as fh:
+        for r in csv.DictReader(fh):
+            out.setdefault(r["ticker"], ([], []))
+            out[r["ticker"]][0].append(r["date"])
+            out[r["ticker"]][1].append(float(r["close"]))
+    return out
+
+
+def _total_return_index(dates, closes, dividends) -> np.ndarray:
+    """Close x the shares one share grows to when each dividend is reinvested at the ex-date close."""
+    shares, out = 1.0, []
+    for d, c in zip(dates, closes):
+        shares *= 1 + dividends.get(d, 0.0) / c
+        out.append(c * shares)
+    return np.array(out)
+
+
+def market_rows(start="2026-02-17", averaging=20):
+    """Returns to date of the TSR condition's members and the share price at each quarter end of 2026
+    (for diluted shares), and the average share price of each quarter (the dilution command's input)."""
+    closes = _closes()
+    with open(HERE / "market" / "dividends.csv", encoding="utf-8") as fh:
+        crvn_div = {r["ex_date"]: float(r["amount"]) for r in csv.DictReader(fh) if r["ticker"] == "CRVN"}
+    returns, prices = [], []
+    for member in ["self"] + [p[1] for p in PEERS]:
+        dates, cl = closes["CRVN" if member == "self" else member]
+        keep = [i for i, d in enumerate(dates) if d >= start]
+        dates, cl = [dates[i] for i in keep], [cl[i] for i in keep]
+        tri = _total_return_index(dates, cl, crvn_div if member == "self" else {})
+        base = tri[:averaging].mean()
+        for qe in QUARTER_ENDS:
+            k = max(i for i, d in enumerate(dates) if d <= qe)
+            returns.append(["rtsr-2026", member, qe, f"{tri[k] / base - 1:.6f}"])
+            if member == "self":
+                prices.append([qe, f"{cl[k]:.2f}"])
+    dates, cl = closes["CRVN"]
+    averages = []
+    for first, qe in zip(["2026-01-01"] + QUARTER_ENDS[:-1], QUARTER_ENDS):
+        inside = [c for d, c in zip(dates, cl) if first <= d <= qe]
+        averages.append([qe, f"{sum(inside) / len(inside):.4f}"])
+    return returns, prices, averages
 
 
 def main() -> None:
@@ -166,6 +252,16 @@ def main() -> None:
         "vest_start_date": "", "vest_months": 48, "vest_every_months": 3, "cliff_months": 12, "assumption_set": "",
         "retirement_eligible_date": "2026-03-31",
     })
+    # market conditions: relative TSR units against the sector peers (3-year cliff), and a share-price
+    # hurdle award with no vesting schedule (derived service period)
+    for k, (cset, qty, months) in enumerate((("rtsr-2026", 10000, 36), ("rtsr-2026", 5000, 36),
+                                             ("hurdle-2026", 20000, 0))):
+        grants.append({
+            "grant_id": f"CV-MKT-{k + 1:02d}", "holder_id": f"E00{k + 10}", "group": ["finance", "sales"][k % 2],
+            "award_type": "psu", "grant_date": "2026-02-17", "quantity": qty, "exercise_price": "",
+            "expiration_date": "", "vest_start_date": "", "vest_months": months, "vest_every_months": max(months, 1),
+            "cliff_months": 0, "assumption_set": "", "condition_set": cset,
+        })
     for g in grants:
         for col in ("condition_set", "max_payout", "retirement_eligible_date"):
             g.setdefault(col, "")
@@ -213,6 +309,15 @@ def main() -> None:
     write("estimates", ["applies_to", "effective_date", "annual_forfeiture_rate", "expected_vest_fraction"], estimates)
     write("policy", ["key", "value"], policy)
     write("performance", ["condition_set", "assessed_on", "payout", "expected_vest_date"], performance)
+    write("market_conditions", ["condition_set", "metric", "start_date", "end_date", "averaging_days", "monitoring",
+                                "peer_set", "payout_curve", "negative_tsr_cap"], MARKET_CONDITIONS)
+    write("peers", ["peer_set", "peer_id", "volatility", "dividend_yield"], PEERS)
+    write("correlations", ["peer_set", "first", "second", "correlation"], CORRELATIONS)
+    returns, prices, averages = market_rows()
+    write("market_returns", ["condition_set", "member", "measured_on", "total_return"], returns)
+    write("share_prices", ["date", "share_price"], prices)
+    with open(HERE / "market" / "average_prices.csv", "w", newline="", encoding="utf-8") as fh:
+        csv.writer(fh, lineterminator="\n").writerows([["period_end", "average_share_price"]] + averages)
     write("espp_offerings", list(offerings[0]), offerings)
     write("espp_enrollments", list(enrollments[0]), enrollments)
     from grantval.io.convert import csv_folder_to_workbook

@@ -182,8 +182,8 @@ class Contingency:
     vest_day: np.ndarray   # day number the units vest (performance units: the vesting date in force)
 
 
-MARKET_CONDITION = ("market condition: counted at target units; the count at the period-end price (IAS 33.54, "
-                    "ASC 260-10-45-52) is not applied: review")
+MARKET_CONDITION = ("market condition: the payout the results to date would earn if the period ended at the "
+                    "period end (market_returns / share_prices; ASC 260-10-45-52, IAS 33.54, from memory)")
 
 
 def market_condition_grants(ledger) -> np.ndarray:
@@ -217,13 +217,16 @@ class PerformanceUnits:
         from grantval.attribution.performance import Assessments
 
         psu = performance_units(ledger)
-        self.inp = inp
-        self.psu_t = psu[inp.t_grant]
-        self.assessments = Assessments(ledger, psu) if psu.any() else None
+        self.inp, self.ledger = inp, ledger
+        self.market = market_condition_grants(ledger)
+        self.psu_t = (psu | self.market)[inp.t_grant]
+        self.assessments = Assessments(ledger, psu) if (psu | self.market).any() else None
 
     def _row(self, grants: np.ndarray, days: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """Index of the row in force and whether there is one (the lookup of ``Assessments.at``)."""
         A = self.assessments
+        if A.grant.size == 0:  # market-condition units only: no performance rows
+            return np.zeros(len(grants), dtype=np.int64), np.zeros(len(grants), dtype=bool)
         key = A.grant * (1 << 32) + A.day
         pos = np.searchsorted(key, grants.astype(np.int64) * (1 << 32) + days.astype(np.int64), side="right") - 1
         ok = (pos >= 0) & (A.grant[np.maximum(pos, 0)] == grants)
@@ -239,9 +242,26 @@ class PerformanceUnits:
         _, vest_now = A.at(g_t, np.full(n_t, day))
         vest = np.where(self.psu_t & (vest_now != _NO_DAY), vest_now, pre.t_vest).astype(np.int64)
         pos, ok = self._row(g_t, np.minimum(vest, day))
-        payout = np.where(self.psu_t, np.where(ok, A.payout[pos], 0.0), 1.0)
-        assessed = np.where(self.psu_t & ok, A.day[pos], _NO_DAY)
+        rows = A.payout.size > 0  # market-condition units alone have no performance rows
+        payout = np.where(self.psu_t, np.where(ok, A.payout[pos] if rows else 0.0, 0.0), 1.0)
+        assessed = np.where(self.psu_t & ok, A.day[pos] if rows else _NO_DAY, _NO_DAY)
+        if self.market.any():
+            payout, assessed = self._market(payout, assessed, vest, day)
         return Contingency(payout, assessed, vest)
+
+    def _market(self, payout, assessed, vest, day: int):
+        """Market-condition tranches granted and not vested on ``day``: the payout if the period ended then."""
+        from grantval.ledger.ext.market import payouts_if_ended
+
+        pre = self.inp.prepared()
+        live_t = self.market[self.inp.t_grant] & (pre.t_gdate <= day) & (vest > day)
+        live = np.zeros(len(self.market), dtype=bool)
+        live[self.inp.t_grant[live_t]] = True
+        if not live.any():
+            return payout, assessed
+        by_grant = payouts_if_ended(self.ledger, live, np.datetime64(int(day), "D"))
+        return (np.where(live_t, by_grant[self.inp.t_grant], payout),
+                np.where(live_t, day, assessed))
 
 
 def _tranche_units(lots: Lots, n_t: int, start: int, end: int) -> np.ndarray:
@@ -347,4 +367,4 @@ def grant_dilution(ledger, inp, attribution: str, starts: np.ndarray, ends: np.n
     with np.errstate(divide="ignore", invalid="ignore"):
         payout = np.where(wt > 0, wu / np.where(wt > 0, wt, 1.0), 1.0)
     return GrantDilution(wu, u0, u1, avg, price, price[:, None] + avg, incr, anti, wt, payout, assessed,
-                         performance_units(ledger))
+                         performance_units(ledger) | perf.market)

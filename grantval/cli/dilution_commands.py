@@ -43,7 +43,13 @@ def dilution_cmd(
     total = run.grants.incremental.sum(axis=0)
     say(f"{run.ledger.n_grants} grants, {len(run.ends)} periods from {run.start} through {run.through}; "
         f"incremental shares in the last period {total[-1]:,.2f}")
-    if run.grants.contingent is not None and run.grants.contingent.any():
-        say(f"{int(run.grants.contingent.sum())} grants with performance conditions counted at the payout in force at "
+    from grantval.attribution.dilution import market_condition_grants, performance_units
+
+    perf, market = performance_units(run.ledger), market_condition_grants(run.ledger)
+    if perf.any():
+        say(f"{int(perf.sum())} grants with performance conditions counted at the payout in force at "
             "each period end, taken as the outcome if the period ended now (a policy to review: see the notes)")
+    if market.any():
+        say(f"{int(market.sum())} grants with market conditions counted at the payout the results to date would earn "
+            "if the period ended at each period end (market_returns, share_prices)")
     report_outputs(result)

@@ -39,8 +39,9 @@ def _basis(run, n: int, p: int) -> np.ndarray:
     award = run.ledger.grants["award_type"].to_numpy(dtype=object)
     psu = np.zeros(n, dtype=bool) if run.grants.contingent is None else run.grants.contingent
     text = np.where(np.isin(award, list(D.CONTINGENT_FRACTION)), D.HOOKED, D.NOT_CONTINGENT)
+    text = np.where(psu, D.PAYOUT_IN_FORCE, text)
     text = np.where(D.market_condition_grants(run.ledger), D.MARKET_CONDITION, text)
-    return np.repeat(np.where(psu, D.PAYOUT_IN_FORCE, text).astype(object), p)
+    return np.repeat(text.astype(object), p)
 
 
 def dilution_by_grant(run) -> pd.DataFrame:
@@ -152,7 +153,9 @@ def dilution_checks(run, totals: pd.DataFrame, by_grant: pd.DataFrame) -> list[C
         CheckRow("Weighted units: engine vs by-grant table", units, counted, 1e-6 * max(1.0, units),
                  abs(units - counted) <= 1e-6 * max(1.0, units)),
     ]
-    psu = np.zeros(len(run.ledger.grants), dtype=bool) if run.grants.contingent is None else run.grants.contingent
+    from grantval.attribution.dilution import performance_units
+
+    psu = performance_units(run.ledger)  # the performance table's units (market-condition units: not this check)
     if psu.any():
         engine = float(run.grants.weighted_units[psu].sum())
         again = recomputed_contingent_shares(run)

@@ -51,12 +51,14 @@ def fair_value_audit(table: pd.DataFrame) -> tuple[pd.DataFrame, dict]:
     frame["difference"] = diff
     model = table["model"].to_numpy()
     frame["fair_value_source"] = np.select(
-        [model == "supplied", model == "lattice", model == "rsu", model == "psu", model == "monte_carlo"],
+        [model == "supplied", model == "lattice", model == "rsu", model == "psu", model == "monte_carlo",
+         model == "espp", bsm],
         ["supplied by outside valuation", "tool (lattice; inputs and steps shown)",
          "tool (RSU: share price less dividends forgone)",
          "tool (performance unit: share price less dividends forgone; payout applied in expense)",
-         "tool (Monte Carlo; see std_error)"],
-        "tool (BSM; recomputed by formula)")
+         "tool (Monte Carlo; see std_error)", "tool (purchase plan: look-back components, ASC 718-50-55)",
+         "tool (BSM; recomputed by formula)"],
+        np.char.add(np.char.add("tool (", model.astype(str)), ")"))
     if "std_error" in table and np.isfinite(table["std_error"].to_numpy(float)).any():
         frame["std_error"] = table["std_error"].to_numpy()  # Monte Carlo rows (market conditions)
     assert pos["recomputed_fair_value_per_unit"] == recomputed_column(table)

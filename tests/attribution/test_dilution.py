@@ -370,7 +370,7 @@ def test_cash_settled_awards_are_not_potential_shares(tmp_path):
 
 def test_market_condition_units_are_not_read_from_the_performance_table():
     # a psu whose condition set is a market condition has no performance rows: it is not a PerformanceUnits grant
-    # (its count at the period-end price, IAS 33.54, is not applied; contingent_basis says so)
+    # of the performance table (its count comes from the results to date, see the test below)
     from types import SimpleNamespace
 
     import pandas as pd
@@ -381,3 +381,39 @@ def test_market_condition_units_are_not_read_from_the_performance_table():
     assert D.performance_units(led).tolist() == [True, False, False]
     led.tables = {}
     assert D.performance_units(led).tolist() == [True, True, False]
+
+
+def _tsr_dilution(tmp_path, returns):
+    from tests.measurement.test_market import market_ledger
+
+    members = [("A", 0.3, 0.0), ("B", 0.3, 0.0), ("C", 0.3, 0.0)]
+    loc = market_ledger(tmp_path / "l", metric="relative_tsr", members=members, rho=0.3, curve="25:0.5;50:1;75:2",
+                        extra={"market_returns": returns, "policy": [{"key": "mc_paths", "value": "2000"}]})
+    return api.dilution(loc, average_prices=_prices(tmp_path / "p", [("2027-03-31", 12)]), start="2027-01-01",
+                        through="2027-03-31", period="quarter")
+
+
+def test_market_condition_units_count_the_payout_the_results_to_date_earn(tmp_path):
+    # ASC 260-10-45-52 and IAS 33.54 (from memory): shares whose issue depends on a market price count as if the
+    # period ended at the reporting date.  On 2027-03-31 the company's TSR to date (10%) beats peers A (5%) and
+    # C (-2%) but not B (12%): rank 100 x 2/3 = 66.67, payout on 25:0.5;50:1;75:2 = 1 + (66.67 - 50) / 25 = 1.6667.
+    # G2: 400 target units outstanding all quarter (granted 2027-01-01): 400 x 1.6667 = 666.67 shares counted.
+    rows = [("self", 0.10), ("A", 0.05), ("B", 0.12), ("C", -0.02)]
+    returns = [{"condition_set": "M1", "member": m, "measured_on": "2027-03-31", "total_return": r} for m, r in rows]
+    run = _tsr_dilution(tmp_path, returns)
+    by = dilution_by_grant(run).set_index("grant_id")
+    assert by.loc["G2", "contingent_payout"] == pytest.approx(1 + (200 / 3 - 50) / 25)
+    assert by.loc["G2", "weighted_units"] == pytest.approx(400 * (1 + (200 / 3 - 50) / 25))
+    assert "results to date" in by.loc["G2", "contingent_basis"]
+    assert all(c.tool_pass for c in dilution_checks(run, dilution_totals(run), dilution_by_grant(run)))
+    # the count can change: the company behind every peer earns nothing
+    low = [dict(r, total_return=-0.5) if r["member"] == "self" else r for r in returns]
+    by = dilution_by_grant(_tsr_dilution(tmp_path / "low", low)).set_index("grant_id")
+    assert by.loc["G2", "weighted_units"] == 0.0
+
+
+def test_market_condition_units_without_returns_to_date_are_refused(tmp_path):
+    returns = [{"condition_set": "M1", "member": "self", "measured_on": "2027-03-31", "total_return": 0.1}]
+    with pytest.raises(LedgerError) as err:
+        _tsr_dilution(tmp_path, returns)
+    assert "grant G2 need the total return to date of A, B, C" in str(err.value) and "2027-03-31" in str(err.value)

@@ -209,6 +209,59 @@ def achieved_payouts(ledger, vested_t: np.ndarray, t_grant: np.ndarray) -> tuple
     return out, market
 
 
+def payouts_if_ended(ledger, grants: np.ndarray, day) -> np.ndarray:
+    """Per grant in the mask ``grants``: the payout its market condition would give if the period ended on ``day``.
+
+    The metric is computed from the results to date: each member's total return to ``day`` in
+    ``market_returns`` (TSR metrics), or the ``share_prices`` row of ``day`` (share-price conditions,
+    the price on the day), then the payout curve (with the negative-TSR cap).  This is the count of
+    contingently issuable shares that depend on a market price (ASC 260-10-45-52; IAS 33.54, both from
+    memory).  Raises :class:`LedgerError` naming the missing rows; nothing is assumed.
+    """
+    from grantval.errors import LedgerError
+
+    g, t = ledger.grants, ledger.tables
+    out = np.full(len(g), np.nan)
+    problems: list[Problem] = []
+    rows = _condition_rows(g, t)
+    for i in np.flatnonzero(grants):
+        r = rows.loc[i]
+        x, cap_tsr, missing = _metric_to_date(t, g["condition_set"].iat[i], r, day)
+        if missing:
+            problems.append(Problem(ledger.sources.get("market_returns", "market_returns"), None, "total_return",
+                                    f"diluted shares of grant {g['grant_id'].iat[i]} need {missing} on "
+                                    f"{np.datetime64(day, 'D')} (the shares issuable if the period ended then)"))
+            continue
+        curve = parse_payout_curve(str(r["payout_curve"]),
+                                   None if pd.isna(r["negative_tsr_cap"]) else float(r["negative_tsr_cap"]))
+        out[i] = float(curve(np.array([x]), None if cap_tsr is None else np.array([cap_tsr]))[0])
+    if problems:
+        raise LedgerError(problems)
+    return out
+
+
+def _metric_to_date(t: dict, cs: str, r, day) -> tuple[float, float | None, str]:
+    """(metric, company TSR or None, what is missing) of one condition on ``day``."""
+    if r["metric"] == "share_price":
+        sp = t.get("share_prices")
+        hit = sp[sp["date"].to_numpy("datetime64[D]") == np.datetime64(day, "D")] if sp is not None and len(sp) else []
+        if not len(hit):
+            return np.nan, None, "the share price (share_prices table)"
+        return float(hit["share_price"].iat[0]), None, ""
+    have = returns_on(t, cs, day)
+    members = members_of(t["peers"], r["peer_set"])
+    missing = [m for m in members if m not in have]
+    if missing:
+        return np.nan, None, "the total return to date of " + ", ".join(missing) + " (market_returns table)"
+    own = have["self"]
+    others = np.array([have[m] for m in members[1:]])
+    if r["metric"] == "relative_tsr":
+        return 100.0 * float(np.mean(others < own)) if others.size else 0.0, own, ""
+    if r["metric"] == "index_tsr":
+        return own - float(others[0]), own, ""
+    return own, own, ""
+
+
 def _grant_problems(parts: LedgerParts) -> list[Problem]:
     """Grants that point at a market condition: award type, dates and settlement (vectorised over grants)."""
     g, t, src = parts.grants, parts.tables, parts.sources["grants"]
