@@ -13,11 +13,11 @@ import pandas as pd
 from grantval.errors import OutputError
 from grantval.io.csv import _column_values
 from grantval.io.files import atomic_path
+from grantval.io.xlsx.charts import build_chart
 from grantval.io.xlsx.sheet import (
     EXCEL_COLUMNS,
     EXCEL_ROWS,
     FAST_ROWS,
-    Chart,
     Formula,
     Sheet,
     label,
@@ -46,21 +46,26 @@ def _frame_sheet(ws, sh: Sheet, index: int, big: dict) -> None:
     from openpyxl.styles import Alignment, Border, Font, Side
     from openpyxl.utils import get_column_letter
 
-    bold, top = Font(bold=True), Border(top=Side(style="thin"))
+    bold, top, under = Font(bold=True), Border(top=Side(style="thin")), Border(bottom=Side(style="thin"))
     cols = list(sh.frame.columns)
     if len(cols) > EXCEL_COLUMNS:
         raise OutputError(f"the sheet {sh.name} would have {len(cols):,} columns, more than Excel's "
                           f"{EXCEL_COLUMNS:,}; use fewer periods (a longer --period) or --csv-dir")
+    widths = []
     for j, c in enumerate(cols, start=1):
         width = sh.widths.get(c, max(10, min(40, len(sh.labels.get(c, label(c))) + 2)))
         ws.column_dimensions[get_column_letter(j)].width = width
+        widths.append(width)
+    height = _header_height([sh.labels.get(c, label(c)) for c in cols], widths)
+    if height:
+        ws.row_dimensions[1].height = height
     ws.freeze_panes = "A2"
     if len(sh.frame):
         ws.auto_filter.ref = f"A1:{get_column_letter(len(cols))}{len(sh.frame) + 1}"
     header = []
     for c in cols:
         cell = WriteOnlyCell(ws, value=sh.labels.get(c, label(c)))
-        cell.font = bold
+        cell.font, cell.border = bold, under
         cell.alignment = Alignment(wrap_text=True, vertical="top")
         header.append(cell)
     ws.append(header)
@@ -139,12 +144,13 @@ def _rows_sheet(ws, sh: Sheet) -> None:
 def _page_setup(ws, sh: Sheet, footer: str) -> None:
     """Print set-up: landscape where wide, one page wide, header row repeated, a footer with the run and pages."""
     n_cols = len(sh.frame.columns) if sh.frame is not None else max((len(r) for r in sh.rows or [[]]), default=1)
-    ws.page_setup.orientation = "landscape" if n_cols > 6 or sh.rows is not None and n_cols > 3 else "portrait"
+    wide = n_cols > 6 or sh.rows is not None and n_cols > 3 or bool(sh.charts)  # a chart sits beside the table
+    ws.page_setup.orientation = "landscape" if wide else "portrait"
     ws.page_setup.paperSize = "9"  # A4
     ws.page_setup.fitToWidth = 1
-    ws.page_setup.fitToHeight = 0
+    ws.page_setup.fitToHeight = sh.fit_height
     ws.sheet_properties.pageSetUpPr.fitToPage = True
-    ws.print_options.gridLines = sh.frame is not None
+    ws.print_options.gridLines = sh.frame is not None and not sh.charts  # no grid printed around a chart
     ws.page_margins.left = ws.page_margins.right = 0.4
     if sh.frame is not None:
         ws.print_title_rows = "1:1"
@@ -192,27 +198,28 @@ def write_workbook(path: pathlib.Path, sheets: Sequence[Sheet], fixed_time: _dt.
             _frame_sheet(ws, sh, index, big)
         if sh.rows is not None:
             _rows_sheet(ws, sh)
-        for ch in sh.charts:
-            ws.add_chart(_build_chart(ch, wb, ws), ch.anchor)
+        _place_charts(ws, sh)
     with atomic_path(path) as tmp:
         wb.save(tmp)
         _normalise_zip(tmp, stamp, big)
 
 
-def _build_chart(spec: Chart, wb, ws):
-    from openpyxl.chart import BarChart, LineChart, Reference
+def _place_charts(ws, sh: Sheet) -> None:
+    """Add the sheet's charts at their anchors, with a page break above those printed on their own page."""
+    from openpyxl.utils.cell import coordinate_from_string
+    from openpyxl.worksheet.pagebreak import Break
 
-    chart = BarChart() if spec.kind == "bar" else LineChart()
-    chart.title = spec.title
-    chart.y_axis.title = spec.y_title
-    chart.x_axis.title = spec.x_title
-    chart.height, chart.width = 9, 18
-    src = ws if spec.source is None else wb[spec.source]
-    c0, r0, c1, r1 = spec.data
-    chart.add_data(Reference(src, min_col=c0, min_row=r0, max_col=c1, max_row=r1), titles_from_data=True)
-    c0, r0, c1, r1 = spec.categories
-    chart.set_categories(Reference(src, min_col=c0, min_row=r0, max_col=c1, max_row=r1))
-    return chart
+    for ch in sh.charts:
+        ws.add_chart(build_chart(ch, ws), ch.anchor)
+        if ch.new_page:
+            ws.row_breaks.append(Break(id=coordinate_from_string(ch.anchor)[1] - 1))
+
+
+def _header_height(labels: list[str], widths: list[float]) -> float | None:
+    """Height in points of a header row whose labels wrap in their column widths (None: one line)."""
+    lines = max((1 if len(t) <= w - 2 else math.ceil(len(t) * 1.1 / max(1.0, w - 1.5))  # word wrap loses some room
+                 for t, w in zip(labels, widths)), default=1)
+    return 15.0 * lines if lines > 1 else None
 
 
 def _split_long(sheets: Sequence[Sheet]) -> list[Sheet]:
