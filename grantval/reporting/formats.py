@@ -10,6 +10,9 @@ MONEY = "#,##0.00;[Red]-#,##0.00"
 UNIT = "#,##0.0000"
 
 
+COUNT = "#,##0"
+
+
 FORMATS = {
     "exercise_price": "#,##0.00", "share_price": "#,##0.00", "volatility": "0.00%", "risk_free_rate": "0.000%",
     "dividend_yield": "0.00%", "post_vest_exit_rate": "0.00%", "contractual_term_years": "0.0000",

@@ -125,6 +125,11 @@ class Sheet:
     verdicts: str | None = None
     #: pages tall when printed: 0 lets the rows run on (one page wide always); 1 fits the sheet on one page
     fit_height: int = 0
+    #: rows sheets: 1-based columns whose text wraps within the column width (rows made tall enough)
+    wrap_columns: tuple[int, ...] = ()
+    #: rows sheets: (row index, column index) -> what a formula cell there evaluates to, written as its
+    #: cached value for readers that do not recalculate (see grantval.io.xlsx.cached)
+    cached: dict = field(default_factory=dict)
 
 
 def label(column: str) -> str:

@@ -109,12 +109,13 @@ def _frame_cell(ws, v, fmt, is_text):
 
 
 def _rows_sheet(ws, sh: Sheet) -> None:
-    """A free-form sheet (notes, summaries, checks): rows as given, the first bold."""
+    """A free-form sheet (notes, summaries, checks): rows as given, the first bold; wrapped columns made tall."""
     from openpyxl.cell import WriteOnlyCell
-    from openpyxl.styles import Font
+    from openpyxl.styles import Alignment, Font
     from openpyxl.utils import get_column_letter
 
     bold = Font(bold=True)
+    wrap, top = Alignment(wrap_text=True, vertical="top"), Alignment(vertical="top")
     for j, w in sh.widths.items():
         if isinstance(j, int):
             ws.column_dimensions[get_column_letter(j)].width = w
@@ -137,8 +138,27 @@ def _rows_sheet(ws, sh: Sheet) -> None:
                 continue
             if fmt:
                 cell.number_format = fmt
+            if sh.wrap_columns:  # one vertical alignment on the row, labels wrapped
+                cell.alignment = wrap if j + 1 in sh.wrap_columns else top
             out.append(cell)
+        height = _wrapped_height(row, sh)
+        if height:
+            ws.row_dimensions[i + 1].height = height
         ws.append(out)
+
+
+def _wrapped_height(row: list, sh: Sheet) -> float | None:
+    """Height in points of a rows-sheet row whose wrapped text needs more than one line (None: one line)."""
+    texts = [(str(row[j - 1]), sh.widths.get(j, 10)) for j in sh.wrap_columns if j - 1 < len(row)
+             and isinstance(row[j - 1], str)]
+    return _header_height([t for t, _ in texts], [w for _, w in texts], per_width=1.2) if texts else None
+
+
+def _cached_cells(sh: Sheet) -> dict[str, object]:
+    """The sheet's cached formula results by cell reference (``"F2"``)."""
+    from grantval.io.cells import col_letter
+
+    return {f"{col_letter(j + 1)}{i + 1}": _cell_value(v) for (i, j), v in sh.cached.items()}
 
 
 def _page_setup(ws, sh: Sheet, footer: str) -> None:
@@ -191,6 +211,7 @@ def write_workbook(path: pathlib.Path, sheets: Sequence[Sheet], fixed_time: _dt.
     wb.properties.modified = stamp
     wb.properties.creator = "grantval"
     big: dict[str, pd.DataFrame] = {}
+    cached: dict[str, dict] = {}
     for index, sh in enumerate(_split_long(sheets)):
         ws = wb.create_sheet(sh.name)
         _page_setup(ws, sh, footer or f"grantval {__version__}")  # before the rows: the sheet's head is streamed first
@@ -198,10 +219,12 @@ def write_workbook(path: pathlib.Path, sheets: Sequence[Sheet], fixed_time: _dt.
             _frame_sheet(ws, sh, index, big)
         if sh.rows is not None:
             _rows_sheet(ws, sh)
+            if sh.cached:
+                cached[f"xl/worksheets/sheet{index + 1}.xml"] = _cached_cells(sh)
         _place_charts(ws, sh)
     with atomic_path(path) as tmp:
         wb.save(tmp)
-        _normalise_zip(tmp, stamp, big)
+        _normalise_zip(tmp, stamp, big, cached)
 
 
 def _place_charts(ws, sh: Sheet) -> None:
@@ -215,9 +238,13 @@ def _place_charts(ws, sh: Sheet) -> None:
             ws.row_breaks.append(Break(id=coordinate_from_string(ch.anchor)[1] - 1))
 
 
-def _header_height(labels: list[str], widths: list[float]) -> float | None:
-    """Height in points of a header row whose labels wrap in their column widths (None: one line)."""
-    lines = max((1 if len(t) <= w - 2 else math.ceil(len(t) * 1.1 / max(1.0, w - 1.5))  # word wrap loses some room
+def _header_height(labels: list[str], widths: list[float], per_width: float = 1.0) -> float | None:
+    """Height in points of a row whose text wraps in its column widths (None: one line).
+
+    ``per_width`` is characters per unit of column width: about 1.0 for the bold headers, 1.2
+    for plain text (a width unit is one digit of the default font).
+    """
+    lines = max((1 if len(t) <= per_width * (w - 1) else math.ceil(len(t) / (per_width * max(1.0, w - 2)))
                  for t, w in zip(labels, widths)), default=1)
     return 15.0 * lines if lines > 1 else None
 
@@ -243,11 +270,13 @@ def _split_long(sheets: Sequence[Sheet]) -> list[Sheet]:
     return out
 
 
-def _normalise_zip(path: pathlib.Path, stamp: _dt.datetime, big: dict | None = None) -> None:
+def _normalise_zip(path: pathlib.Path, stamp: _dt.datetime, big: dict | None = None,
+                   cached: dict | None = None) -> None:
     """Rewrite a saved workbook with fixed zip entry times and ``stamp`` as its modified time.
 
     openpyxl stamps the save time into docProps/core.xml and the zip entries;
-    with this, equal content gives equal bytes.
+    with this, equal content gives equal bytes.  ``big`` (sheet part -> frame) adds the long
+    tables' rows; ``cached`` (sheet part -> {cell: result}) the cached results of formula cells.
     """
     import re
     import zipfile
@@ -261,6 +290,11 @@ def _normalise_zip(path: pathlib.Path, stamp: _dt.datetime, big: dict | None = N
         from grantval.io.xlsx.bigsheet import splice
 
         entries = [(info, splice(data, big[info.filename]) if info.filename in big else data)
+                   for info, data in entries]
+    if cached:
+        from grantval.io.xlsx.cached import splice_cached
+
+        entries = [(info, splice_cached(data, cached[info.filename]) if info.filename in cached else data)
                    for info, data in entries]
     with zipfile.ZipFile(path, "w", compression=zipfile.ZIP_DEFLATED) as dst:
         for info, data in entries:
