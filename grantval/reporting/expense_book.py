@@ -46,9 +46,13 @@ def summary_charts(head: int, n_periods: int, n_groups: int, current_col: int, c
     return [by_period, by_group] if n_groups else [by_period]
 
 
-def _money_widths(columns, total_cents: int) -> dict:
-    """Widths of amount columns wide enough for the largest amount (the grand total) with separators."""
-    return {c: max(12, len(f"{total_cents / 100.0:,.2f}") + 3) for c in columns}
+def _money_widths(columns, column_cents) -> dict:
+    """Widths of the period and total columns: wide enough for the column's total row (its largest amount).
+
+    ``column_cents`` are the totals of ``columns`` in cents; a column keeps the default width
+    (its date label) when its total fits, so the table prints no wider than it needs.
+    """
+    return {c: max(12, len(f"{abs(int(t)) / 100.0:,.2f}") + 2) for c, t in zip(columns, column_cents)}
 
 
 def _estimates_in_force(run) -> list[list]:
@@ -96,6 +100,7 @@ def expense_sheets(run, info: RunInfo, fv_frame, by_grant, by_group, tranches, u
     sfmt = {(first_total, 1): MONEY, (first_total + 1, 1): MONEY, (first_total + 2, 1): MONEY,
             (first_total + 3, 1): "0.00"}  # 0-based rows of the totals
     sfmt.update({(head + k, 1): MONEY for k in range(p)})
+    amount_widths = _money_widths([*period_fmt, "total"], [*period_totals, total_cents])
     charts = summary_charts(head, p, len(by_group), len(by_group.columns) - 1, period_labels(sched.period_ends)[-1])
     sheets = [
         run_sheet(info, info.workbook_time()),
@@ -104,9 +109,9 @@ def expense_sheets(run, info: RunInfo, fv_frame, by_grant, by_group, tranches, u
         Sheet("fair_values", frame=fv_frame, formats=FORMATS, text_columns=("grant_id",),
               widths={"fair_value_source": 44, "recomputed_fair_value_per_unit": 18, "tool_fair_value_per_unit": 16}),
         Sheet("expense_by_grant", frame=with_sum_formulas(by_grant, 7, "grant_id"), formats={**fmts, "total": MONEY},
-              text_columns=("grant_id", "group"), widths=_money_widths([*period_fmt, "total"], total_cents)),
+              text_columns=("grant_id", "group"), widths=amount_widths),
         Sheet("expense_by_group", frame=with_sum_formulas(by_group, 2, "group"), formats={**fmts, "total": MONEY},
-              text_columns=("group",), widths=_money_widths([*period_fmt, "total"], total_cents)),
+              text_columns=("group",), widths=amount_widths),
         Sheet("tranches", frame=tranches, formats=FORMATS, text_columns=("grant_id",)),
         Sheet("forecast", frame=with_sum_formulas(forecast, 7, "grant_id"),
               formats={**FORMATS, **fperiod_fmt, "total": MONEY}, text_columns=("grant_id", "group")),

@@ -30,7 +30,8 @@ WHATIF_NOTES = [
 CHART_SCENARIOS = 6
 
 
-TORNADO_LABELS = {"shift_lowest_expense": "Shift giving the lowest expense", "expense_change_low": "Expense change, lowest",
+TORNADO_LABELS = {"shift_lowest_expense": "Shift giving the lowest expense",
+                  "expense_change_low": "Expense change, lowest",
                   "shift_highest_expense": "Shift giving the highest expense",
                   "expense_change_high": "Expense change, highest"}
 
@@ -48,7 +49,8 @@ def tornado_sheet(torn) -> Sheet:
         charts.append(Chart("bar", "Tornado: change in expense, one assumption at a time",
                             [(lo, 1, lo, n + 1), (hi, 1, hi, n + 1)], (1, 2, 1, n + 1), f"A{n + 4}",
                             y_title="Change in expense from the base", x_title="Assumption shifted",
-                            horizontal=True, first_on_top=True, overlap=100, size=(20.0, min(14.0, 5.0 + 1.2 * n))))
+                            horizontal=True, first_on_top=True, overlap=100,
+                            size=(22.0, min(14.0, max(8.0, 4.0 + 1.5 * n)))))
     return Sheet("tornado", frame=torn, formats={c: MONEY for c in torn.columns if "change" in c or "range" in c},
                  labels=TORNADO_LABELS, widths={"assumption": 24}, charts=charts)
 
@@ -94,7 +96,8 @@ def whatif_sheets(info: RunInfo, scen, sens, torn, fvs, exp, greeks, curve, warn
     sheets = [
         run_sheet(info, info.workbook_time()),
         Sheet("scenarios", frame=scen, widths={"description": 70}),
-        Sheet("sensitivity", frame=sens, formats={**money_cols, **pct_cols}, widths={"description": 60}),
+        Sheet("sensitivity", frame=sens, formats={**money_cols, **pct_cols},
+              widths={**{c: 14 for c in [*money_cols, *pct_cols]}, "description": 44}),  # headers wrap
         tornado_sheet(torn),
         Sheet("fair_values", frame=fvs, formats={c: UNIT for c in fvs.columns if c != "grant_id"},
               text_columns=("grant_id",)),
@@ -103,7 +106,8 @@ def whatif_sheets(info: RunInfo, scen, sens, torn, fvs, exp, greeks, curve, warn
     if curve is not None:
         vc = Chart("scatter", "Grant-date fair value of the window's grants by volatility",
                    (4, 1, 4, len(curve) + 1), (3, 2, 3, len(curve) + 1), f"A{len(curve) + 4}",
-                   y_title="Grant-date fair value", x_title="Weighted-average volatility", category_format="0%", size=(18.0, 9.0),
+                   y_title="Grant-date fair value", x_title="Weighted-average volatility", category_format="0%",
+                   size=(18.0, 9.0),
                    legend=None)
         sheets.append(Sheet("volatility_curve", frame=curve,
                             formats={"weighted_average_volatility": "0.00%", "grant_date_fair_value_window": MONEY},

@@ -149,3 +149,25 @@ def test_chart_of_another_sheet_placed_before_it_and_page_break(tmp_path):
 def test_unknown_chart_kind_is_refused():
     with pytest.raises(ValueError, match="pie"):
         build_chart(Chart("pie", "t", (1, 1, 1, 2), (1, 2, 1, 2), "A1"), None)
+
+
+def test_change_chart_of_a_large_grid_draws_the_lowest_and_highest_scenarios():
+    import pandas as pd
+
+    from grantval.reporting.whatif_book import CHART_SCENARIOS, expense_period_sheet
+
+    ids = [f"S{k:02d}" for k in range(1, CHART_SCENARIOS + 3)]
+    ends = np.array(["2026-03-31", "2026-06-30"], dtype="datetime64[D]")
+    exp = pd.DataFrame({"period_end": ends, "base": [10.0, 10.0]})
+    shift = {sid: k - 3.0 for k, sid in enumerate(ids)}  # S01 lowest total change, the last one highest
+    for sid in ids:
+        exp[sid] = exp["base"] + shift[sid]
+    scen = pd.DataFrame({"scenario": ["base", *ids], "description": ["base", *[f"volatility=+0.0{k}" for k in
+                                                                                 range(len(ids))]]})
+    sheet = expense_period_sheet(exp, scen)
+    (chart,) = sheet.charts
+    cols = [c for c in sheet.frame.columns if c.startswith("change_")]
+    first = list(sheet.frame.columns).index(cols[0]) + 1
+    assert [r[0] - first for r in chart.ranges()] == [0, len(ids) - 1]
+    assert "lowest and highest" in chart.title
+    assert sheet.labels["change_S01"] == "Change S01 (volatility=+0.00)"
