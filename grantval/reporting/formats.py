@@ -13,6 +13,9 @@ UNIT = "#,##0.0000"
 COUNT = "#,##0"
 
 
+PRICE = "#,##0.00"
+
+
 FORMATS = {
     "exercise_price": "#,##0.00", "share_price": "#,##0.00", "volatility": "0.00%", "risk_free_rate": "0.000%",
     "dividend_yield": "0.00%", "post_vest_exit_rate": "0.00%", "contractual_term_years": "0.0000",
