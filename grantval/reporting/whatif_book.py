@@ -65,7 +65,7 @@ def expense_period_sheet(exp, scen) -> Sheet:
     n, ids = len(exp), [c for c in exp.columns if c != "period_end"]
     describe = dict(zip(scen["scenario"], scen["description"]))
     frame = exp.copy()
-    frame.insert(1, "period", period_labels(exp["period_end"]))
+    frame.insert(0, "period", period_labels(exp["period_end"]))  # the label (text, left) beside the date (right)
     base = col_letter(3)
     labels, change = {"period": "Period ending"}, []
     for k, sid in enumerate(ids[1:]):
@@ -81,7 +81,7 @@ def expense_period_sheet(exp, scen) -> Sheet:
         shown = sorted({int(np.argmin(totals)), int(np.argmax(totals))})
     title = "Change in expense from the base, by period" + (
         "" if len(shown) == len(change) else " (the scenarios with the lowest and highest total)")
-    charts = [Chart("line", title, [(first + k, 1, first + k, n + 1) for k in shown], (2, 2, 2, n + 1),
+    charts = [Chart("line", title, [(first + k, 1, first + k, n + 1) for k in shown], (1, 2, 1, n + 1),
                     f"A{n + 4}", y_title="Change in expense from the base", x_title="Period ending",
                     size=(24.0, 11.0), new_page=n > 20)] if change and n else []
     fmt = {c: MONEY for c in frame.columns if c not in ("period_end", "period")}

@@ -242,11 +242,26 @@ def _header_height(labels: list[str], widths: list[float], per_width: float = 1.
     """Height in points of a row whose text wraps in its column widths (None: one line).
 
     ``per_width`` is characters per unit of column width: about 1.0 for the bold headers, 1.2
-    for plain text (a width unit is one digit of the default font).
+    for plain text (a width unit is one digit of the default font).  Words are wrapped greedily
+    as a spreadsheet does; an estimate that errs towards one line too many.
     """
-    lines = max((1 if len(t) <= per_width * (w - 1) else math.ceil(len(t) / (per_width * max(1.0, w - 2)))
-                 for t, w in zip(labels, widths)), default=1)
+    lines = max((_wrapped_lines(t, per_width * (w - 0.5)) for t, w in zip(labels, widths)), default=1)
     return 15.0 * lines if lines > 1 else None
+
+
+def _wrapped_lines(text: str, capacity: float) -> int:
+    """Lines ``text`` takes when its words are wrapped at ``capacity`` characters (a longer word breaks)."""
+    lines, used = 1, 0
+    for word in text.split():
+        need = len(word) if used == 0 else used + 1 + len(word)
+        if need <= capacity:
+            used = need
+            continue
+        if used:
+            lines += 1
+        lines += max(0, math.ceil(len(word) / max(1.0, capacity)) - 1)
+        used = len(word) % max(1, int(capacity)) or len(word)
+    return lines
 
 
 def _split_long(sheets: Sequence[Sheet]) -> list[Sheet]:
