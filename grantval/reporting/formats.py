@@ -2,8 +2,6 @@
 
 from __future__ import annotations
 
-
-
 MONEY = "#,##0.00;[Red]-#,##0.00"
 
 

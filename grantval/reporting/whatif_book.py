@@ -9,7 +9,6 @@ from grantval.io.xlsx.sheet import Chart, Formula, Sheet
 from grantval.reporting.formats import MONEY, UNIT, period_labels
 from grantval.reporting.run_sheet import RunInfo, notes_sheet, run_sheet
 
-
 WHATIF_NOTES = [
     ("Scenarios", "Each scenario shifts the named assumptions of the grants dated in the chosen window: a level "
                   "(0.45) replaces the value, +0.05 adds to it, +10% scales it. Several --vary options give the full "

@@ -77,7 +77,7 @@ def test_summary_charts_expense_by_period_and_current_period_by_group(expense_bo
 
 
 def test_tornado_chart_horizontal_low_and_high_widest_on_top(whatif_book):
-    run, wb = whatif_book
+    _, wb = whatif_book
     ws = wb["tornado"]
     (chart,) = ws._charts
     assert type(chart).__name__ == "BarChart"

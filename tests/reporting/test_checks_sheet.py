@@ -16,7 +16,13 @@ from grantval.errors import OutputError
 from grantval.io.xlsx.cached import splice_cached
 from grantval.io.xlsx.sheet import Formula
 from grantval.io.xlsx.write import write_workbook
-from grantval.reporting.checks import FIGURE_FORMATS, TOLERANCE_FORMATS, CheckRow, check_kind, checks_sheet
+from grantval.reporting.checks import (
+    FIGURE_FORMATS,
+    TOLERANCE_FORMATS,
+    CheckRow,
+    check_kind,
+    checks_sheet,
+)
 
 LONG = ("Grants whose recognised + unrecognised differs from expected quantity x fair value by over a cent, "
         "counted grant by grant")

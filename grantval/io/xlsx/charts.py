@@ -112,16 +112,20 @@ def _axes(chart, spec: Chart) -> None:
         cat.number_format = spec.category_format
         cat.numFmt.sourceLinked = False
     cat.tickLblPos = "low"  # labels at the edge (left, or bottom), clear of bars and lines below zero
-    if spec.kind == "bar" and spec.horizontal:
-        if spec.first_on_top:
-            cat.scaling.orientation = "maxMin"
-            val.crosses = "max"  # with the categories reversed, keeps the value axis at the bottom
+    if spec.kind == "bar" and spec.horizontal and spec.first_on_top:
+        cat.scaling.orientation = "maxMin"
+        val.crosses = "max"  # with the categories reversed, keeps the value axis at the bottom
 
 
 def _label_text(degrees: int):
     """Axis label text properties: size ``LABEL_SIZE``, turned by ``degrees``."""
     from openpyxl.chart.text import RichText
-    from openpyxl.drawing.text import CharacterProperties, Paragraph, ParagraphProperties, RichTextProperties
+    from openpyxl.drawing.text import (
+        CharacterProperties,
+        Paragraph,
+        ParagraphProperties,
+        RichTextProperties,
+    )
 
     props = CharacterProperties(sz=LABEL_SIZE)
     return RichText(bodyPr=RichTextProperties(rot=degrees * 60000, vert="horz"),
@@ -132,7 +136,12 @@ def _title(text: str, size: int):
     """A chart or axis title of ``text`` in bold at ``size`` (hundredths of a point)."""
     from openpyxl.chart.text import RichText, Text
     from openpyxl.chart.title import Title
-    from openpyxl.drawing.text import CharacterProperties, Paragraph, ParagraphProperties, RegularTextRun
+    from openpyxl.drawing.text import (
+        CharacterProperties,
+        Paragraph,
+        ParagraphProperties,
+        RegularTextRun,
+    )
 
     props = CharacterProperties(sz=size, b=True)
     para = Paragraph(pPr=ParagraphProperties(defRPr=props), r=[RegularTextRun(rPr=props, t=text)])
