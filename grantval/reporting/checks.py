@@ -12,7 +12,13 @@ from grantval.io.xlsx.sheet import EXCEL_ROWS, Formula, Sheet
 
 @dataclass
 class CheckRow:
-    """One tie-out: two figures (values or formulas), a tolerance and the tool's own verdict."""
+    """One tie-out: two figures (values or formulas), a tolerance and the tool's own verdict.
+
+    ``kind`` says what the figures are, for their number format: "count" (whole numbers),
+    "money" (currency, to cents), "shares" (share or unit quantities with fractions) or
+    "relative" (values compared within a relative tolerance, shown to 10 places).  None
+    infers it (:func:`check_kind`).
+    """
 
     name: str
     a: object
@@ -20,27 +26,68 @@ class CheckRow:
     tolerance: float
     tool_pass: bool
     relative: bool = False
+    kind: str | None = None
+
+
+#: number formats of a check's figures and difference, and of its tolerance, by kind
+FIGURE_FORMATS = {"count": "#,##0", "money": "#,##0.00", "shares": "#,##0.0000", "relative": "#,##0.0000000000"}
+
+
+TOLERANCE_FORMATS = {"count": "#,##0", "money": "#,##0.00#", "shares": "#,##0.000000", "relative": "0.0000000000"}
+
+
+def check_kind(c: CheckRow) -> str:
+    """What a check's figures are: its own ``kind``, else inferred from its tolerance and name.
+
+    A relative tolerance compares values to 10 places; no tolerance means counted things; a
+    fractional tolerance on shares or units means quantities; any other tolerance is money.
+    """
+    if c.kind is not None:
+        return c.kind
+    if c.relative:
+        return "relative"
+    if c.tolerance == 0:
+        return "count"
+    words = c.name.lower()
+    return "shares" if ("shares" in words or "units" in words) and c.tolerance < 0.005 else "money"
+
+
+def _plain(v) -> float | None:
+    """A figure as a number when it is one (not a formula, not text), else None."""
+    if isinstance(v, (Formula, str, bool)) or v is None:
+        return None
+    v = float(v)
+    return v if np.isfinite(v) else None
 
 
 def checks_sheet(rows: list[CheckRow]) -> Sheet:
     """Checks as rows: figure A, figure B, difference, tolerance and one verdict column.
 
     The verdict is a live formula on the two figures and the tolerance, so it follows the
-    cells as recalculated; the tool's own verdict (``CheckRow.tool_pass``, the exit status
-    and the "check failed" lines) is compared with it in tests, not printed a second time.
+    cells as recalculated; the tool's own verdict (``CheckRow.tool_pass``, the exit status and
+    the "check failed" lines) is written as the formula's cached value, which readers that do
+    not recalculate show (and tests compare with the recalculated verdict).  The difference and
+    a relative tolerance get cached values too when the figures are plain numbers.  Figures are
+    formatted by what they are (:func:`check_kind`); labels wrap in their column.
     """
     out: list[list] = [["Check", "Figure A", "Figure B", "Difference", "Tolerance", "Verdict"]]
-    fmts = {}
-    for i, c in enumerate(rows):
-        r = i + 2
+    fmts, cached = {}, {}
+    for i, c in enumerate(rows, start=1):
+        r = i + 1
         tol = Formula(f"={c.tolerance!r}*ABS(C{r})") if c.relative else c.tolerance
         out.append([c.name, c.a, c.b, Formula(f"=B{r}-C{r}"), tol,
                     Formula(f'=IF(ABS(D{r})<=E{r},"PASS","FAIL")')])
-        for j in (1, 2, 3):
-            fmts[(i + 1, j)] = "#,##0.00########"
-        fmts[(i + 1, 4)] = "#,##0.00########"
-    return Sheet("checks", rows=out, widths={1: 70, 2: 20, 3: 20, 4: 14, 5: 12, 6: 10}, row_formats=fmts,
-                 verdicts=f"F2:F{len(rows) + 1}")
+        kind = check_kind(c)
+        fmts.update({(i, j): FIGURE_FORMATS[kind] for j in (1, 2, 3)})
+        fmts[(i, 4)] = TOLERANCE_FORMATS[kind]
+        cached[(i, 5)] = "PASS" if c.tool_pass else "FAIL"
+        a, b = _plain(c.a), _plain(c.b)
+        if a is not None and b is not None:
+            cached[(i, 3)] = a - b
+        if c.relative and b is not None:
+            cached[(i, 4)] = c.tolerance * abs(b)
+    return Sheet("checks", rows=out, widths={1: 68, 2: 19, 3: 19, 4: 16, 5: 14, 6: 10}, row_formats=fmts,
+                 verdicts=f"F2:F{len(rows) + 1}", wrap_columns=(1,), cached=cached)
 
 
 def _bsm_by_erf(s, k, t, r, v, q) -> np.ndarray:

@@ -29,11 +29,16 @@ def _grant_lines(grants) -> Sheet:
     return Sheet("grant_disclosures", rows=rows, row_formats=fmts, widths={1: 80, 2: 18})
 
 
+def _activity(name: str, frame, line_width: int) -> Sheet:
+    """An activity table: its line labels at ``line_width``, figures in narrow columns under wrapped headers."""
+    widths = {c: 15 for c in frame.columns if c != "line"} | {"line": line_width}
+    return Sheet(name, frame=frame, formats=FORMATS, widths=widths)
+
+
 def disclosure_sheets(d) -> list[Sheet]:
     """Option activity, RSU activity and the window's grant figures."""
     return [
-        Sheet("option_activity", frame=d.options, formats=FORMATS, widths={"line": 38}),
-        Sheet("rsu_activity", frame=d.rsus, formats=FORMATS, widths={"line": 24}),
+        _activity("option_activity", d.options, 38),
+        _activity("rsu_activity", d.rsus, 24),
         _grant_lines(d.grants),
-    ] + ([Sheet("performance_unit_activity", frame=d.performance_units, formats=FORMATS, widths={"line": 44})]
-         if d.performance_units is not None else [])
+    ] + ([_activity("performance_unit_activity", d.performance_units, 44)] if d.performance_units is not None else [])

@@ -12,6 +12,7 @@ import numpy as np
 import pandas as pd
 
 from grantval.reporting.checks import CheckRow
+from grantval.reporting.formats import COUNT, MONEY, PRICE, UNIT
 
 
 @dataclass
@@ -103,9 +104,50 @@ def feature_sections(ledger, policy, fair_values, inputs, start, through) -> Fea
     return out
 
 
-def feature_sheets(sections: FeatureSections) -> list:
-    """One workbook sheet per section table (the CSV name without ``.csv``)."""
+#: number formats and column widths of each section's sheet (dates as dates, counts whole, money to cents)
+SHEET_LAYOUT = {
+    "modification_disclosure": ({"modification_date": "yyyy-mm-dd", "grants": COUNT, "holders_affected": COUNT,
+                                 "units_affected": COUNT, "incremental_cost": MONEY},
+                                {"modification_date": 14, "change": 34, "grants": 10, "holders_affected": 12,
+                                 "units_affected": 12, "incremental_cost": 18, "fair_value_measured": 60}),
+    "liability_disclosure": ({"value": MONEY}, {"item": 64, "value": 20}),
+}
+
+
+FEATURE_LABELS = {"weighted_average_grant_date_fair_value": "Weighted-average grant-date fair value",
+                  "fair_value_measured": "Fair value measured by", "units_affected": "Units affected",
+                  "holders_affected": "Holders affected"}
+
+
+def purchase_plan_sheet(frame):
+    """The purchase-plan lines, one format per line: numbers of rights and shares whole, the price to cents.
+
+    The ``number`` column holds counts and, on its last line, the weighted-average purchase price,
+    so the sheet is written as rows with a format per cell (like ``grant_disclosures``).
+    """
     from grantval.io.xlsx.sheet import Sheet
 
-    return [Sheet(name[:-4], frame=frame, widths={"item": 60, "line": 36, "change": 30})
-            for name, frame in sections.tables.items()]
+    rows: list[list] = [["Line", "Number", "Weighted-average grant-date fair value"]]
+    fmts = {}
+    for i, (line, number, fv) in enumerate(zip(frame["line"], frame["number"],
+                                               frame["weighted_average_grant_date_fair_value"]), start=1):
+        rows.append([str(line), None if number != number else float(number), None if fv != fv else float(fv)])
+        fmts[(i, 1)] = PRICE if "price" in str(line) else COUNT
+        fmts[(i, 2)] = UNIT
+    return Sheet("purchase_plan_activity", rows=rows, row_formats=fmts, widths={1: 36, 2: 14, 3: 40})
+
+
+def feature_sheets(sections: FeatureSections) -> list:
+    """One workbook sheet per section table (the CSV name without ``.csv``), formatted by what each column holds."""
+    from grantval.io.xlsx.sheet import Sheet
+
+    out = []
+    for name, frame in sections.tables.items():
+        if name == "purchase_plan_activity.csv":
+            out.append(purchase_plan_sheet(frame))
+            continue
+        formats, widths = SHEET_LAYOUT.get(name[:-4], ({}, {"item": 60, "line": 36, "change": 30}))
+        out.append(Sheet(name[:-4], frame=frame, formats=formats, widths=widths, labels=FEATURE_LABELS,
+                         text_columns=tuple(c for c in ("change", "fair_value_measured", "item", "line")
+                                            if c in frame.columns)))
+    return out

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import numpy as np
 from grantval.io.xlsx.sheet import Chart, Sheet
-from grantval.reporting.formats import FORMATS, MONEY
+from grantval.reporting.formats import FORMATS, MONEY, period_labels
 from grantval.reporting.run_sheet import RunInfo, notes_sheet, run_sheet
 from grantval.reporting.period_tables import with_sum_formulas
 from grantval.reporting.checks import CheckRow, checks_sheet
@@ -25,6 +25,34 @@ def _with_total_row(frame, columns) -> "pd.DataFrame":
         letter = col_letter(list(frame.columns).index(c) + 1)
         row[c] = Formula(f"=SUM({letter}2:{letter}{n + 1})")
     return pd.concat([frame.astype(object), pd.DataFrame([row])], ignore_index=True)
+
+
+#: a summary of up to this many rows (with its charts) is printed on one page
+SUMMARY_ONE_PAGE = 72
+
+
+def summary_charts(head: int, n_periods: int, n_groups: int, current_col: int, current: str) -> list[Chart]:
+    """The summary's charts: expense by period (its own period table) and the current period by group.
+
+    ``head`` is the 1-based row of the period table's header on the summary; ``current_col`` the
+    1-based column of the current (last) period on ``expense_by_group``, whose rows 2.. are the groups.
+    """
+    by_period = Chart("bar", "Expense by period", (2, head, 2, head + n_periods), (1, head + 1, 1, head + n_periods),
+                      "D2", y_title="Expense", x_title="Period ending", legend=None)
+    height = min(12.0, max(7.5, 3.0 + 0.8 * n_groups))
+    by_group = Chart("bar", f"Expense by group, period ending {current}", (current_col, 1, current_col, n_groups + 1),
+                     (1, 2, 1, n_groups + 1), "D21", source="expense_by_group", y_title="Expense", x_title="Group",
+                     horizontal=True, first_on_top=True, legend=None, size=(16.0, height))
+    return [by_period, by_group] if n_groups else [by_period]
+
+
+def _money_widths(columns, column_cents) -> dict:
+    """Widths of the period and total columns: wide enough for the column's total row (its largest amount).
+
+    ``column_cents`` are the totals of ``columns`` in cents; a column keeps the default width
+    (its date label) when its total fits, so the table prints no wider than it needs.
+    """
+    return {c: max(12, len(f"{abs(int(t)) / 100.0:,.2f}") + 2) for c, t in zip(columns, column_cents)}
 
 
 def _estimates_in_force(run) -> list[list]:
@@ -66,26 +94,24 @@ def expense_sheets(run, info: RunInfo, fv_frame, by_grant, by_group, tranches, u
     ]
     summary += _estimates_in_force(run)
     head = len(summary) + 1  # 1-based row of the period table's header
-    summary.append(["Period end", "Expense"])
-    summary += [[str(d), int(c) / 100.0] for d, c in zip(sched.period_ends, period_totals)]
+    summary.append(["Period ending", "Expense"])
+    summary += [[lab, int(c) / 100.0] for lab, c in zip(period_labels(sched.period_ends), period_totals)]
     first_total = next(i for i, r in enumerate(summary) if r and str(r[0]).startswith("Expense in the current"))
     sfmt = {(first_total, 1): MONEY, (first_total + 1, 1): MONEY, (first_total + 2, 1): MONEY,
             (first_total + 3, 1): "0.00"}  # 0-based rows of the totals
     sfmt.update({(head + k, 1): MONEY for k in range(p)})
-    charts = [Chart("bar", "Expense by period", (2, head, 2, head + p), (1, head + 1, 1, head + p), "D2",
-                    y_title="Expense", x_title="Period end")]
-    n_groups = len(by_group)
-    group_chart = Chart("bar", "Expense by group", (len(by_group.columns), 1, len(by_group.columns), n_groups + 1),
-                        (1, 2, 1, n_groups + 1), f"A{n_groups + 5}", y_title="Expense")
+    amount_widths = _money_widths([*period_fmt, "total"], [*period_totals, total_cents])
+    charts = summary_charts(head, p, len(by_group), len(by_group.columns) - 1, period_labels(sched.period_ends)[-1])
     sheets = [
         run_sheet(info, info.workbook_time()),
-        Sheet("summary", rows=summary, widths={1: 52, 2: 22}, charts=charts, row_formats=sfmt),
+        Sheet("summary", rows=summary, widths={1: 52, 2: 42}, charts=charts, row_formats=sfmt,
+              fit_height=1 if len(summary) <= SUMMARY_ONE_PAGE else 0),
         Sheet("fair_values", frame=fv_frame, formats=FORMATS, text_columns=("grant_id",),
               widths={"fair_value_source": 44, "recomputed_fair_value_per_unit": 18, "tool_fair_value_per_unit": 16}),
         Sheet("expense_by_grant", frame=with_sum_formulas(by_grant, 7, "grant_id"), formats={**fmts, "total": MONEY},
-              text_columns=("grant_id", "group")),
+              text_columns=("grant_id", "group"), widths=amount_widths),
         Sheet("expense_by_group", frame=with_sum_formulas(by_group, 2, "group"), formats={**fmts, "total": MONEY},
-              text_columns=("group",), charts=[group_chart]),
+              text_columns=("group",), widths=amount_widths),
         Sheet("tranches", frame=tranches, formats=FORMATS, text_columns=("grant_id",)),
         Sheet("forecast", frame=with_sum_formulas(forecast, 7, "grant_id"),
               formats={**FORMATS, **fperiod_fmt, "total": MONEY}, text_columns=("grant_id", "group")),

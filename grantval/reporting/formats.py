@@ -2,12 +2,16 @@
 
 from __future__ import annotations
 
-
-
 MONEY = "#,##0.00;[Red]-#,##0.00"
 
 
 UNIT = "#,##0.0000"
+
+
+COUNT = "#,##0"
+
+
+PRICE = "#,##0.00"
 
 
 FORMATS = {
@@ -26,3 +30,19 @@ FORMATS = {
 
 
 LEDGER_TEXT = ("grant_id", "holder_id", "group", "assumption_key")
+
+
+def period_labels(period_ends) -> list[str]:
+    """Period ends as printed labels: "Dec 2026" for a month end, "17 Aug 2030" for any other day.
+
+    Every period (month, quarter or fiscal year) ends on a month end, so the month names it
+    exactly; a window cut short (a through date within a month) keeps its day.
+    """
+    import numpy as np
+
+    days = np.asarray(period_ends, dtype="datetime64[D]")
+    month_end = (days + np.timedelta64(1, "D")).astype("datetime64[M]") != days.astype("datetime64[M]")
+    out = []
+    for d, whole in zip(days.astype(object), month_end):
+        out.append(d.strftime("%b %Y") if whole else f"{d.day} {d.strftime('%b %Y')}")
+    return out

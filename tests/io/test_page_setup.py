@@ -28,9 +28,77 @@ def test_every_sheet_has_page_set_up_and_a_run_sheet(tmp_path, command):
     assert wb.sheetnames[0] == "run"
     for ws in wb.worksheets:
         assert ws.sheet_properties.pageSetUpPr.fitToPage, ws.title   # one page wide
-        assert ws.page_setup.fitToWidth == 1 and ws.page_setup.fitToHeight == 0, ws.title
+        assert ws.page_setup.fitToWidth == 1, ws.title
+        # rows run on over pages; the expense summary (text and its two charts) fits on one page
+        assert ws.page_setup.fitToHeight == (1 if (command, ws.title) == ("expense", "summary") else 0), ws.title
         assert ws.page_setup.orientation in ("landscape", "portrait"), ws.title
         assert "grantval" in ws.oddFooter.left.text and "SHA-256" in ws.oddFooter.left.text, ws.title
         assert ws.oddFooter.right.text == "&A, page &P of &N", ws.title
         if ws.max_row > 1 and ws.freeze_panes == "A2":  # a table: its header row repeats on every page
             assert ws.print_title_rows == "$1:$1", ws.title
+
+
+def _assert_set_up(ws, table=True):
+    assert ws.sheet_properties.pageSetUpPr.fitToPage, ws.title
+    assert ws.page_setup.fitToWidth == 1 and ws.page_setup.fitToHeight == 0, ws.title
+    assert ws.page_setup.orientation in ("landscape", "portrait"), ws.title
+    assert "grantval" in ws.oddFooter.left.text and "SHA-256" in ws.oddFooter.left.text, ws.title
+    assert ws.oddFooter.right.text == "&A, page &P of &N", ws.title
+    assert not table or ws.print_title_rows == "$1:$1", ws.title
+
+
+def _feature_books(tmp_path):
+    """Disclose workbooks of ledgers using each feature (the feature tests' ledgers)."""
+    import grantval.runs.disclose as RD
+    from tests.attribution import test_espp as ES
+    from tests.attribution.cash_ledgers import ifrs_example_12
+    from tests.attribution.test_modifications import ig_example_7
+
+    cases = [(ifrs_example_12(tmp_path / "cash"), "2029-01-01", "2030-12-31", dict(period="year")),
+             (ES.ledger(tmp_path / "espp", [ES.offering()], [ES.enrol()]), "2027-01-01", "2027-12-31", {}),
+             (ig_example_7(tmp_path / "mod"), "2025-01-01", "2027-12-31", dict(standard="ifrs2"))]
+    for k, (folder, start, through, kw) in enumerate(cases):
+        out = tmp_path / f"d{k}.xlsx"
+        RD.write_disclosure(RD.disclose(folder, start=start, through=through, **kw), out, None, timestamp=False)
+        yield openpyxl.load_workbook(out)
+
+
+#: the feature sections' sheets: column header -> number format of its first data cell
+FEATURE_FORMATS = {
+    "liability_disclosure": {"Value": "#,##0.00;[Red]-#,##0.00"},
+    "purchase_plan_activity": {"Number": "#,##0", "Weighted-average grant-date fair value": "#,##0.0000"},  # line 2
+    "modification_disclosure": {"Modification date": "yyyy-mm-dd", "Grants": "#,##0", "Holders affected": "#,##0",
+                                "Units affected": "#,##0", "Incremental cost": "#,##0.00;[Red]-#,##0.00"},
+}
+
+
+def test_disclose_feature_sheets_have_set_up_and_formats(tmp_path):
+    seen = set()
+    for wb in _feature_books(tmp_path):
+        for name, formats in FEATURE_FORMATS.items():
+            if name not in wb.sheetnames:
+                continue
+            seen.add(name)
+            ws = wb[name]
+            _assert_set_up(ws, table=name != "purchase_plan_activity")  # a short list of lines, a format each
+            head = [c.value for c in ws[1]]
+            row = 3 if name == "purchase_plan_activity" else 2  # "Granted (enrolled)": has both figures
+            for label, fmt in formats.items():
+                cell = ws.cell(row, head.index(label) + 1)
+                assert cell.number_format == fmt, (name, label)
+            for j, label in enumerate(head, start=1):  # no header cut at the column edge: wide or wrapped
+                width = ws.column_dimensions[openpyxl.utils.get_column_letter(j)].width
+                assert len(label) <= width - 1 or ws.row_dimensions[1].height, (name, label)
+    assert seen == set(FEATURE_FORMATS)
+
+
+def test_purchase_plan_price_line_is_formatted_as_a_price_not_a_count():
+    import pandas as pd
+
+    from grantval.reporting.disclosure_features import purchase_plan_sheet
+
+    frame = pd.DataFrame({"line": ["Shares bought (purchase events)", "Weighted-average purchase price"],
+                          "number": [100.0, 17.0], "weighted_average_grant_date_fair_value": [float("nan")] * 2})
+    sheet = purchase_plan_sheet(frame)
+    assert sheet.rows[2] == ["Weighted-average purchase price", 17.0, None]
+    assert sheet.row_formats[(1, 1)] == "#,##0" and sheet.row_formats[(2, 1)] == "#,##0.00"

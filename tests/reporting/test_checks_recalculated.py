@@ -55,3 +55,19 @@ def test_a_corrupted_equity_cell_turns_the_live_cost_check_to_fail(written):
     live = _verdicts(bad, work / "bad")
     assert live[COST] == "FAIL"
     assert [k for k, v in live.items() if v == "FAIL"] == [COST]
+
+
+def test_cached_verdict_does_not_mask_the_live_formula(tmp_path):
+    # The tool's verdict is the verdict formula's cached value (for readers that do not recalculate);
+    # a spreadsheet that recalculates must still follow the cells.  Here the cached value says PASS
+    # while the figures differ by 1 with no tolerance: LibreOffice must read FAIL.
+    from grantval.io.xlsx.write import write_workbook
+    from grantval.reporting.checks import CheckRow, checks_sheet
+
+    book = tmp_path / "c.xlsx"
+    write_workbook(book, [checks_sheet([CheckRow("Cached PASS, figures apart", 1, 2, 0, True),
+                                        CheckRow("Cached FAIL, figures equal", 3, 3, 0, False)])])
+    assert [r[5] for r in openpyxl.load_workbook(book, data_only=True)["checks"].iter_rows(min_row=2, values_only=True)] \
+        == ["PASS", "FAIL"]
+    live = _verdicts(book, tmp_path)
+    assert live == {"Cached PASS, figures apart": "FAIL", "Cached FAIL, figures equal": "PASS"}

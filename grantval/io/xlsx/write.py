@@ -13,11 +13,11 @@ import pandas as pd
 from grantval.errors import OutputError
 from grantval.io.csv import _column_values
 from grantval.io.files import atomic_path
+from grantval.io.xlsx.charts import build_chart
 from grantval.io.xlsx.sheet import (
     EXCEL_COLUMNS,
     EXCEL_ROWS,
     FAST_ROWS,
-    Chart,
     Formula,
     Sheet,
     label,
@@ -46,21 +46,26 @@ def _frame_sheet(ws, sh: Sheet, index: int, big: dict) -> None:
     from openpyxl.styles import Alignment, Border, Font, Side
     from openpyxl.utils import get_column_letter
 
-    bold, top = Font(bold=True), Border(top=Side(style="thin"))
+    bold, top, under = Font(bold=True), Border(top=Side(style="thin")), Border(bottom=Side(style="thin"))
     cols = list(sh.frame.columns)
     if len(cols) > EXCEL_COLUMNS:
         raise OutputError(f"the sheet {sh.name} would have {len(cols):,} columns, more than Excel's "
                           f"{EXCEL_COLUMNS:,}; use fewer periods (a longer --period) or --csv-dir")
+    widths = []
     for j, c in enumerate(cols, start=1):
         width = sh.widths.get(c, max(10, min(40, len(sh.labels.get(c, label(c))) + 2)))
         ws.column_dimensions[get_column_letter(j)].width = width
+        widths.append(width)
+    height = _header_height([sh.labels.get(c, label(c)) for c in cols], widths)
+    if height:
+        ws.row_dimensions[1].height = height
     ws.freeze_panes = "A2"
     if len(sh.frame):
         ws.auto_filter.ref = f"A1:{get_column_letter(len(cols))}{len(sh.frame) + 1}"
     header = []
     for c in cols:
         cell = WriteOnlyCell(ws, value=sh.labels.get(c, label(c)))
-        cell.font = bold
+        cell.font, cell.border = bold, under
         cell.alignment = Alignment(wrap_text=True, vertical="top")
         header.append(cell)
     ws.append(header)
@@ -104,12 +109,13 @@ def _frame_cell(ws, v, fmt, is_text):
 
 
 def _rows_sheet(ws, sh: Sheet) -> None:
-    """A free-form sheet (notes, summaries, checks): rows as given, the first bold."""
+    """A free-form sheet (notes, summaries, checks): rows as given, the first bold; wrapped columns made tall."""
     from openpyxl.cell import WriteOnlyCell
-    from openpyxl.styles import Font
+    from openpyxl.styles import Alignment, Font
     from openpyxl.utils import get_column_letter
 
     bold = Font(bold=True)
+    wrap, top = Alignment(wrap_text=True, vertical="top"), Alignment(vertical="top")
     for j, w in sh.widths.items():
         if isinstance(j, int):
             ws.column_dimensions[get_column_letter(j)].width = w
@@ -132,19 +138,39 @@ def _rows_sheet(ws, sh: Sheet) -> None:
                 continue
             if fmt:
                 cell.number_format = fmt
+            if sh.wrap_columns:  # one vertical alignment on the row, labels wrapped
+                cell.alignment = wrap if j + 1 in sh.wrap_columns else top
             out.append(cell)
+        height = _wrapped_height(row, sh)
+        if height:
+            ws.row_dimensions[i + 1].height = height
         ws.append(out)
+
+
+def _wrapped_height(row: list, sh: Sheet) -> float | None:
+    """Height in points of a rows-sheet row whose wrapped text needs more than one line (None: one line)."""
+    texts = [(str(row[j - 1]), sh.widths.get(j, 10)) for j in sh.wrap_columns if j - 1 < len(row)
+             and isinstance(row[j - 1], str)]
+    return _header_height([t for t, _ in texts], [w for _, w in texts], per_width=1.2) if texts else None
+
+
+def _cached_cells(sh: Sheet) -> dict[str, object]:
+    """The sheet's cached formula results by cell reference (``"F2"``)."""
+    from grantval.io.cells import col_letter
+
+    return {f"{col_letter(j + 1)}{i + 1}": _cell_value(v) for (i, j), v in sh.cached.items()}
 
 
 def _page_setup(ws, sh: Sheet, footer: str) -> None:
     """Print set-up: landscape where wide, one page wide, header row repeated, a footer with the run and pages."""
     n_cols = len(sh.frame.columns) if sh.frame is not None else max((len(r) for r in sh.rows or [[]]), default=1)
-    ws.page_setup.orientation = "landscape" if n_cols > 6 or sh.rows is not None and n_cols > 3 else "portrait"
+    wide = n_cols > 6 or sh.rows is not None and n_cols > 3 or bool(sh.charts)  # a chart sits beside the table
+    ws.page_setup.orientation = "landscape" if wide else "portrait"
     ws.page_setup.paperSize = "9"  # A4
     ws.page_setup.fitToWidth = 1
-    ws.page_setup.fitToHeight = 0
+    ws.page_setup.fitToHeight = sh.fit_height
     ws.sheet_properties.pageSetUpPr.fitToPage = True
-    ws.print_options.gridLines = sh.frame is not None
+    ws.print_options.gridLines = sh.frame is not None and not sh.charts  # no grid printed around a chart
     ws.page_margins.left = ws.page_margins.right = 0.4
     if sh.frame is not None:
         ws.print_title_rows = "1:1"
@@ -185,6 +211,7 @@ def write_workbook(path: pathlib.Path, sheets: Sequence[Sheet], fixed_time: _dt.
     wb.properties.modified = stamp
     wb.properties.creator = "grantval"
     big: dict[str, pd.DataFrame] = {}
+    cached: dict[str, dict] = {}
     for index, sh in enumerate(_split_long(sheets)):
         ws = wb.create_sheet(sh.name)
         _page_setup(ws, sh, footer or f"grantval {__version__}")  # before the rows: the sheet's head is streamed first
@@ -192,27 +219,49 @@ def write_workbook(path: pathlib.Path, sheets: Sequence[Sheet], fixed_time: _dt.
             _frame_sheet(ws, sh, index, big)
         if sh.rows is not None:
             _rows_sheet(ws, sh)
-        for ch in sh.charts:
-            ws.add_chart(_build_chart(ch, wb, ws), ch.anchor)
+            if sh.cached:
+                cached[f"xl/worksheets/sheet{index + 1}.xml"] = _cached_cells(sh)
+        _place_charts(ws, sh)
     with atomic_path(path) as tmp:
         wb.save(tmp)
-        _normalise_zip(tmp, stamp, big)
+        _normalise_zip(tmp, stamp, big, cached)
 
 
-def _build_chart(spec: Chart, wb, ws):
-    from openpyxl.chart import BarChart, LineChart, Reference
+def _place_charts(ws, sh: Sheet) -> None:
+    """Add the sheet's charts at their anchors, with a page break above those printed on their own page."""
+    from openpyxl.utils.cell import coordinate_from_string
+    from openpyxl.worksheet.pagebreak import Break
 
-    chart = BarChart() if spec.kind == "bar" else LineChart()
-    chart.title = spec.title
-    chart.y_axis.title = spec.y_title
-    chart.x_axis.title = spec.x_title
-    chart.height, chart.width = 9, 18
-    src = ws if spec.source is None else wb[spec.source]
-    c0, r0, c1, r1 = spec.data
-    chart.add_data(Reference(src, min_col=c0, min_row=r0, max_col=c1, max_row=r1), titles_from_data=True)
-    c0, r0, c1, r1 = spec.categories
-    chart.set_categories(Reference(src, min_col=c0, min_row=r0, max_col=c1, max_row=r1))
-    return chart
+    for ch in sh.charts:
+        ws.add_chart(build_chart(ch, ws), ch.anchor)
+        if ch.new_page:
+            ws.row_breaks.append(Break(id=coordinate_from_string(ch.anchor)[1] - 1))
+
+
+def _header_height(labels: list[str], widths: list[float], per_width: float = 1.0) -> float | None:
+    """Height in points of a row whose text wraps in its column widths (None: one line).
+
+    ``per_width`` is characters per unit of column width: about 1.0 for the bold headers, 1.2
+    for plain text (a width unit is one digit of the default font).  Words are wrapped greedily
+    as a spreadsheet does; an estimate that errs towards one line too many.
+    """
+    lines = max((_wrapped_lines(t, per_width * (w - 0.5)) for t, w in zip(labels, widths)), default=1)
+    return 15.0 * lines if lines > 1 else None
+
+
+def _wrapped_lines(text: str, capacity: float) -> int:
+    """Lines ``text`` takes when its words are wrapped at ``capacity`` characters (a longer word breaks)."""
+    lines, used = 1, 0
+    for word in text.split():
+        need = len(word) if used == 0 else used + 1 + len(word)
+        if need <= capacity:
+            used = need
+            continue
+        if used:
+            lines += 1
+        lines += max(0, math.ceil(len(word) / max(1.0, capacity)) - 1)
+        used = len(word) % max(1, int(capacity)) or len(word)
+    return lines
 
 
 def _split_long(sheets: Sequence[Sheet]) -> list[Sheet]:
@@ -236,11 +285,13 @@ def _split_long(sheets: Sequence[Sheet]) -> list[Sheet]:
     return out
 
 
-def _normalise_zip(path: pathlib.Path, stamp: _dt.datetime, big: dict | None = None) -> None:
+def _normalise_zip(path: pathlib.Path, stamp: _dt.datetime, big: dict | None = None,
+                   cached: dict | None = None) -> None:
     """Rewrite a saved workbook with fixed zip entry times and ``stamp`` as its modified time.
 
     openpyxl stamps the save time into docProps/core.xml and the zip entries;
-    with this, equal content gives equal bytes.
+    with this, equal content gives equal bytes.  ``big`` (sheet part -> frame) adds the long
+    tables' rows; ``cached`` (sheet part -> {cell: result}) the cached results of formula cells.
     """
     import re
     import zipfile
@@ -254,6 +305,11 @@ def _normalise_zip(path: pathlib.Path, stamp: _dt.datetime, big: dict | None = N
         from grantval.io.xlsx.bigsheet import splice
 
         entries = [(info, splice(data, big[info.filename]) if info.filename in big else data)
+                   for info, data in entries]
+    if cached:
+        from grantval.io.xlsx.cached import splice_cached
+
+        entries = [(info, splice_cached(data, cached[info.filename]) if info.filename in cached else data)
                    for info, data in entries]
     with zipfile.ZipFile(path, "w", compression=zipfile.ZIP_DEFLATED) as dst:
         for info, data in entries:
