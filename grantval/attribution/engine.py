@@ -111,6 +111,7 @@ class _Quantities:
     granted_g: np.ndarray
     years_left_t: np.ndarray
     years_left_g: np.ndarray
+    kept: np.ndarray = None   # per layer: units forfeited on or after the layer's own end that keep its cost
     as_of: int | None = None  # forecasts: the day whose expected quantities and payouts are kept
 
 
@@ -146,6 +147,9 @@ def _quantities(inp: ExpenseInputs, dn: int, forfeitures: str, cut: int, est_day
     else:
         n_exp = outstanding.astype(float)
     granted_g = pre.grant <= dn
+    kept = np.zeros(len(pre.l_tranche))
+    if len(pre.l_kept):
+        kept[pre.l_kept] = _kept_units(inp, pre, pre.l_kept, forf)
     q = _Quantities(
         outstanding=outstanding, cancelled=cancelled, n_exp=n_exp, vested=vested, granted_by=granted_by,
         started=pre.l_start <= dn,
@@ -154,12 +158,29 @@ def _quantities(inp: ExpenseInputs, dn: int, forfeitures: str, cut: int, est_day
                          0.0),
         el_set=np.where(pre.set_start <= dn, _elapsed(dn, pre.set_start, pre.set_len), 0.0),
         granted_g=granted_g,
+        kept=kept,
         years_left_t=np.maximum(pre.t_vest - dn, 0) / DAYS_PER_YEAR,
         years_left_g=np.maximum(pre.last - dn, 0) / DAYS_PER_YEAR,
     )
     if inp.memo is not None:
         inp.memo[key] = q
     return q
+
+
+def _kept_units(inp: ExpenseInputs, pre, layers: np.ndarray, forf: np.ndarray) -> np.ndarray:
+    """Per layer of ``layers``: units of its tranche forfeited (``forf`` changes) on or after the layer's end."""
+    c_t, c_d, c_q = inp.c_tranche[forf], pre.c_date[forf], inp.c_qty[forf].astype(float)
+    out = np.zeros(len(layers))
+    if not len(c_t):
+        return out
+    t, end = pre.l_tranche[layers], pre.l_end[layers]
+    order = np.lexsort((c_d, c_t))
+    c_t, c_d, c_q = c_t[order], c_d[order], c_q[order]
+    csum = np.r_[0.0, np.cumsum(c_q)]
+    key_c = c_t.astype(np.float64) * 1e7 + c_d
+    lo = np.searchsorted(key_c, t.astype(np.float64) * 1e7 + end, side="left")
+    hi = np.searchsorted(c_t, t, side="right")
+    return np.where(hi > lo, csum[np.maximum(hi, lo)] - csum[lo], 0.0)
 
 
 def _apply_hooks(inp: ExpenseInputs, Q: _Quantities, dn: int, attribution: str, cost, expected_total, unrec,
@@ -208,7 +229,7 @@ def measure(inp: ExpenseInputs, d, *, attribution: str, forfeitures: str, events
     pre = inp.prepared()
     lg, lt = pre.l_grant, pre.l_tranche
     n_g = inp.n_grants
-    value = inp.layers.fair_value * Q.n_exp[lt]  # per layer
+    value = inp.layers.fair_value * (Q.n_exp[lt] + Q.kept)  # per layer
     started = Q.started
     cancel_cost = np.bincount(lg, weights=np.where(Q.granted_by[lt] & started,
                                                    inp.layers.fair_value * Q.cancelled[lt], 0.0), minlength=n_g)

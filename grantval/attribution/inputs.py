@@ -143,7 +143,11 @@ class Prepared:
         self.l_tranche = lay.tranche
         self.l_grant = inp.t_grant[lay.tranche]
         self.l_start = _days(lay.start)
-        self.l_len = self.t_end[lay.tranche] - self.l_start
+        own_end = ~np.isnat(np.asarray(lay.end, dtype="datetime64[D]"))
+        self.l_end = np.where(own_end, _days(lay.end), self.t_end[lay.tranche])
+        self.l_len = self.l_end - self.l_start
+        # layers kept for units forfeited on or after their own end (see CostLayers.kept)
+        self.l_kept = np.flatnonzero(np.asarray(lay.kept, dtype=bool))
         keys = self.l_grant * (int(lay.set_id.max(initial=0)) + 1) + lay.set_id
         uniq, self.l_set = np.unique(keys, return_inverse=True)
         self.l_set = self.l_set.ravel()
@@ -151,7 +155,16 @@ class Prepared:
         first[self.l_set[::-1]] = np.arange(len(lay))[::-1]
         self.set_grant = self.l_grant[first]
         self.set_start = self.l_start[first]
-        self.set_len = self.last[self.set_grant] - self.set_start
+        # a set's service runs to the award's last service end, or to the latest own end of its layers
+        set_end = self.last[self.set_grant].copy()
+        if own_end.any():
+            own = np.full(len(uniq), np.iinfo(np.int64).min, dtype=np.int64)
+            np.maximum.at(own, self.l_set[own_end], self.l_end[own_end])
+            has = np.bincount(self.l_set[own_end], minlength=len(uniq)) > 0
+            every = np.bincount(self.l_set, weights=own_end.astype(float), minlength=len(uniq)) == np.bincount(
+                self.l_set, minlength=len(uniq))
+            set_end = np.where(has & every, own, np.where(has, np.maximum(set_end, own), set_end))
+        self.set_len = set_end - self.set_start
 
 
 def hook_builders() -> list[Callable]:
