@@ -32,6 +32,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from grantval.attribution.layers import CostLayers
+from grantval.attribution.service import service_end
 
 
 @dataclass
@@ -52,7 +53,8 @@ def _layer_rows(values, t_fv_so_far: np.ndarray, standard: str):
     unvested = values.vest_before > t.date[p]
     inc = values.after - values.before
     not_expected = _not_expected(values)
-    type3 = (standard == "asc718") & not_expected & t.accelerate[p] & unvested
+    # vests on the modification date (accelerated, or a new schedule that vests it at once)
+    type3 = (standard == "asc718") & not_expected & (values.vest_after <= t.date[p]) & unvested
     per_unit = np.where(type3, values.after, np.maximum(inc, 0.0))
     reverse = np.where(type3, t_fv_so_far, 0.0)
     words = np.where(inc > 0, "incremental value added", "decrease in fair value ignored (no incremental)")
@@ -183,7 +185,7 @@ def build(ledger, fair_values, inp, policy) -> tuple[np.ndarray, CostLayers, obj
         values.not_expected = (mods["original_expected_to_vest"].to_numpy(dtype=object)[values.terms.order]
                                == "no")[values.p_mod]
         costs = modification_layers(values, inp.t_fv, policy.standard)
-        layers = costs.layers
+        layers = _rescheduled(ledger, inp, values, costs, policy)
     replaced = None
     if rv is not None:
         from grantval.attribution.layers import append_layers
@@ -193,7 +195,18 @@ def build(ledger, fair_values, inp, policy) -> tuple[np.ndarray, CostLayers, obj
         replaced = ReplacementCosts(rv, incremental, total)
         inp.c_kind = np.where(_replaced_changes(ledger), "replaced", inp.c_kind).astype(object)
     t_vest = vest_in_force(ledger.tranches, ledger.grants, mods)
+    if values is not None:  # every layer whose tranche's vesting moved has its own service end by now
+        inp.t_service_end = service_end(ledger, t_vest)
     return t_vest, layers, ModificationReport(values, costs, policy.standard, replaced)
+
+
+def _rescheduled(ledger, inp, values, costs: ModificationCosts, policy) -> CostLayers:
+    """The modifications' layers with their service periods under changed vesting (see ``schedule_change``)."""
+    from grantval.attribution.schedule_change import reschedule_layers
+
+    rank = costs.layers.set_id - 1
+    return reschedule_layers(inp.layers, costs.layers, rank, values, lambda v: service_end(ledger, v),
+                             policy.standard, policy.attribution, values.not_expected, np.asarray(inp.t_grant))
 
 
 @dataclass

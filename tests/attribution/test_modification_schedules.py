@@ -1,0 +1,208 @@
+"""Modifications that change the vesting schedule (grantval/attribution/schedule_change.py).
+
+Sources: ASC 718-20-55-107/108 (Example 14; quoted in the Deloitte roadmap 6.3: cost is recognised if
+the award vests under the modified conditions or would have vested under the original ones); PwC
+guide SC 4.2 step 3 (ASC 718: the remaining unrecognised original cost and the increment are
+recognised prospectively over the remaining requisite service); IFRS 2 B43(c) and B44(c) (from
+memory: a shorter vesting period is taken into account, a longer one is not); IFRS 2.20 / IG Example 2
+(from memory: a revised vesting period is a cumulative catch-up).  Every figure below is worked by
+hand from day counts (days between dates; the engine counts the measurement day as served).
+"""
+
+import math
+
+import numpy as np
+import pytest
+
+from grantval.errors import LedgerError
+from grantval.ledger import load_ledger
+from grantval.reporting.modification_tables import modification_table
+from tests.attribution.test_modifications import OPTION, _assumption, _mod, run
+from tests.factory import write_ledger
+from tests.pricing import ql_reference as qlr
+
+
+def days(a, b):
+    return int((np.datetime64(b) - np.datetime64(a)).astype(int))
+
+
+def shortened(folder, **mod):
+    # invented: 1,000 options granted 2025-01-01, fair value 12, four annual tranches of 250
+    # (2026-01-01 ... 2029-01-01). On 2026-01-01 the schedule becomes 36 months every 9: 250 units
+    # on 2025-10-01, 2026-07-01, 2027-04-01, 2028-01-01. Tranche 1 vests on the modification date (as
+    # before); tranches 2-4 move to 2026-07-01, 2027-04-01, 2028-01-01. Values before = after (5):
+    # no incremental value, only the schedule changes.
+    cells = dict(vest_months="36", vest_every_months="9", fair_value_before="5", fair_value_after="5")
+    cells.update(mod)
+    grants = [{**OPTION, "grant_id": "S", "grant_date": "2025-01-01", "quantity": "1000", "vest_months": "48",
+               "vest_every_months": "12"}]
+    return write_ledger(folder, {"grants": grants, "assumptions": [_assumption("g", fair_value="12")],
+                                 "modifications": [_mod("S", "2026-01-01", **cells)]})
+
+
+def test_new_schedule_moves_the_vest_dates_in_force(tmp_path):
+    led, _, inp, _ = run(shortened(tmp_path / "l"), "2028-12-31")
+    assert [str(d) for d in inp.t_vest] == ["2026-01-01", "2026-07-01", "2027-04-01", "2028-01-01"]
+    # the ledger keeps the tranches as granted; the events are allocated under the dates in force
+    assert [str(d) for d in led.tranches["vest_date"].to_numpy("datetime64[D]")] == [
+        "2026-01-01", "2027-01-01", "2028-01-01", "2029-01-01"]
+
+
+def test_ifrs2_shorter_vesting_is_taken_into_account(tmp_path):
+    # IFRS 2 B43(c): the grant-date value of each tranche (250 x 12 = 3,000) is recognised over the grant
+    # date to its new vesting date, with a catch-up on the modification date (IFRS 2.20)
+    _, _, _, s = run(shortened(tmp_path / "l"), "2028-12-31", standard="ifrs2")
+    g = "2025-01-01"
+    y2025 = 3000 * (1 + 365 / 730 + 365 / 1095 + 365 / 1461)         # before the modification: as granted
+    y2026 = 3000 * (1 + 1 + days(g, "2027-01-01") / days(g, "2027-04-01") + 730 / days(g, "2028-01-01"))
+    expect = [y2025, y2026, 12_000, 12_000]
+    assert np.abs(s.cumulative_cents[0] - np.round(np.array(expect) * 100)).max() <= 1
+
+
+def test_asc718_shorter_vesting_recognises_the_rest_prospectively(tmp_path):
+    # PwC SC 4.2 step 3: on 2026-01-01 tranche 3 has 3,000 x 365/1,095 = 1,000 recognised; the other
+    # 2,000 over the 455 days to 2027-04-01. Tranche 4: 3,000 x 365/1,461, the rest over 730 days.
+    _, _, _, s = run(shortened(tmp_path / "l"), "2028-12-31", standard="asc718", attribution="graded")
+    t3 = 1000 + 2000 * 365 / days("2026-01-01", "2027-04-01")
+    t4 = 3000 * 365 / 1461 + 3000 * 1096 / 1461 * 365 / 730
+    y2025 = 3000 * (1 + 365 / 730 + 365 / 1095 + 365 / 1461)
+    expect = [y2025, 3000 + 3000 + t3 + t4, 12_000, 12_000]
+    assert np.abs(s.cumulative_cents[0] - np.round(np.array(expect) * 100)).max() <= 1
+
+
+@pytest.mark.parametrize("standard,attribution", [("asc718", "straight-line"), ("asc718", "graded"),
+                                                  ("ifrs2", "graded")])
+def test_cost_before_the_modification_does_not_move(tmp_path, standard, attribution):
+    # the 2025 figure is the same with and without the (2026-01-01) schedule change
+    _, _, _, s = run(shortened(tmp_path / "l"), "2028-12-31", standard=standard, attribution=attribution)
+    folder = shortened(tmp_path / "plain")
+    (folder / "modifications.csv").unlink()
+    _, _, _, plain = run(folder, "2028-12-31", standard=standard, attribution=attribution)
+    assert s.cumulative_cents[0, 0] == plain.cumulative_cents[0, 0]
+    assert s.cumulative_cents[0, -1] == plain.cumulative_cents[0, -1] == 1_200_000
+
+
+def test_asc718_straight_line_shorter_award(tmp_path):
+    # straight-line over the award: 12,000 over 2025-01-01 .. 2029-01-01 (1,461 days) before; on
+    # 2026-01-01 12,000 x 365/1,461 is recognised and the rest over the 730 days to 2028-01-01
+    # (prospectively, PwC SC 4.2 step 3); the tranches vested by a date are a floor (ASC 718-10-35-8)
+    _, _, _, s = run(shortened(tmp_path / "l"), "2028-12-31", standard="asc718", attribution="straight-line")
+    done = 12000 * 365 / 1461
+    y2026 = max(done + (12000 - done) * 365 / 730, 6000)
+    assert abs(s.cumulative_cents[0, 0] - round(done * 100)) <= 1
+    assert abs(s.cumulative_cents[0, 1] - round(y2026 * 100)) <= 1
+    assert s.cumulative_cents[0, 2] == 1_200_000
+
+
+def lengthened(folder, expected="yes", before="5", after="5", leaves=True):
+    # invented: 1,000 options granted 2025-01-01, fair value 12, two annual tranches of 500
+    # (2026-01-01, 2027-01-01). On 2025-07-01 the schedule becomes 48 months every 24: 500 units on
+    # 2027-01-01 and 2029-01-01. The holder leaves on 2027-06-01: tranche 2 (unvested under the new
+    # schedule) is forfeited, after the date it would have vested on under the original schedule.
+    grants = [{**OPTION, "grant_id": "X", "grant_date": "2025-01-01", "quantity": "1000", "vest_months": "24",
+               "vest_every_months": "12"}]
+    mods = [_mod("X", "2025-07-01", vest_months="48", vest_every_months="24", fair_value_before=before,
+                 fair_value_after=after, original_expected_to_vest=expected)]
+    events = [{"grant_id": "X", "event_date": "2027-06-01", "event_type": "forfeit", "quantity": "",
+               "share_price": ""}] if leaves else []
+    return write_ledger(folder, {"grants": grants, "assumptions": [_assumption("g", fair_value="12")],
+                                 "modifications": mods, "events": events})
+
+
+@pytest.mark.parametrize("standard", ["asc718", "ifrs2"])
+def test_longer_vesting_keeps_the_original_cost_when_the_original_terms_were_met(tmp_path, standard):
+    # ASC 718-20-55-107 (cost recognised if the award would have vested under the original conditions:
+    # Types I and II); IFRS 2 B44(c) (a longer vesting period is not taken into account). Tranche 1:
+    # 6,000 over 2025 (365/365); tranche 2: 6,000 over 730 days (3,000 in 2025, 6,000 by 2026-12-31).
+    # The leaver of 2027-06-01 served to 2027-01-01: tranche 2's 6,000 stays.
+    _, _, _, s = run(lengthened(tmp_path / "l"), "2027-12-31", standard=standard, attribution="graded")
+    assert list(s.cumulative_cents[0]) == [900_000, 1_200_000, 1_200_000]
+
+
+def test_asc718_type_iv_longer_vesting_reverses_on_forfeiture(tmp_path):
+    # ASC 718-20-55-108: not expected to vest under the original terms: cost only if the modified award
+    # vests; the leaver forfeits tranche 2 (6,000 reversed)
+    _, _, _, s = run(lengthened(tmp_path / "l", expected="no"), "2027-12-31", standard="asc718",
+                     attribution="graded")
+    assert list(s.cumulative_cents[0]) == [900_000, 1_200_000, 600_000]
+
+
+def test_longer_vesting_without_the_keep_rule_would_reverse(tmp_path, monkeypatch):
+    # the check above fails when layers are not kept for units forfeited after their end
+    from grantval.attribution import engine
+
+    monkeypatch.setattr(engine, "_kept_units", lambda inp, pre, layers, forf: np.zeros(len(layers)))
+    _, _, _, s = run(lengthened(tmp_path / "l"), "2027-12-31", standard="asc718", attribution="graded")
+    assert s.cumulative_cents[0, -1] == 600_000
+
+
+def test_longer_vesting_with_an_increment(tmp_path):
+    # value 5 before, 6 after: 1 per unit. ASC 718 (Type I): the increment is served from 2025-07-01 to
+    # the new vesting dates (549 and 1,280 days); tranche 2's is reversed by the leaver (the modified
+    # condition is not met). IFRS 2 B44(c): the longer period is ignored: served to the original dates
+    # (184 and 549 days) and kept as the original cost.
+    folder = lengthened(tmp_path / "l", after="6")
+    _, _, _, a = run(folder, "2027-12-31", standard="asc718", attribution="graded")
+    served = days("2025-07-01", "2026-01-01")                                          # 184
+    assert abs(a.cumulative_cents[0, 0] - round((9000 + 500 * served / 549 + 500 * served / 1280) * 100)) <= 1
+    assert a.cumulative_cents[0, 2] == 1_250_000                                       # 12,000 + 500
+    _, _, _, i = run(folder, "2027-12-31", standard="ifrs2")
+    assert abs(i.cumulative_cents[0, 0] - round((9000 + 500 + 500 * served / 549) * 100)) <= 1
+    assert i.cumulative_cents[0, 2] == 1_300_000                                       # 12,000 + 1,000
+
+
+def test_exercise_before_the_new_vesting_date_is_refused(tmp_path):
+    folder = lengthened(tmp_path / "l", leaves=False)
+    write_ledger(folder, {"events": [{"grant_id": "X", "event_date": "2026-06-01", "event_type": "exercise",
+                                      "quantity": "100", "share_price": "30"}]})
+    with pytest.raises(LedgerError) as e:
+        load_ledger(folder)
+    assert any(p.source == "events.csv" and p.row == 2 for p in e.value.problems), e.value.problems
+
+
+def test_type_iii_when_a_new_schedule_vests_at_once(tmp_path):
+    # ASC 718-20-55-108 (Case C): not expected to vest; the new schedule (24 months every 12) vests
+    # tranches 2 (2027-01-01 -> 2026-01-01 = the modification date) at once: its cost so far is reversed
+    # and the modified value (5 x 250) recognised. Tranches 3, 4 (-> 2027-01-01) are Type IV (limitation).
+    folder = shortened(tmp_path / "l", vest_months="24", vest_every_months="12", original_expected_to_vest="no")
+    led, _, inp, s = run(folder, "2026-12-31", standard="asc718", attribution="graded")
+    row = modification_table(inp.modifications, led).iloc[0]
+    assert "Type III" in row["treatment"]
+    # 2026-12-31: tranche 1 3,000; tranche 2 1,250; tranches 3 and 4 move to 2027-01-01 (ASC prospective
+    # rule): tranche 3 has 3,000 x 365/1,095 = 1,000 on 2026-01-01 and the other 2,000 over the 365 days
+    # to 2027-01-01 (all served by 2026-12-31); tranche 4 likewise from 3,000 x 365/1,461
+    t3 = 1000 + 2000 * 365 / 365
+    t4 = 3000 * 365 / 1461 + 3000 * 1096 / 1461
+    assert abs(s.cumulative_cents[0, -1] - round((3000 + 1250 + t3 + t4) * 100)) <= 1
+
+
+def test_modifications_table_shows_the_schedule_before_and_after(tmp_path):
+    led, _, inp, _ = run(shortened(tmp_path / "l"), "2028-12-31")
+    row = modification_table(inp.modifications, led).iloc[0]
+    assert row["vesting_before"] == "48 months, every 12, cliff 0"
+    assert row["vesting_after"] == "36 months, every 9, cliff 0"
+    assert str(row["last_vest_date_before"]) == "2029-01-01" and str(row["last_vest_date_after"]) == "2028-01-01"
+    assert "vesting schedule" in row["change"]
+
+
+def test_bsm_values_of_a_shorter_schedule(tmp_path):
+    # valued with the modification's assumptions (S 15, vol 0.4, r 0.04, q 0) under the tranche unit:
+    # each tranche's simplified-method term from the modification date, (vesting + remaining life) / 2
+    # (SEC SAB Topic 14.D.2), before and after; cross-checked with QuantLib's analytic European engine
+    grants = [{**OPTION, "grant_id": "S", "grant_date": "2025-01-01", "quantity": "1000", "vest_months": "48",
+               "vest_every_months": "12"}]
+    a = [_assumption("g", fair_value="12"), _assumption("m", price="15", vol="0.4", rate="0.04")]
+    folder = write_ledger(tmp_path / "l", {
+        "grants": grants, "assumptions": a, "policy": [{"key": "valuation_unit", "value": "tranche"}],
+        "modifications": [_mod("S", "2026-01-01", vest_months="36", vest_every_months="9", assumption_set="m")]})
+    led, _, inp, _ = run(folder, "2028-12-31", standard="asc718", attribution="graded")
+    v = inp.modifications.values
+    life = days("2026-01-01", "2035-01-01") / 365.25
+    for j, (old, new) in enumerate([("2026-01-01", "2026-01-01"), ("2027-01-01", "2026-07-01"),
+                                    ("2028-01-01", "2027-04-01"), ("2029-01-01", "2028-01-01")]):
+        for value, vest in ((v.before[j], old), (v.after[j], new)):
+            term = (days("2026-01-01", vest) / 365.25 + life) / 2
+            days_ql = 365
+            scale = term * 365 / days_ql
+            ref = qlr.european(15, 20, days_ql, 0.04 * scale, 0.4 * math.sqrt(scale), 0.0)
+            assert value == pytest.approx(ref, abs=1e-9)
