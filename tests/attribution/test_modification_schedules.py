@@ -181,7 +181,8 @@ def test_modifications_table_shows_the_schedule_before_and_after(tmp_path):
     row = modification_table(inp.modifications, led).iloc[0]
     assert row["vesting_before"] == "48 months, every 12, cliff 0"
     assert row["vesting_after"] == "36 months, every 9, cliff 0"
-    assert str(row["last_vest_date_before"]) == "2029-01-01" and str(row["last_vest_date_after"]) == "2028-01-01"
+    assert row["last_vest_date_before"] == np.datetime64("2029-01-01")
+    assert row["last_vest_date_after"] == np.datetime64("2028-01-01")
     assert "vesting schedule" in row["change"]
 
 
