@@ -44,6 +44,8 @@ class Measurement:
     expected_total: np.ndarray  # per grant: total cost expected at d's estimates (full service)
     unrecognised: np.ndarray    # per grant: expected_total - grant_cost (0 before the grant date)
     remaining_years: np.ndarray  # per grant: weighted-average remaining recognition period, years
+    #: per layer: units forfeited after the layer's own end whose cost it keeps (see CostLayers.kept)
+    layer_kept: np.ndarray | None = None
 
 
 def _elapsed(served_through: int, start: np.ndarray, length: np.ndarray) -> np.ndarray:
@@ -262,5 +264,5 @@ def measure(inp: ExpenseInputs, d, *, attribution: str, forfeitures: str, events
     return Measurement(
         n_expensed=n_expensed, outstanding=Q.outstanding, cancelled=Q.cancelled, elapsed=Q.elapsed[:n_t],
         vested=Q.vested, grant_cost=cost, expected_total=expected_total, unrecognised=unrec,
-        remaining_years=remaining,
+        remaining_years=remaining, layer_kept=Q.kept,
     )

@@ -207,3 +207,17 @@ def test_bsm_values_of_a_shorter_schedule(tmp_path):
             scale = term * 365 / days_ql
             ref = qlr.european(15, 20, days_ql, 0.04 * scale, 0.4 * math.sqrt(scale), 0.0)
             assert value == pytest.approx(ref, abs=1e-9)
+
+
+@pytest.mark.parametrize("ledger", [shortened, lengthened])
+@pytest.mark.parametrize("standard,attribution", [("asc718", "graded"), ("asc718", "straight-line"),
+                                                  ("ifrs2", "graded")])
+@pytest.mark.parametrize("through", ["2025-12-31", "2027-12-31"])
+def test_expense_workbook_checks_pass_with_schedule_changes(tmp_path, ledger, standard, attribution, through):
+    from grantval.runs.expense import expense, write_expense
+
+    run_ = expense(ledger(tmp_path / "l"), through=through, period="year", standard=standard,
+                   attribution=attribution)
+    out = write_expense(run_, tmp_path / "e.xlsx", None, timestamp=False, share_price=15.0)
+    failed = [(c.name, c.a, c.b) for c in out.checks if not c.tool_pass]
+    assert failed == []
