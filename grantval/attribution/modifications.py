@@ -22,7 +22,11 @@ Rules (docs/modifications.md):
   per counted unit of a vested tranche is scaled by units outstanding / units counted;
 - a reduction in quantity is a cancellation of the units removed (IFRS 2 B44(b), 28(a);
   ASC 718-20-35-9): their remaining cost is recognised on the modification date (the ledger turns it
-  into a ``cancel`` change).
+  into a ``cancel`` change);
+- a new vesting schedule moves the tranches' vesting dates; the service period of the cost they
+  already carry follows :mod:`grantval.attribution.schedule_change` (the original cost on the
+  original period, kept when that period is served, under ASC 718 Types I/II and IFRS 2 B44(c); a
+  shorter period re-spread under IFRS 2 B43(c) and ASC 718).
 """
 
 from __future__ import annotations
@@ -58,12 +62,21 @@ def _layer_rows(values, t_fv_so_far: np.ndarray, standard: str):
     per_unit = np.where(type3, values.after, np.maximum(inc, 0.0))
     reverse = np.where(type3, t_fv_so_far, 0.0)
     words = np.where(inc > 0, "incremental value added", "decrease in fair value ignored (no incremental)")
+    later = unvested & (values.vest_after > values.vest_before)
+    earlier = unvested & (values.vest_after < values.vest_before) & (values.vest_after > t.date[p])
     if standard == "asc718":
         kind = np.where(not_expected, "Type IV (improbable to improbable)", "Type I (probable to probable)")
+        kind = np.where(later & ~not_expected, "Type I or II (original expected to vest)", kind)
         label = np.array([f"{k}: {w}" for k, w in zip(kind, words)], dtype=object)
+        label[later & ~not_expected] += ("; original cost on the original vesting date, kept if served to it "
+                                         "(ASC 718-20-55-107)")
+        label[later & not_expected] += "; cost only if the modified award vests (ASC 718-20-55-108)"
+        label[earlier] += "; original cost not yet recognised spread over the new, shorter period"
         label[type3] = "Type III (improbable to probable): original cost reversed, modified fair value recognised"
     else:
         label = np.array([f"IFRS 2.27: {w}" for w in words], dtype=object)
+        label[later] += "; longer vesting not taken into account (B44(c))"
+        label[earlier] += "; shorter vesting taken into account (B43(c))"
     return per_unit, reverse, label
 
 

@@ -109,14 +109,17 @@ def lengthened(folder, expected="yes", before="5", after="5", leaves=True):
                                  "modifications": mods, "events": events})
 
 
-@pytest.mark.parametrize("standard", ["asc718", "ifrs2"])
-def test_longer_vesting_keeps_the_original_cost_when_the_original_terms_were_met(tmp_path, standard):
+@pytest.mark.parametrize("standard,attribution,first", [("asc718", "graded", 900_000), ("ifrs2", "graded", 900_000),
+                                                         ("asc718", "straight-line", 600_000)])
+def test_longer_vesting_keeps_the_original_cost_when_the_original_terms_were_met(tmp_path, standard, attribution,
+                                                                                  first):
     # ASC 718-20-55-107 (cost recognised if the award would have vested under the original conditions:
-    # Types I and II); IFRS 2 B44(c) (a longer vesting period is not taken into account). Tranche 1:
-    # 6,000 over 2025 (365/365); tranche 2: 6,000 over 730 days (3,000 in 2025, 6,000 by 2026-12-31).
-    # The leaver of 2027-06-01 served to 2027-01-01: tranche 2's 6,000 stays.
-    _, _, _, s = run(lengthened(tmp_path / "l"), "2027-12-31", standard=standard, attribution="graded")
-    assert list(s.cumulative_cents[0]) == [900_000, 1_200_000, 1_200_000]
+    # Types I and II); IFRS 2 B44(c) (a longer vesting period is not taken into account). Graded:
+    # tranche 1 6,000 over 2025 (365/365); tranche 2 6,000 over 730 days (3,000 in 2025). Straight-line:
+    # 12,000 over the original 730 days (6,000 in 2025). 12,000 by 2026-12-31. The leaver of 2027-06-01
+    # served to 2027-01-01: tranche 2's 6,000 stays.
+    _, _, _, s = run(lengthened(tmp_path / "l"), "2027-12-31", standard=standard, attribution=attribution)
+    assert list(s.cumulative_cents[0]) == [first, 1_200_000, 1_200_000]
 
 
 def test_asc718_type_iv_longer_vesting_reverses_on_forfeiture(tmp_path):
@@ -221,3 +224,32 @@ def test_expense_workbook_checks_pass_with_schedule_changes(tmp_path, ledger, st
     out = write_expense(run_, tmp_path / "e.xlsx", None, timestamp=False, share_price=15.0)
     failed = [(c.name, c.a, c.b) for c in out.checks if not c.tool_pass]
     assert failed == []
+
+
+def test_shorter_vesting_without_the_re_spread_layers_differs(tmp_path, monkeypatch):
+    # the IFRS 2 B43(c) figure above needs layers A, B and C: without them 2026 is the original terms'
+    from grantval.attribution import schedule_change
+
+    empty = schedule_change.CostLayers(np.zeros(0, np.int64), np.zeros(0), np.zeros(0, "datetime64[D]"),
+                                       np.zeros(0, np.int64), np.zeros(0, dtype=object))
+    monkeypatch.setattr(schedule_change, "_respread", lambda *a, **k: empty)
+    _, _, _, s = run(shortened(tmp_path / "l"), "2028-12-31", standard="ifrs2")
+    g = "2025-01-01"
+    b43c = 3000 * (1 + 1 + days(g, "2027-01-01") / days(g, "2027-04-01") + 730 / days(g, "2028-01-01"))
+    assert abs(s.cumulative_cents[0, 1] - round(b43c * 100)) > 100
+
+
+def test_a_later_modification_sees_the_new_schedule(tmp_path):
+    # a repricing on 2026-06-01 after the 2026-01-01 schedule change: its terms before are the new dates
+    folder = shortened(tmp_path / "l")
+    mods = (folder / "modifications.csv").read_text().splitlines()
+    header = mods[0].split(",")
+    row = dict.fromkeys(header, "")
+    row.update(grant_id="S", modification_date="2026-06-01", exercise_price="10", fair_value_before="3",
+               fair_value_after="4")
+    (folder / "modifications.csv").write_text("\n".join(mods + [",".join(row[h] for h in header)]) + "\n")
+    led, _, inp, _ = run(folder, "2028-12-31")
+    v = inp.modifications.values
+    second = v.p_mod == 1
+    assert [str(d) for d in v.vest_before[second]] == ["2026-01-01", "2026-07-01", "2027-04-01", "2028-01-01"]
+    assert modification_table(inp.modifications, led).iloc[1]["change"] == "repricing"

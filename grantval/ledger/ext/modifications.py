@@ -421,7 +421,9 @@ def _reductions(t: Terms, new_qty: np.ndarray, live: np.ndarray, src: str, rows:
         if new_qty[i] > live[i]:
             p.append(Problem(src, int(rows[i]), "quantity", f"{int(new_qty[i])} is more than the {int(live[i])} "
                              "units outstanding before the modification: increases in quantity are not supported "
-                             "yet (grant the additional units as a new grant)"))
+                             "yet; enter the additional units as a new grant dated on the modification date, "
+                             "valued with this row's assumption_set and vesting with the modified award (see "
+                             "docs/modifications.md)"))
         elif new_qty[i] < live[i] and live[i] > 0:
             ev.append((i, int(live[i] - new_qty[i])))
     return ev, p
