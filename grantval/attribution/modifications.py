@@ -208,9 +208,39 @@ def build(ledger, fair_values, inp, policy) -> tuple[np.ndarray, CostLayers, obj
         replaced = ReplacementCosts(rv, incremental, total)
         inp.c_kind = np.where(_replaced_changes(ledger), "replaced", inp.c_kind).astype(object)
     t_vest = vest_in_force(ledger.tranches, ledger.grants, mods)
+    report = ModificationReport(values, costs, policy.standard, replaced)
     if values is not None:  # every layer whose tranche's vesting moved has its own service end by now
         inp.t_service_end = service_end(ledger, t_vest)
-    return t_vest, layers, ModificationReport(values, costs, policy.standard, replaced)
+        report.added_units, report.added_cost, report.added_at_once = _added(ledger, values.terms, inp)
+    return t_vest, layers, report
+
+
+def _added(ledger, t, inp):
+    """Per modification: units added by a quantity increase, their grant-date value (currency), the part vested at once.
+
+    The added units are a grant of their own (:mod:`grantval.ledger.ext.added_units`) whose grant-date
+    fair value is the modified award's on the modification date: their cost is part of the
+    modification's incremental cost (ASC 718-20-35-3; IFRS 2 B43(b)).
+    """
+    n = len(t.gp)
+    units, cost, at_once = np.zeros(n), np.zeros(n), np.zeros(n)
+    g = ledger.grants
+    if "_added_to" not in g or not g["_added_to"].notna().any():
+        return units, cost, at_once
+    ids = g["grant_id"].to_numpy(dtype=object)
+    where = {(k, d): i for i, (k, d) in enumerate(zip(ids[t.gp], t.date))}
+    value = np.bincount(inp.t_grant, weights=inp.t_fv * inp.t_qty, minlength=len(g))
+    vest = np.asarray(inp.t_vest, dtype="datetime64[D]")
+    for kid in np.flatnonzero(g["_added_to"].notna().to_numpy()):
+        day = np.datetime64(g["_added_on"].iat[kid], "D")
+        i = where.get((g["_added_to"].iat[kid], day))
+        if i is None:
+            continue
+        mine = inp.t_grant == kid
+        units[i] += float(g["quantity"].iat[kid])
+        cost[i] += value[kid]
+        at_once[i] += float(np.sum((inp.t_fv * inp.t_qty)[mine & (vest <= day)]))
+    return units, cost, at_once
 
 
 def _rescheduled(ledger, inp, values, costs: ModificationCosts, policy) -> CostLayers:
@@ -239,3 +269,8 @@ class ModificationReport:
     costs: ModificationCosts | None
     standard: str
     replacements: ReplacementCosts | None = None
+    #: per modification: units added by a quantity increase (a grant of their own), their grant-date
+    #: value (currency) and the part of it vested on the modification date
+    added_units: np.ndarray | None = None
+    added_cost: np.ndarray | None = None
+    added_at_once: np.ndarray | None = None

@@ -53,12 +53,16 @@ def _per_mod(report):
     ub, ua = s(v.units_before), s(v.units_after)
     accelerated = s(np.where(v.vest_after < v.vest_before, v.units_after, 0.0))
     later_units = s(np.where(v.vest_after > v.vest_before, v.units_after, 0.0))
-    added = s(getattr(v, "units_added", np.zeros(len(v.p_mod))))
+    zero = np.zeros(n)
+    added = zero if getattr(report, "added_units", None) is None else report.added_units
+    added_cost = zero if getattr(report, "added_cost", None) is None else report.added_cost
+    added_now = zero if getattr(report, "added_at_once", None) is None else report.added_at_once
     wmean = lambda x: s(x * v.units_before) / np.where(ub > 0, ub, 1)  # noqa: E731
     at_once = v.vest_after <= v.terms.date[v.p_mod]
     return dict(ub=ub, ua=ua, acc=accelerated, later_units=later_units, added=added, fb=wmean(v.before),
-                fa=wmean(v.after), inc=s(c.incremental), now=s(np.where(at_once, c.incremental, 0.0)),
-                later=s(np.where(at_once, 0.0, c.incremental)),
+                fa=wmean(v.after), inc=s(c.incremental) + added_cost,
+                now=s(np.where(at_once, c.incremental, 0.0)) + added_now,
+                later=s(np.where(at_once, 0.0, c.incremental)) + added_cost - added_now,
                 last_vest=_max_by(v.p_mod, v.vest_after, n), last_before=_max_by(v.p_mod, v.vest_before, n))
 
 
@@ -82,8 +86,9 @@ def _treatments(report) -> list[str]:
 def modification_table(report, ledger, attribution: str = "graded") -> pd.DataFrame:
     """One row per modification: dates, terms before and after, both fair values, incremental cost.
 
-    Money columns are currency (``incremental_cost`` = incremental value per unit x units outstanding
-    after the modification; the part for tranches vested by then is recognised on the modification
+    Money columns are currency (``incremental_cost`` = incremental value per unit x original units
+    outstanding after the modification, plus the grant-date value of the units a quantity increase adds
+    (``units_added``, a grant of their own); the part for tranches vested by then is recognised on the modification
     date, the rest over the remaining service to each tranche's vesting date, or to the award's last
     vesting date under straight-line ``attribution``).
     """
@@ -106,7 +111,7 @@ def modification_table(report, ledger, attribution: str = "graded") -> pd.DataFr
         "expiration_date_before": t.expiry_before, "expiration_date_after": t.expiry_after,
         "vesting_before": _schedule_words(t.schedule_before), "vesting_after": _schedule_words(t.schedule_after),
         "last_vest_date_before": agg["last_before"], "last_vest_date_after": agg["last_vest"],
-        "units_before": agg["ub"].astype(np.int64), "units_after": agg["ua"].astype(np.int64),
+        "units_before": agg["ub"].astype(np.int64), "units_after": (agg["ua"] + agg["added"]).astype(np.int64),
         "units_added": agg["added"].astype(np.int64), "units_accelerated": agg["acc"].astype(np.int64),
         "units_vesting_later": agg["later_units"].astype(np.int64), "fair_value_before": agg["fb"],
         "fair_value_after": agg["fa"], "fair_value_source": v.source, "treatment": _treatments(report),

@@ -253,3 +253,69 @@ def test_a_later_modification_sees_the_new_schedule(tmp_path):
     second = v.p_mod == 1
     assert [str(d) for d in v.vest_before[second]] == ["2026-01-01", "2026-07-01", "2027-04-01", "2028-01-01"]
     assert modification_table(inp.modifications, led).iloc[1]["change"] == "repricing"
+
+
+def increased(folder, after="6", assumption=False):
+    # invented: 1,000 options granted 2025-01-01 at fair value 12, two annual tranches of 500
+    # (2026-01-01, 2027-01-01). On 2025-07-01 the quantity becomes 1,500 (500 added) and the option is
+    # repriced: value per unit 4 before, 6 after (outside valuation). The 500 added units vest with the
+    # unvested tranches in proportion (250 on 2026-01-01, 250 on 2027-01-01).
+    grants = [{**OPTION, "grant_id": "Q", "grant_date": "2025-01-01", "quantity": "1000", "vest_months": "24",
+               "vest_every_months": "12"}]
+    cells = dict(quantity="1500", exercise_price="15")
+    cells.update(dict(assumption_set="m") if assumption else dict(fair_value_before="4", fair_value_after=after))
+    a = [_assumption("g", fair_value="12"), _assumption("m", price="18", vol="0.4", rate="0.04")]
+    return write_ledger(folder, {"grants": grants, "assumptions": a,
+                                 "modifications": [_mod("Q", "2025-07-01", **cells)]})
+
+
+@pytest.mark.parametrize("standard", ["asc718", "ifrs2"])
+def test_quantity_increase_adds_units_at_the_modified_value(tmp_path, standard):
+    # IFRS 2 B43(b) (from memory): the added units at the modification-date value (6), from 2025-07-01
+    # to their vesting; ASC 718-20-35-3: incremental = 1,500 x 6 - 1,000 x 4 = 5,000 = 1,000 x (6 - 4)
+    # + 500 x 6. Original: 500 x 12 over 365 days + 500 x 12 over 730 days; increment 1,000 x 2 and the
+    # added 500 x 6 from 2025-07-01 to 2026-01-01 (184 days) and 2027-01-01 (549 days).
+    led, _, inp, s = run(increased(tmp_path / "l"), "2026-12-31", standard=standard, attribution="graded")
+    ids = list(led.grants["grant_id"])
+    assert ids == ["Q", "Q+2025-07-01"]
+    kid = led.tranches[led.tranches["grant_idx"] == 1]
+    assert kid["quantity"].tolist() == [250, 250]
+    assert [str(d) for d in kid["vest_date"].to_numpy("datetime64[D]")] == ["2026-01-01", "2027-01-01"]
+    served = days("2025-07-01", "2026-01-01")        # 184: the first tranche is served by 2025-12-31
+    y2025 = 6000 + 6000 * 365 / 730 + 500 * 2 + 500 * 2 * served / 549 + 250 * 6 + 250 * 6 * served / 549
+    total = s.cumulative_cents[:, 0].sum()
+    assert abs(total - round(y2025 * 100)) <= 2
+    assert s.cumulative_cents[:, 1].sum() == (12_000 + 2_000 + 3_000) * 100
+    row = modification_table(inp.modifications, led).iloc[0]
+    assert row["units_added"] == 500 and "increased quantity" in row["change"]
+    assert row["incremental_cost"] == pytest.approx(5000.0)
+
+
+def test_added_units_follow_a_leaver(tmp_path):
+    # the holder leaves on 2026-06-01: the unvested 500 original units and the 250 added units of
+    # 2027-01-01 are forfeited (the ledger repeats the blank-quantity forfeit for the added units)
+    folder = increased(tmp_path / "l")
+    write_ledger(folder, {"events": [{"grant_id": "Q", "event_date": "2026-06-01", "event_type": "forfeit",
+                                      "quantity": "", "share_price": ""}]})
+    led, _, _, s = run(folder, "2026-12-31", standard="ifrs2")
+    assert (led.changes["kind"] == "forfeit").sum() == 2
+    # what stays: the first tranche's 6,000 + 500 x 2 increment + 250 x 6 added
+    assert s.cumulative_cents[:, 1].sum() == (6000 + 1000 + 1500) * 100
+
+
+def test_added_units_valued_with_the_assumption_set(tmp_path):
+    # the added units' grant-date value is computed from the row's assumptions (S 18, K 15, vol 0.4,
+    # r 0.04, BSM; valuation unit "award": one value at the simplified term (SEC SAB Topic 14.D.2) on the
+    # units-weighted vesting time from 2025-07-01, (184 + 549) / 2 days), the modification's "after" value
+    led, _, inp, _ = run(increased(tmp_path / "l", assumption=True), "2026-12-31", standard="asc718",
+                         attribution="graded")
+    from grantval.measurement.fairvalue import compute_fair_values
+    from grantval.policy import resolve_policy
+
+    fv = compute_fair_values(led, resolve_policy(led.policy_values, standard="asc718"))
+    kid = (led.tranches["grant_idx"] == 1).to_numpy()
+    life = days("2025-07-01", "2035-01-01") / 365.25
+    term = ((days("2025-07-01", "2026-01-01") + days("2025-07-01", "2027-01-01")) / 2 / 365.25 + life) / 2
+    ref = qlr.european(18, 15, 365, 0.04 * term, 0.4 * math.sqrt(term), 0.0)   # QuantLib, 1 year rescaled
+    assert np.asarray(fv.tranche_value)[kid] == pytest.approx([ref, ref], abs=1e-9)
+    assert inp.modifications.values.after == pytest.approx([ref, ref], abs=1e-9)

@@ -414,19 +414,48 @@ def _schedule_problems(t: Terms, v: Vesting, tranches: pd.DataFrame, src: str, r
     return p
 
 
-def _reductions(t: Terms, new_qty: np.ndarray, live: np.ndarray, src: str, rows: np.ndarray):
-    """Cancel events for reductions in quantity; problems for increases."""
+def _reductions(t: Terms, new_qty: np.ndarray, live: np.ndarray, src: str, rows: np.ndarray, grants: pd.DataFrame):
+    """Cancel events for reductions in quantity; the added units' grant checked for increases."""
+    from grantval.ledger.ext.added_units import child_id
+
     p, ev = [], []
-    for i in np.flatnonzero(~np.isnan(new_qty)):
-        if new_qty[i] > live[i]:
-            p.append(Problem(src, int(rows[i]), "quantity", f"{int(new_qty[i])} is more than the {int(live[i])} "
-                             "units outstanding before the modification: increases in quantity are not supported "
-                             "yet; enter the additional units as a new grant dated on the modification date, "
-                             "valued with this row's assumption_set and vesting with the modified award (see "
-                             "docs/modifications.md)"))
+    added = _added_units(grants)
+    for i in np.flatnonzero(~np.isnan(new_qty) & (new_qty >= 0)):  # a negative quantity is reported by the checks
+        if new_qty[i] > live[i] and live[i] > 0:
+            kid = child_id(grants["grant_id"].iat[t.gp[i]], t.date[i])
+            got = added.get(kid)
+            if got != new_qty[i] - live[i]:
+                p.append(Problem(src, int(rows[i]), "quantity", f"{int(new_qty[i])} units after the modification "
+                                 f"add {int(new_qty[i] - live[i])} to the {int(live[i])} outstanding, but grant "
+                                 f"{kid} holds {0 if got is None else int(got)}: report this"))
         elif new_qty[i] < live[i] and live[i] > 0:
             ev.append((i, int(live[i] - new_qty[i])))
     return ev, p
+
+
+def _added_units(grants: pd.DataFrame) -> dict:
+    """Units of every added-units grant (see :mod:`grantval.ledger.ext.added_units`), by grant id."""
+    if "_added_to" not in grants:
+        return {}
+    kids = grants[grants["_added_to"].notna()]
+    return dict(zip(kids["grant_id"], kids["quantity"].to_numpy(float)))
+
+
+def _later_without_children(t: Terms, grants: pd.DataFrame, src: str, rows: np.ndarray) -> list[Problem]:
+    """A modification of a grant after an increase, not given for the added units' grant (a warning)."""
+    if "_added_to" not in grants:
+        return []
+    kids = grants[grants["_added_to"].notna()]
+    ids = grants["grant_id"].to_numpy(dtype=object)
+    given = set(zip(ids[t.gp], t.date))
+    p = []
+    for kid, parent, day in zip(kids["grant_id"], kids["_added_to"], kids["_added_on"].to_numpy("datetime64[D]")):
+        for i in np.flatnonzero((ids[t.gp] == parent) & (t.date > day)):
+            if (kid, t.date[i]) not in given:
+                p.append(Problem(src, int(rows[i]), "grant_id", f"the units added on {day} are grant {kid}: this "
+                                 "modification does not change them unless a row gives it for that grant too",
+                                 "warning"))
+    return p
 
 
 def _replacement_cancels(parts: LedgerParts) -> pd.DataFrame:
@@ -459,8 +488,8 @@ def adjust(parts: LedgerParts) -> Adjustment | None:
     rows = m["_row"].to_numpy()[t.order]
     live = _live_at(parts, parts.changes, t.gp, t.date)
     problems = _ended(parts, t, live, src, rows)
-    ev, probs = _reductions(t, m["quantity"].to_numpy(float)[t.order], live, src, rows)
-    problems += probs
+    ev, probs = _reductions(t, m["quantity"].to_numpy(float)[t.order], live, src, rows, g)
+    problems += probs + _later_without_children(t, g, src, rows)
     v = vesting(g, parts.tranches, m, t)
     problems += _schedule_problems(t, v, parts.tranches, src, rows)
     grants = g.copy()
@@ -479,7 +508,11 @@ def adjust(parts: LedgerParts) -> Adjustment | None:
         "event_date": np.array([t.date[i] for i, _ in ev], dtype="datetime64[D]"),
         "event_type": ["cancel"] * len(ev), "quantity": [float(q) for _, q in ev],
         "share_price": [np.nan] * len(ev), "_row": [int(rows[i]) for i, _ in ev], "_source": [src] * len(ev)})
-    extra = pd.concat([extra, _replacement_cancels(parts)], ignore_index=True)
+    from grantval.ledger.ext.added_units import mirrored_events
+
+    mirrored = mirrored_events(g, events.assign(_source=parts.sources["events"]), parts.sources["events"])
+    extra = pd.concat([x for x in (extra, _replacement_cancels(parts), mirrored) if len(x)] or [extra],
+                      ignore_index=True)
     if len(extra):
         events = pd.concat([events.assign(_source=parts.sources["events"]), extra], ignore_index=True)
     return Adjustment(grants=grants, tranches=tranches, events=events, problems=problems)
@@ -510,4 +543,11 @@ EXTENSION = Extension(
     text_columns=frozenset({"replaces_grant_id"}),
     check=check,
     adjust=adjust,
+    contribute=lambda tables, sources: _contribute(tables, sources),
 )
+
+
+def _contribute(tables: dict, sources: dict):
+    from grantval.ledger.ext.added_units import contribute
+
+    return contribute(tables, sources)
