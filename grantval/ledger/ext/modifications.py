@@ -22,7 +22,7 @@ Terms in force (used to allocate events, see :func:`adjust`):
 - ``quantity`` is the number of units outstanding after the modification (exercised, expired,
   forfeited and cancelled units not counted); a smaller number cancels the difference on the
   modification date, latest-vesting units first, like a ``cancel`` event (IFRS 2 B44(b): a partial
-  cancellation).
+  cancellation); a larger number adds units, a grant of their own (:mod:`grantval.ledger.ext.added_units`).
 """
 
 from __future__ import annotations
