@@ -169,22 +169,6 @@ def _quantities(inp: ExpenseInputs, dn: int, forfeitures: str, cut: int, est_day
     return q
 
 
-def _kept_units(inp: ExpenseInputs, pre, layers: np.ndarray, forf: np.ndarray) -> np.ndarray:
-    """Per layer of ``layers``: units of its tranche forfeited (``forf`` changes) on or after the layer's end."""
-    c_t, c_d, c_q = inp.c_tranche[forf], pre.c_date[forf], inp.c_qty[forf].astype(float)
-    out = np.zeros(len(layers))
-    if not len(c_t):
-        return out
-    t, end = pre.l_tranche[layers], pre.l_end[layers]
-    order = np.lexsort((c_d, c_t))
-    c_t, c_d, c_q = c_t[order], c_d[order], c_q[order]
-    csum = np.r_[0.0, np.cumsum(c_q)]
-    key_c = c_t.astype(np.float64) * 1e7 + c_d
-    lo = np.searchsorted(key_c, t.astype(np.float64) * 1e7 + end, side="left")
-    hi = np.searchsorted(c_t, t, side="right")
-    return np.where(hi > lo, csum[np.maximum(hi, lo)] - csum[lo], 0.0)
-
-
 def _apply_hooks(inp: ExpenseInputs, Q: _Quantities, dn: int, attribution: str, cost, expected_total, unrec,
                  remaining, n_expensed) -> None:
     """Replace the cost of the grants a cost hook owns by the hook's own figures (in place)."""
@@ -266,3 +250,19 @@ def measure(inp: ExpenseInputs, d, *, attribution: str, forfeitures: str, events
         vested=Q.vested, grant_cost=cost, expected_total=expected_total, unrecognised=unrec,
         remaining_years=remaining, layer_kept=Q.kept,
     )
+
+
+def _kept_units(inp: ExpenseInputs, pre, layers: np.ndarray, forf: np.ndarray) -> np.ndarray:
+    """Per layer of ``layers``: units of its tranche forfeited (``forf`` changes) on or after the layer's end."""
+    c_t, c_d, c_q = inp.c_tranche[forf], pre.c_date[forf], inp.c_qty[forf].astype(float)
+    out = np.zeros(len(layers))
+    if not len(c_t):
+        return out
+    t, end = pre.l_tranche[layers], pre.l_end[layers]
+    order = np.lexsort((c_d, c_t))
+    c_t, c_d, c_q = c_t[order], c_d[order], c_q[order]
+    csum = np.r_[0.0, np.cumsum(c_q)]
+    key_c = c_t.astype(np.float64) * 1e7 + c_d
+    lo = np.searchsorted(key_c, t.astype(np.float64) * 1e7 + end, side="left")
+    hi = np.searchsorted(c_t, t, side="right")
+    return np.where(hi > lo, csum[np.maximum(hi, lo)] - csum[lo], 0.0)

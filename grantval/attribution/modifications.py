@@ -210,7 +210,8 @@ def build(ledger, fair_values, inp, policy) -> tuple[np.ndarray, CostLayers, obj
     t_vest = vest_in_force(ledger.tranches, ledger.grants, mods)
     report = ModificationReport(values, costs, policy.standard, replaced)
     if values is not None:  # every layer whose tranche's vesting moved has its own service end by now
-        inp.t_service_end = service_end(ledger, t_vest)
+        moved = t_vest != np.asarray(inp.t_vest, dtype="datetime64[D]")
+        inp.t_service_end = np.where(moved, service_end(ledger, t_vest), inp.t_service_end)
         report.added_units, report.added_cost, report.added_at_once = _added(ledger, values.terms, inp)
     return t_vest, layers, report
 

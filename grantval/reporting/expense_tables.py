@@ -78,23 +78,6 @@ def _status(inp: ExpenseInputs, m, granted) -> np.ndarray:
                                                                           "vested"], "unvested").astype(object)
 
 
-def _with_kept_units(lay, started, kept, n_exp, fv_in_force):
-    """Per tranche: units counted (expected + the most units kept by a layer) and the blended value per unit.
-
-    A layer kept for units forfeited after its own end (a vesting period lengthened by a modification:
-    ASC 718-20-55-107, IFRS 2 B44(c)) costs ``fair value x (expected + kept)``; the tranche's value per
-    unit is then the cost in force divided by the units counted, so that units x value = cost.
-    """
-    n_t = len(n_exp)
-    w = np.where(started, lay.fair_value * (n_exp[lay.tranche] + kept), 0.0)
-    cost = np.bincount(lay.tranche, weights=w, minlength=n_t)
-    extra = np.zeros(n_t)
-    np.maximum.at(extra, lay.tranche, np.where(started, kept, 0.0))
-    units = n_exp + extra
-    fv = np.where(units > 0, cost / np.where(units > 0, units, 1.0), fv_in_force)
-    return units, fv
-
-
 def tranche_table(inp: ExpenseInputs, sched: ExpenseSchedule, tranche_no) -> pd.DataFrame:
     """Tranches with their vest dates, quantities, fair values and state at the through date."""
     m = sched.at_through
@@ -104,10 +87,6 @@ def tranche_table(inp: ExpenseInputs, sched: ExpenseSchedule, tranche_no) -> pd.
     lay = inp.layers
     started = lay.start <= np.datetime64(sched.period_ends[-1], "D")
     fv_in_force = np.bincount(lay.tranche[started], weights=lay.fair_value[started], minlength=len(inp.t_qty))
-    expected = m.n_expensed
-    kept = getattr(m, "layer_kept", None)
-    if kept is not None and kept.any():  # units that met a layer's original service: its cost stays (modifications)
-        expected, fv_in_force = _with_kept_units(lay, started, kept, m.n_expensed, fv_in_force)
     return pd.DataFrame({
         "grant_id": inp.grant_id[inp.t_grant],
         "tranche": tranche_no,
@@ -117,7 +96,7 @@ def tranche_table(inp: ExpenseInputs, sched: ExpenseSchedule, tranche_no) -> pd.
         "cancelled_unvested": m.cancelled.astype(np.int64),
         "vested": m.vested,
         "status": _status(inp, m, granted),
-        "quantity_expected_to_vest": np.where(granted, expected, 0.0),
+        "quantity_expected_to_vest": np.where(granted, m.n_expensed, 0.0),
         "fair_value_per_unit": fv_in_force,  # grant-date value plus modifications in force (else = t_fv)
         "grant_date_fair_value": inp.t_qty * inp.t_fv,
         "service_elapsed": m.elapsed,
@@ -138,3 +117,31 @@ def unrecognised_table(inp: ExpenseInputs, sched: ExpenseSchedule) -> tuple[pd.D
     total = float(unrec_cents.sum()) / 100.0
     wa = float((unrec * frame["remaining_years"]).sum() / total) if total > 0 else 0.0
     return frame, total, wa
+
+
+def with_kept_units(frame: pd.DataFrame, inp: ExpenseInputs, sched: ExpenseSchedule) -> pd.DataFrame:
+    """The tranches table counting units whose cost a layer keeps after they were forfeited.
+
+    A modification that lengthens the vesting period keeps the original cost of units forfeited after
+    the original vesting date (``CostLayers.kept``: ASC 718-20-55-107, IFRS 2 B44(c)).  Such a tranche
+    costs ``sum over layers of fair value x (expected + kept)``; it counts expected + the units kept
+    and shows the cost in force per unit counted, so that units x value = cost (the tie-out on the
+    checks sheet).  Other tranches are unchanged.
+    """
+    m = sched.at_through
+    kept = getattr(m, "layer_kept", None)
+    if kept is None or not kept.any():
+        return frame
+    lay = inp.layers
+    n_t = len(inp.t_qty)
+    started = lay.start <= np.datetime64(sched.period_ends[-1], "D")
+    extra = np.zeros(n_t)
+    np.maximum.at(extra, lay.tranche, np.where(started, kept, 0.0))
+    rows = np.flatnonzero(extra > 0)
+    w = np.where(started, lay.fair_value * (m.n_expensed[lay.tranche] + kept), 0.0)
+    cost = np.bincount(lay.tranche, weights=w, minlength=n_t)
+    units = m.n_expensed + extra
+    frame = frame.copy()
+    frame.loc[rows, "quantity_expected_to_vest"] = units[rows]
+    frame.loc[rows, "fair_value_per_unit"] = cost[rows] / units[rows]
+    return frame
