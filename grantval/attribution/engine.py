@@ -140,12 +140,13 @@ def _quantities(inp: ExpenseInputs, dn: int, forfeitures: str, cut: int, est_day
     if forfeitures == "estimate":
         rate, frac = estimates_at(inp, np.datetime64(est_day, "D"))
         r_t, f_t = rate[inp.t_grant], frac[inp.t_grant]
-        remaining = (pre.t_end - (dn + 1)) / RATE_YEAR_DAYS
+        t_end = pre.end_at(dn)  # a modification's new service end applies from its date only
+        remaining = (t_end - (dn + 1)) / RATE_YEAR_DAYS
         by_rate = outstanding * np.power(1.0 - np.nan_to_num(r_t), np.maximum(remaining, 0.0))
         by_frac = np.minimum(f_t * inp.t_qty, outstanding)
         expected = np.where(~np.isnan(f_t), by_frac, by_rate)
         # no forfeiture is expected once the requisite service is complete (vested, or retirement eligible)
-        n_exp = np.where(vested | ((pre.t_end <= dn) & granted_by), outstanding, expected)
+        n_exp = np.where(vested | ((t_end <= dn) & granted_by), outstanding, expected)
     else:
         n_exp = outstanding.astype(float)
     granted_g = pre.grant <= dn

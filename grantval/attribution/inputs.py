@@ -56,6 +56,10 @@ class ExpenseInputs:
     cost_hooks: list = field(default_factory=list)
     #: modifications of the ledger's awards (attribution.modifications.ModificationReport), None when none
     modifications: object = None
+    #: service ends moved by modifications: ``(tranche, from_date, end_before)`` arrays; before
+    #: ``from_date`` the tranche's service ended on ``end_before`` (what the forfeiture estimates use at
+    #: dates before the modification); None when no modification moved one
+    service_end_history: tuple | None = None
     _prep: object = None
 
     def __post_init__(self):
@@ -118,6 +122,7 @@ class Prepared:
         self.t_gdate = self.grant[inp.t_grant]
         self.t_vest = day(inp.t_vest)
         self.t_end = day(inp.t_service_end)
+        self._history(inp.service_end_history)
         self.last = _last_per_grant(self.t_end, inp.t_grant, len(self.grant)) if len(self.t_end) else day(inp.last_vest)
         self.t_len = self.t_end - self.t_gdate
         self.g_len = self.last - self.grant
@@ -133,6 +138,27 @@ class Prepared:
         self.code_group = np.array([index.get(k, -1) for k in inp.group], dtype=np.int64)
         self.code_star = index.get("*", -1)
         self._layers(inp)
+
+    def _history(self, history) -> None:
+        """Moved service ends, sorted by tranche then date (see ``ExpenseInputs.service_end_history``)."""
+        if history is None or not len(history[0]):
+            self.h_tranche = None
+            return
+        tr, frm, end = (np.asarray(x) for x in history)
+        order = np.lexsort((_days(frm), tr))
+        self.h_tranche, self.h_from, self.h_end = tr[order], _days(frm)[order], _days(end)[order]
+
+    def end_at(self, dn: int) -> np.ndarray:
+        """Per tranche: the service end in force on day number ``dn`` (before a modification moved it)."""
+        if self.h_tranche is None:
+            return self.t_end
+        later = np.flatnonzero(self.h_from > dn)
+        if not len(later):
+            return self.t_end
+        first = later[np.unique(self.h_tranche[later], return_index=True)[1]]
+        out = self.t_end.copy()
+        out[self.h_tranche[first]] = self.h_end[first]
+        return out
 
     def _layers(self, inp: ExpenseInputs) -> None:
         """Per-layer service periods and the layer sets of straight-line attribution."""

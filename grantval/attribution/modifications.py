@@ -211,9 +211,26 @@ def build(ledger, fair_values, inp, policy) -> tuple[np.ndarray, CostLayers, obj
     report = ModificationReport(values, costs, policy.standard, replaced)
     if values is not None:  # every layer whose tranche's vesting moved has its own service end by now
         moved = t_vest != np.asarray(inp.t_vest, dtype="datetime64[D]")
+        inp.service_end_history = _end_history(ledger, values, inp.t_service_end)
         inp.t_service_end = np.where(moved, service_end(ledger, t_vest), inp.t_service_end)
         report.added_units, report.added_cost, report.added_at_once = _added(ledger, values.terms, inp)
     return t_vest, layers, report
+
+
+def _end_history(ledger, values, t_end) -> tuple:
+    """``(tranche, modification date, service end before it)`` of every modification that moves a tranche."""
+    t = values.terms
+    vb, va = values.vest_before, values.vest_after
+    moved = (va != vb) & (vb > t.date[values.p_mod])
+    tr = values.p_tranche[moved]
+    end_before = np.empty(len(tr), dtype="datetime64[D]")
+    rank = t.rank[values.p_mod][moved]
+    for r in np.unique(rank):  # the end in force before each modification (pairs of one rank: one per tranche)
+        m = rank == r
+        current = np.asarray(t_end, dtype="datetime64[D]").copy()
+        current[tr[m]] = vb[moved][m]
+        end_before[m] = service_end(ledger, current)[tr[m]]
+    return tr, t.date[values.p_mod][moved], end_before
 
 
 def _added(ledger, t, inp):

@@ -375,3 +375,37 @@ def test_later_modification_of_the_grant_warns_about_the_added_units(tmp_path):
     led = load_ledger(folder)
     w = [p for p in led.warnings if p.source == "modifications.csv"]
     assert w and w[0].row == 3 and "Q+2025-07-01" in w[0].message
+
+
+@pytest.mark.parametrize("ledger", [shortened, lengthened])
+def test_rate_estimates_before_the_modification_do_not_move(tmp_path, ledger):
+    # under an annual forfeiture rate the units expected to vest depend on the time left to the service
+    # end; before the modification date that is the end in force then, so the first year's figure is
+    # the same with and without the (later) change of schedule
+    est = [{"applies_to": "*", "effective_date": "2025-01-01", "annual_forfeiture_rate": "0.1",
+            "expected_vest_fraction": ""}]
+    folder = ledger(tmp_path / "l")
+    write_ledger(folder, {"estimates": est})
+    plain = ledger(tmp_path / "plain")
+    write_ledger(plain, {"estimates": est})
+    (plain / "modifications.csv").unlink()
+    through = "2025-06-30" if ledger is lengthened else "2025-12-31"
+    _, _, _, s = run(folder, through, standard="asc718", attribution="graded", forfeitures="estimate")
+    _, _, _, p = run(plain, through, standard="asc718", attribution="graded", forfeitures="estimate")
+    assert s.cumulative_cents[0, 0] == p.cumulative_cents[0, 0]
+
+
+def test_rate_estimates_would_move_without_the_end_history(tmp_path, monkeypatch):
+    from grantval.attribution.inputs import Prepared
+
+    monkeypatch.setattr(Prepared, "end_at", lambda self, dn: self.t_end)
+    est = [{"applies_to": "*", "effective_date": "2025-01-01", "annual_forfeiture_rate": "0.1",
+            "expected_vest_fraction": ""}]
+    folder = shortened(tmp_path / "l")
+    write_ledger(folder, {"estimates": est})
+    plain = shortened(tmp_path / "plain")
+    write_ledger(plain, {"estimates": est})
+    (plain / "modifications.csv").unlink()
+    _, _, _, s = run(folder, "2025-12-31", standard="asc718", attribution="graded", forfeitures="estimate")
+    _, _, _, p = run(plain, "2025-12-31", standard="asc718", attribution="graded", forfeitures="estimate")
+    assert s.cumulative_cents[0, 0] != p.cumulative_cents[0, 0]
