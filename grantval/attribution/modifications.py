@@ -247,17 +247,17 @@ def _added(ledger, t, inp):
         return units, cost, at_once
     ids = g["grant_id"].to_numpy(dtype=object)
     where = {(k, d): i for i, (k, d) in enumerate(zip(ids[t.gp], t.date))}
-    value = np.bincount(inp.t_grant, weights=inp.t_fv * inp.t_qty, minlength=len(g))
+    kids = np.flatnonzero(g["_added_to"].notna().to_numpy())
+    days = g["_added_on"].to_numpy("datetime64[D]")
+    mod = np.array([where.get((g["_added_to"].iat[k], days[k]), -1) for k in kids], dtype=np.int64)
+    kids, mod = kids[mod >= 0], mod[mod >= 0]
+    per_tranche = inp.t_fv * inp.t_qty
     vest = np.asarray(inp.t_vest, dtype="datetime64[D]")
-    for kid in np.flatnonzero(g["_added_to"].notna().to_numpy()):
-        day = np.datetime64(g["_added_on"].iat[kid], "D")
-        i = where.get((g["_added_to"].iat[kid], day))
-        if i is None:
-            continue
-        mine = inp.t_grant == kid
-        units[i] += float(g["quantity"].iat[kid])
-        cost[i] += value[kid]
-        at_once[i] += float(np.sum((inp.t_fv * inp.t_qty)[mine & (vest <= day)]))
+    value = np.bincount(inp.t_grant, weights=per_tranche, minlength=len(g))
+    now = np.bincount(inp.t_grant, weights=np.where(vest <= days[inp.t_grant], per_tranche, 0.0), minlength=len(g))
+    np.add.at(units, mod, g["quantity"].to_numpy(float)[kids])
+    np.add.at(cost, mod, value[kids])
+    np.add.at(at_once, mod, now[kids])
     return units, cost, at_once
 
 

@@ -53,7 +53,7 @@ def _outstanding_before(tables: dict, sources: dict, g: pd.DataFrame, mods: pd.D
     sub = g.iloc[parents].reset_index(drop=True)
     ok, tr, _ = _tranches(sub, tables["tranches"], sources["tranches"])
     tr = tr[ok[tr["grant_idx"].to_numpy()]].reset_index(drop=True)
-    m_sub = mods[np.isin(mods["grant_id"].to_numpy(dtype=object), sub["grant_id"].to_numpy(dtype=object))]
+    m_sub = mods[mods["grant_id"].isin(set(sub["grant_id"])).to_numpy()]
     t = terms(sub, m_sub)
     if not len(t.gp):
         return out
@@ -87,11 +87,22 @@ def _outstanding_before(tables: dict, sources: dict, g: pd.DataFrame, mods: pd.D
 
 def _split(added: int, weights: np.ndarray) -> np.ndarray:
     """Whole units per tranche in proportion to ``weights``, largest remainders first (later tranches on ties)."""
-    exact = added * weights / weights.sum()
-    whole = np.floor(exact).astype(np.int64)
-    left = added - int(whole.sum())
-    order = np.lexsort((-np.arange(len(exact)), -(exact - whole)))
-    whole[order[:left]] += 1
+    return _split_groups(np.array([added]), np.zeros(len(weights), np.int64), np.asarray(weights, float))
+
+
+def _split_groups(added: np.ndarray, group: np.ndarray, weights: np.ndarray) -> np.ndarray:
+    """``added[g]`` whole units over the rows of each group ``g`` in proportion to ``weights`` (rows by group).
+
+    Largest remainders take the units left; on equal remainders the later row first.
+    """
+    total = np.bincount(group, weights=weights, minlength=len(added))
+    exact = added[group] * weights / total[group]
+    whole = np.floor(exact + 1e-9).astype(np.int64)
+    left = added - np.bincount(group, weights=whole, minlength=len(added)).astype(np.int64)
+    order = np.lexsort((-np.arange(len(exact)), -(exact - whole), group))
+    first = np.searchsorted(group[order], np.arange(len(added)))
+    rank = np.arange(len(order)) - first[group[order]]
+    whole[order[rank < left[group[order]]]] += 1
     return whole
 
 
@@ -115,7 +126,7 @@ def contribute(tables: dict, sources: dict):
 
 
 def _children(tables, sources, g, mods, up, added):
-    """Grants, tranches and assumption rows of the added units of modification rows ``up``."""
+    """Grants, tranches and assumption rows of the added units of modification rows ``up`` (vectorised)."""
     from grantval.ledger.extensions import Contribution
     from grantval.ledger.ext.modifications import grant_positions, terms, vesting
     from grantval.ledger.load import _tranches
@@ -123,54 +134,54 @@ def _children(tables, sources, g, mods, up, added):
     t = terms(g, mods)
     pos = np.empty(len(mods), dtype=np.int64)
     pos[t.order] = np.arange(len(t.order))
-    ok, tr, _ = _tranches(g, tables["tranches"], sources["tranches"])
+    sub = np.flatnonzero(g["grant_id"].isin(set(mods["grant_id"].iloc[up])).to_numpy())
+    ok, tr, _ = _tranches(g.iloc[sub].reset_index(drop=True), tables["tranches"], sources["tranches"])
+    tr = tr[ok[tr["grant_idx"].to_numpy()]].reset_index(drop=True)
+    tr["grant_idx"] = sub[tr["grant_idx"].to_numpy()]
     vs = vesting(g, tr, mods, t)
-    gp = grant_positions(g, mods)
-    a = tables["assumptions"]
-    rows, tranches, assumptions, problems = [], [], [], []
-    for n, (r, k) in enumerate(zip(up, added)):
-        i = pos[r]
-        d = t.date[i]
-        pair = vs.p_mod == i
-        unvested = pair & (vs.vest_after > d)
-        if unvested.any():
-            w = np.maximum(tr["quantity"].to_numpy(float)[vs.p_tranche[unvested]], 1.0)
-            qty, dates = _split(int(k), w), vs.vest_after[unvested]
-        else:
-            qty, dates = np.array([k], dtype=np.int64), np.array([d], dtype="datetime64[D]")
-        tranches.append(pd.DataFrame({"grant": n, "vest_date": dates[qty > 0], "quantity": qty[qty > 0]}))
-        assumptions.append(_assumption_row(a, mods.iloc[r], d))
-        parent = g.iloc[gp[r]]
-        rows.append({
-            "grant_id": child_id(parent["grant_id"], d), "holder_id": parent["holder_id"], "group": parent["group"],
-            "award_type": parent["award_type"], "grant_date": d, "quantity": float(k),
-            "exercise_price": t.strike_after[i], "expiration_date": t.expiry_after[i], "vest_start_date": d,
-            "vest_months": 0.0, "vest_every_months": 1.0, "cliff_months": 0.0, "assumption_set": None,
-            "_row": int(mods["_row"].iat[r]), "_source": sources["modifications"], "planned": False,
-            "assumption_row": n, "_added_to": parent["grant_id"], "_added_on": d})
-    grants = pd.DataFrame(rows)
-    grants["grant_date"] = grants["grant_date"].to_numpy("datetime64[D]")
-    grants["expiration_date"] = grants["expiration_date"].to_numpy("datetime64[D]")
-    grants["vest_start_date"] = grants["vest_start_date"].to_numpy("datetime64[D]")
-    grants["_added_on"] = grants["_added_on"].to_numpy("datetime64[D]")
-    return Contribution(grants, pd.concat(tranches, ignore_index=True), pd.concat(assumptions, ignore_index=True),
-                        problems)
+    i, d = pos[up], t.date[pos[up]]
+    child_of = np.full(len(t.gp), -1, dtype=np.int64)
+    child_of[i] = np.arange(len(up))
+    c = child_of[vs.p_mod]
+    take = (c >= 0) & (vs.vest_after > t.date[vs.p_mod])
+    has = np.bincount(c[take], minlength=len(up)) > 0
+    group = c[take]
+    weights = np.maximum(tr["quantity"].to_numpy(float)[vs.p_tranche[take]], 1.0)
+    qty = _split_groups(added, group, weights) if take.any() else np.zeros(0, np.int64)
+    tranches = pd.DataFrame({"grant": np.r_[group, np.flatnonzero(~has)],
+                             "vest_date": np.r_[vs.vest_after[take], d[~has]].astype("datetime64[D]"),
+                             "quantity": np.r_[qty, added[~has]].astype(np.int64)})
+    tranches = tranches[tranches["quantity"] > 0].sort_values(["grant", "vest_date"], kind="stable")
+    parent = grant_positions(g, mods)[up]
+    col = lambda name: g[name].to_numpy(dtype=object)[parent]  # noqa: E731
+    grants = pd.DataFrame({
+        "grant_id": [child_id(k, x) for k, x in zip(col("grant_id"), d)], "holder_id": col("holder_id"),
+        "group": col("group"), "award_type": col("award_type"), "grant_date": d, "quantity": added.astype(float),
+        "exercise_price": t.strike_after[i], "expiration_date": t.expiry_after[i], "vest_start_date": d,
+        "vest_months": 0.0, "vest_every_months": 1.0, "cliff_months": 0.0, "assumption_set": None,
+        "_row": mods["_row"].to_numpy()[up].astype(np.int64), "_source": sources["modifications"], "planned": False,
+        "assumption_row": np.arange(len(up)), "_added_to": col("grant_id"), "_added_on": d})
+    return Contribution(grants, tranches.reset_index(drop=True), _assumption_rows(tables["assumptions"],
+                                                                                 mods.iloc[up], d), [])
 
 
-def _assumption_row(a: pd.DataFrame, mod: pd.Series, day) -> pd.DataFrame:
-    """The valuation inputs of the added units: the row's assumption set, or its outside value after."""
-    if pd.notna(mod["assumption_set"]):
-        hit = a[a["assumption_set"] == mod["assumption_set"]]
-        if len(hit):
-            row = hit.iloc[:1].copy()
-            row["grant_date"] = np.datetime64(day, "D")
-            return row.reset_index(drop=True)
-    row = a.iloc[:0].reindex(range(1))
-    row["assumption_set"] = None
-    row["grant_date"] = np.datetime64(day, "D")
-    row["fair_value"] = float(mod["fair_value_after"]) if pd.notna(mod["fair_value_after"]) else np.nan
-    row["model"] = "bsm"
-    return row
+def _assumption_rows(a: pd.DataFrame, mods: pd.DataFrame, day: np.ndarray) -> pd.DataFrame:
+    """The valuation inputs of the added units: each row's assumption set, or its outside value after."""
+    first = {}
+    for j, k in enumerate(a["assumption_set"].to_numpy(dtype=object)):
+        if k is not None and k not in first:
+            first[k] = j
+    names = mods["assumption_set"].to_numpy(dtype=object)
+    at = np.array([first.get(k, -1) if pd.notna(k) else -1 for k in names], dtype=np.int64)
+    outside = at < 0
+    inside = a.iloc[at[~outside]].set_axis(np.flatnonzero(~outside))
+    blank = a.iloc[:0].reindex(range(int(outside.sum()))).set_axis(np.flatnonzero(outside))
+    blank["fair_value"] = mods["fair_value_after"].to_numpy(float)[outside]
+    blank["model"] = "bsm"
+    rows = pd.concat([x for x in (inside, blank) if len(x)] or [blank]).sort_index().reset_index(drop=True)
+    rows["assumption_set"] = None
+    rows["grant_date"] = np.asarray(day, dtype="datetime64[D]")
+    return rows
 
 
 def mirrored_events(grants: pd.DataFrame, events: pd.DataFrame, source: str) -> pd.DataFrame:

@@ -267,7 +267,8 @@ def _row_problems(m: pd.DataFrame, g: pd.DataFrame, a: pd.DataFrame, src: str) -
     aset = m["assumption_set"].to_numpy(dtype=object)
     names = set(a["assumption_set"].dropna())
     has_set = m["assumption_set"].notna().to_numpy()
-    for r, k in zip(rows_where(m, has_set & ~np.isin(aset, list(names))), aset[has_set & ~np.isin(aset, list(names))]):
+    unknown = has_set & ~m["assumption_set"].isin(names).to_numpy()
+    for r, k in zip(rows_where(m, unknown), aset[unknown]):
         p.append(Problem(src, r, "assumption_set", f"{k!r} is not an assumption_set of the assumptions table"))
     for r in rows_where(m, has_set & before):
         p.append(Problem(src, r, "assumption_set", "give either an assumption_set or fair_value_before and "
@@ -446,12 +447,15 @@ def _later_without_children(t: Terms, grants: pd.DataFrame, src: str, rows: np.n
     if "_added_to" not in grants:
         return []
     kids = grants[grants["_added_to"].notna()]
-    ids = grants["grant_id"].to_numpy(dtype=object)
-    given = set(zip(ids[t.gp], t.date))
-    p = []
+    ids = grants["grant_id"].to_numpy(dtype=object)[t.gp]
+    given = set(zip(ids, t.date))
+    by_parent: dict = {}
     for kid, parent, day in zip(kids["grant_id"], kids["_added_to"], kids["_added_on"].to_numpy("datetime64[D]")):
-        for i in np.flatnonzero((ids[t.gp] == parent) & (t.date > day)):
-            if (kid, t.date[i]) not in given:
+        by_parent.setdefault(parent, []).append((kid, day))
+    p = []
+    for i, (gid, d) in enumerate(zip(ids, t.date)):
+        for kid, day in by_parent.get(gid, ()):
+            if d > day and (kid, d) not in given:
                 p.append(Problem(src, int(rows[i]), "grant_id", f"the units added on {day} are grant {kid}: this "
                                  "modification does not change them unless a row gives it for that grant too",
                                  "warning"))
