@@ -409,3 +409,32 @@ def test_rate_estimates_would_move_without_the_end_history(tmp_path, monkeypatch
     _, _, _, s = run(folder, "2025-12-31", standard="asc718", attribution="graded", forfeitures="estimate")
     _, _, _, p = run(plain, "2025-12-31", standard="asc718", attribution="graded", forfeitures="estimate")
     assert s.cumulative_cents[0, 0] != p.cumulative_cents[0, 0]
+
+
+def test_increase_with_an_unknown_assumption_set(tmp_path):
+    folder = increased(tmp_path / "l", assumption=True)
+    text = (folder / "modifications.csv").read_text().replace(",m,", ",nope,")
+    (folder / "modifications.csv").write_text(text)
+    with pytest.raises(LedgerError) as e:
+        load_ledger(folder)
+    got = {(p.source, p.row, p.column) for p in e.value.problems}
+    assert ("modifications.csv", 2, "assumption_set") in got and ("modifications.csv", 2, "quantity") in got
+    assert all(p.source == "modifications.csv" for p in e.value.problems), e.value.problems
+
+
+def test_modifications_sheet_shows_schedule_and_quantity_changes(tmp_path):
+    from openpyxl import load_workbook
+
+    from grantval.io.xlsx.write import write_workbook
+    from grantval.reporting.modification_tables import COLUMNS, modification_sheets
+
+    led, pol, inp, _ = run(increased(tmp_path / "q"), "2026-12-31", standard="ifrs2")
+    write_workbook(tmp_path / "q.xlsx", modification_sheets(inp.modifications, led, pol.attribution))
+    row = {c: cell.value for c, cell in zip(COLUMNS, load_workbook(tmp_path / "q.xlsx")["modifications"][2])}
+    assert (row["units_before"], row["units_added"], row["units_after"]) == (1000, 500, 1500)
+    assert row["change"] == "repricing, increased quantity"
+    led, pol, inp, _ = run(shortened(tmp_path / "s"), "2028-12-31", standard="ifrs2")
+    write_workbook(tmp_path / "s.xlsx", modification_sheets(inp.modifications, led, pol.attribution))
+    row = {c: cell.value for c, cell in zip(COLUMNS, load_workbook(tmp_path / "s.xlsx")["modifications"][2])}
+    assert row["vesting_before"] == "48 months, every 12, cliff 0" and row["units_accelerated"] == 750
+    assert row["change"] == "vesting schedule (earlier)" and "B43(c)" in row["treatment"]

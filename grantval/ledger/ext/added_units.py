@@ -119,7 +119,12 @@ def contribute(tables: dict, sources: dict):
     g = fill_grant_defaults(tables["grants"])
     live = _outstanding_before(tables, sources, g, mods)
     q = mods["quantity"].to_numpy(float)
-    up = np.flatnonzero(~np.isnan(q) & ~np.isnan(live) & (q > live) & (live > 0))
+    names = set(tables["assumptions"]["assumption_set"].dropna())
+    valued = mods["assumption_set"].isin(names).to_numpy() | mods["fair_value_after"].notna().to_numpy()
+    kinds = dict(zip(g["grant_id"], g["award_type"]))
+    valued &= np.array([kinds.get(k) in ("option", "rsu") for k in mods["grant_id"]], dtype=bool)  # others refused
+    # rows without valuation inputs get no grant: their own checks say what is missing
+    up = np.flatnonzero(~np.isnan(q) & ~np.isnan(live) & (q > live) & (live > 0) & valued)
     if not len(up):
         return empty
     return _children(tables, sources, g, mods, up, (q[up] - live[up]).astype(np.int64))

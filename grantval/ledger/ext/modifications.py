@@ -425,7 +425,11 @@ def _reductions(t: Terms, new_qty: np.ndarray, live: np.ndarray, src: str, rows:
         if new_qty[i] > live[i] and live[i] > 0:
             kid = child_id(grants["grant_id"].iat[t.gp[i]], t.date[i])
             got = added.get(kid)
-            if got != new_qty[i] - live[i]:
+            if got is None:
+                p.append(Problem(src, int(rows[i]), "quantity", f"the {int(new_qty[i] - live[i])} units added need "
+                                 "valuation inputs on the modification date: an assumption_set of the assumptions "
+                                 "table, or fair_value_after"))
+            elif got != new_qty[i] - live[i]:
                 p.append(Problem(src, int(rows[i]), "quantity", f"{int(new_qty[i])} units after the modification "
                                  f"add {int(new_qty[i] - live[i])} to the {int(live[i])} outstanding, but grant "
                                  f"{kid} holds {0 if got is None else int(got)}: report this"))
