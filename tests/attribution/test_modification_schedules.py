@@ -199,7 +199,7 @@ def test_bsm_values_of_a_shorter_schedule(tmp_path):
     folder = write_ledger(tmp_path / "l", {
         "grants": grants, "assumptions": a, "policy": [{"key": "valuation_unit", "value": "tranche"}],
         "modifications": [_mod("S", "2026-01-01", vest_months="36", vest_every_months="9", assumption_set="m")]})
-    led, _, inp, _ = run(folder, "2028-12-31", standard="asc718", attribution="graded")
+    _, _, inp, _ = run(folder, "2028-12-31", standard="asc718", attribution="graded")
     v = inp.modifications.values
     life = days("2026-01-01", "2035-01-01") / 365.25
     for j, (old, new) in enumerate([("2026-01-01", "2026-01-01"), ("2027-01-01", "2026-07-01"),
