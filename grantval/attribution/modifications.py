@@ -57,8 +57,9 @@ def _layer_rows(values, t_fv_so_far: np.ndarray, standard: str):
     unvested = values.vest_before > t.date[p]
     inc = values.after - values.before
     not_expected = _not_expected(values)
-    # vests on the modification date (accelerated, or a new schedule that vests it at once)
-    type3 = (standard == "asc718") & not_expected & (values.vest_after <= t.date[p]) & unvested
+    # vests earlier: on the modification date (accelerated, or a new schedule that vests it at once), or on a
+    # new, earlier date (its reversal then comes from attribution.schedule_change: layers A and R)
+    type3 = (standard == "asc718") & not_expected & (values.vest_after < values.vest_before) & unvested
     per_unit = np.where(type3, values.after, np.maximum(inc, 0.0))
     reverse = np.where(type3, t_fv_so_far, 0.0)
     words = np.where(inc > 0, "incremental value added", "decrease in fair value ignored (no incremental)")
@@ -73,6 +74,7 @@ def _layer_rows(values, t_fv_so_far: np.ndarray, standard: str):
         label[later & not_expected] += "; cost only if the modified award vests (ASC 718-20-55-108)"
         label[earlier] += "; original cost not yet recognised spread over the new, shorter period"
         label[type3] = "Type III (improbable to probable): original cost reversed, modified fair value recognised"
+        label[type3 & earlier] += " from the modification date to the new vesting date"
     else:
         label = np.array([f"IFRS 2.27: {w}" for w in words], dtype=object)
         label[later] += "; longer vesting not taken into account (B44(c))"
@@ -108,7 +110,8 @@ def modification_layers(values, t_fv: np.ndarray, standard: str) -> Modification
         scale = _scale(values, m)
         np.add.at(so_far, values.p_tranche[m], (pu - rv) * scale)
     scale = _scale(values, np.ones(n, dtype=bool))
-    fv = np.concatenate([per_unit * scale, -reverse * scale])
+    at_once = values.vest_after <= t.date[values.p_mod]  # else the reversal is schedule_change's (layers A, R)
+    fv = np.concatenate([per_unit * scale, -np.where(at_once, reverse, 0.0) * scale])
     tranche = np.concatenate([values.p_tranche, values.p_tranche])
     start = np.concatenate([t.date[values.p_mod]] * 2)
     set_id = np.concatenate([t.rank[values.p_mod] + 1] * 2)

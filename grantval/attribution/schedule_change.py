@@ -25,6 +25,9 @@ vesting moves from E to a later or earlier date V (service ends, after retiremen
     recognised prospectively over the new remaining service (PwC guide SC 4.2, step 3).
 
   At V (vested) L + A + B + C = L + A + B' = F.
+- ASC 718 Type III (``original_expected_to_vest`` = ``no``, vesting earlier, after d): L is reversed
+  from d on: A and R = -F (d - s)/(E - s) at once on d (L + A + R = 0 from d on); the modified award's
+  fair value is the modification's own layer, served from d to V (ASC 718-20-55-108).
 - earlier, on the modification date (V <= d, as ``accelerate``): the tranche vests and every layer is
   served in full (the engine's rule for vested tranches); nothing is added.
 
@@ -102,16 +105,19 @@ def reschedule_layers(base: CostLayers, mods: CostLayers, mod_rank: np.ndarray, 
         _keep(lay, exist, tr[keep], rank, is_mod, r, standard)
         dn = _days(d)
         earlier = moved & (va < vb) & (va > d)
+        # ASC 718 Type III (improbable to probable, vesting earlier): the original cost is reversed instead
+        revert = np.zeros(n_t, dtype=bool)
+        revert[tr[earlier & (standard == "asc718") & not_expected[m]]] = True
         if attribution == "straight-line":
-            added = _respread_awards(lay, exist, tr, dn, e_before, e_after, t_grant, counter, standard)
+            added = _respread_awards(lay, exist, tr, dn, e_before, e_after, t_grant, counter, standard, revert)
         elif earlier.any():
-            on = exist & np.isin(lay.tranche, tr[earlier])
+            on = np.flatnonzero(exist & np.isin(lay.tranche, tr[earlier]))
             target = np.zeros(n_t, dtype=np.int64)
             target[tr[earlier]] = e_after[earlier]
             day = np.zeros(n_t, dtype=np.int64)
             day[tr[earlier]] = dn[earlier]
-            added = [_respread(lay, np.flatnonzero(on), day[lay.tranche[on]], target[lay.tranche[on]], counter,
-                               standard)]
+            added = [_respread(lay, on, day[lay.tranche[on]], target[lay.tranche[on]], counter, standard,
+                               revert[lay.tranche[on]])]
         else:
             added = []
         for extra in added:
@@ -143,17 +149,21 @@ def _keep(lay, exist, tranches, rank, is_mod, r, standard) -> None:
 
 
 def _respread(lay: CostLayers, idx: np.ndarray, d: np.ndarray, v: np.ndarray, counter: list,
-              standard: str) -> CostLayers:
-    """Layers A and B (and C under IFRS 2) re-spreading layers ``idx`` from day ``d`` to day ``v``."""
+              standard: str, revert: np.ndarray) -> CostLayers:
+    """Layers A and B (and C under IFRS 2) re-spreading layers ``idx`` from day ``d`` to day ``v``.
+
+    Where ``revert`` (ASC 718 Type III) the layer is reversed instead: A and R = -F (d - s)/(E - s) on d.
+    """
     s, e, f = _days(lay.start[idx]), _days(lay.end[idx]), lay.fair_value[idx]
     ok = (e > d) & (e > s) & (v > d)
-    idx, s, e, f, d, v = idx[ok], s[ok], e[ok], f[ok], d[ok], v[ok]
+    idx, s, e, f, d, v, revert = idx[ok], s[ok], e[ok], f[ok], d[ok], v[ok], revert[ok]
     left = (e - d) / (e - s)
-    parts = [(-f * left, d, e)]
+    keep = np.where(revert, 0.0, 1.0)
+    parts = [(-f * left, d, e), (-f * (d - s) / (e - s) * revert, d, d)]
     if standard == "ifrs2":
-        parts += [(f * (v - d) / (v - s), d, v), (f * ((d - s) / (v - s) - (d - s) / (e - s)), d, d)]
+        parts += [(keep * f * (v - d) / (v - s), d, v), (keep * f * ((d - s) / (v - s) - (d - s) / (e - s)), d, d)]
     else:
-        parts += [(f * left, d, v)]
+        parts += [(keep * f * left, d, v)]
     out = []
     for value, start, end in parts:
         n = len(idx)
@@ -171,7 +181,7 @@ def _respread(lay: CostLayers, idx: np.ndarray, d: np.ndarray, v: np.ndarray, co
                                                          "kept")))
 
 
-def _respread_awards(lay, exist, tr, dn, e_before, e_after, t_grant, counter, standard) -> list:
+def _respread_awards(lay, exist, tr, dn, e_before, e_after, t_grant, counter, standard, revert) -> list:
     """Straight-line: re-spread every existing layer of awards whose last service end moves earlier."""
     g = t_grant[tr]
     out = []
@@ -183,7 +193,8 @@ def _respread_awards(lay, exist, tr, dn, e_before, e_after, t_grant, counter, st
         idx = np.flatnonzero(exist & (t_grant[lay.tranche] == grant))
         saved = lay.end[idx].copy()
         lay.end[idx] = np.datetime64(int(old), "D")  # the set's period: to the award's last service end
-        out.append(_respread(lay, idx, np.full(len(idx), d), np.full(len(idx), new), counter, standard))
+        out.append(_respread(lay, idx, np.full(len(idx), d), np.full(len(idx), new), counter, standard,
+                             revert[lay.tranche[idx]]))
         lay.end[idx] = saved
     if not out:
         return []

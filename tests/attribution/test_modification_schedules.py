@@ -165,18 +165,39 @@ def test_exercise_before_the_new_vesting_date_is_refused(tmp_path):
 
 def test_type_iii_when_a_new_schedule_vests_at_once(tmp_path):
     # ASC 718-20-55-108 (Case C): not expected to vest; the new schedule (24 months every 12) vests
-    # tranches 2 (2027-01-01 -> 2026-01-01 = the modification date) at once: its cost so far is reversed
-    # and the modified value (5 x 250) recognised. Tranches 3, 4 (-> 2027-01-01) are Type IV (limitation).
+    # tranche 2 (2027-01-01 -> 2026-01-01 = the modification date) at once and tranches 3, 4 on
+    # 2027-01-01: their cost so far is reversed and the modified value (250 x 5 = 1,250 each) recognised,
+    # tranche 2's at once, tranches 3 and 4's over the 365 days to 2027-01-01 (all served by 2026-12-31)
     folder = shortened(tmp_path / "l", vest_months="24", vest_every_months="12", original_expected_to_vest="no")
     led, _, inp, s = run(folder, "2026-12-31", standard="asc718", attribution="graded")
     row = modification_table(inp.modifications, led).iloc[0]
     assert "Type III" in row["treatment"]
-    # 2026-12-31: tranche 1 3,000; tranche 2 1,250; tranches 3 and 4 move to 2027-01-01 (ASC prospective
-    # rule): tranche 3 has 3,000 x 365/1,095 = 1,000 on 2026-01-01 and the other 2,000 over the 365 days
-    # to 2027-01-01 (all served by 2026-12-31); tranche 4 likewise from 3,000 x 365/1,461
-    t3 = 1000 + 2000 * 365 / 365
-    t4 = 3000 * 365 / 1461 + 3000 * 1096 / 1461
-    assert abs(s.cumulative_cents[0, -1] - round((3000 + 1250 + t3 + t4) * 100)) <= 1
+    assert s.cumulative_cents[0, -1] == (3000 + 3 * 1250) * 100
+
+
+def test_type_iii_with_a_shorter_schedule(tmp_path):
+    # ASC 718-20-55-108: the shortened ledger with the original not expected to vest: on 2026-01-01 the
+    # cost of tranches 2-4 is reversed and 1,250 each is recognised from 2026-01-01 to the new dates
+    # (2026-07-01, 2027-04-01 = 455 days, 2028-01-01 = 730 days); tranche 1 vested on the date: 3,000
+    folder = shortened(tmp_path / "l", original_expected_to_vest="no")
+    _, _, _, s = run(folder, "2028-12-31", standard="asc718", attribution="graded")
+    y2025 = 3000 * (1 + 365 / 730 + 365 / 1095 + 365 / 1461)
+    y2026 = 3000 + 1250 + 1250 * 365 / 455 + 1250 * 365 / 730
+    expect = np.round(np.array([y2025, y2026, 3000 + 1250 * 3, 3000 + 1250 * 3]) * 100)
+    assert np.abs(s.cumulative_cents[0] - expect).max() <= 1
+
+
+def test_type_iii_with_a_shorter_schedule_straight_line(tmp_path):
+    # straight-line over the award (ASC 718-10-35-8, tranches vested by a date are a floor): 2025 as
+    # granted, 12,000 x 365/1,461; 2026: the floor, tranche 1 (3,000) + tranche 2 (1,250, vested
+    # 2026-07-01) = 4,250 is above the spread (tranche 1's rest over 730 days + 3,750 x 365/730);
+    # 2027: 3,000 + 3,750 served in full by 2027-12-31
+    folder = shortened(tmp_path / "l", original_expected_to_vest="no")
+    _, _, _, s = run(folder, "2028-12-31", standard="asc718", attribution="straight-line")
+    t1 = 3000 * 365 / 1461 + 3000 * 1096 / 1461 * 365 / 730
+    assert t1 + 3750 * 365 / 730 < 4250
+    expect = np.round(np.array([12000 * 365 / 1461, 4250, 6750, 6750]) * 100)
+    assert np.abs(s.cumulative_cents[0] - expect).max() <= 1
 
 
 def test_modifications_table_shows_the_schedule_before_and_after(tmp_path):
@@ -212,7 +233,11 @@ def test_bsm_values_of_a_shorter_schedule(tmp_path):
             assert value == pytest.approx(ref, abs=1e-9)
 
 
-@pytest.mark.parametrize("ledger", [shortened, lengthened])
+def shortened_improbable(folder):
+    return shortened(folder, original_expected_to_vest="no")
+
+
+@pytest.mark.parametrize("ledger", [shortened, lengthened, shortened_improbable])
 @pytest.mark.parametrize("standard,attribution", [("asc718", "graded"), ("asc718", "straight-line"),
                                                   ("ifrs2", "graded")])
 @pytest.mark.parametrize("through", ["2025-12-31", "2027-12-31"])
