@@ -11,11 +11,12 @@ Rules (docs/modifications.md):
   (ASC 718-20-35-3; IFRS 2 B44(a));
 - ASC 718 improbable-to-probable (Type III, ASC 718-20-55-108 and Example 14 Case C): where the original
   award was not expected to vest (``original_expected_to_vest`` = ``no``) and the modification vests
-  the tranche on the modification date (``accelerate``), the cost recognised so far on the tranche is
+  the tranche earlier (``accelerate`` or a new schedule), the cost recognised so far on the tranche is
   reversed and the modified award's fair value on the modification date recognised instead (layers
-  ``-(value so far)`` and ``+fair value after``).  Under IFRS 2 the grant-date fair value stands and
-  the incremental value is added (B43(a), (c));
-- Type I (probable-to-probable) and Type IV (improbable-to-improbable, no acceleration): the original
+  ``-(value so far)`` and ``+fair value after`` when it vests on the date; for a later new date the
+  reversal is :mod:`~grantval.attribution.schedule_change`'s).  Under IFRS 2 the grant-date fair value
+  stands and the incremental value is added (B43(a), (c));
+- Type I (probable-to-probable) and Type IV (improbable-to-improbable, vesting not earlier): the original
   cost continues and the incremental is added, both following the forfeiture estimates
   (ASC 718-20-55-107);
 - units exercised or expired before the modification take no incremental value: the layer's value
