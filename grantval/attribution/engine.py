@@ -44,6 +44,8 @@ class Measurement:
     expected_total: np.ndarray  # per grant: total cost expected at d's estimates (full service)
     unrecognised: np.ndarray    # per grant: expected_total - grant_cost (0 before the grant date)
     remaining_years: np.ndarray  # per grant: weighted-average remaining recognition period, years
+    #: per layer: units forfeited after the layer's own end whose cost it keeps (see CostLayers.kept)
+    layer_kept: np.ndarray | None = None
 
 
 def _elapsed(served_through: int, start: np.ndarray, length: np.ndarray) -> np.ndarray:
@@ -111,6 +113,7 @@ class _Quantities:
     granted_g: np.ndarray
     years_left_t: np.ndarray
     years_left_g: np.ndarray
+    kept: np.ndarray = None   # per layer: units forfeited on or after the layer's own end that keep its cost
     as_of: int | None = None  # forecasts: the day whose expected quantities and payouts are kept
 
 
@@ -137,15 +140,19 @@ def _quantities(inp: ExpenseInputs, dn: int, forfeitures: str, cut: int, est_day
     if forfeitures == "estimate":
         rate, frac = estimates_at(inp, np.datetime64(est_day, "D"))
         r_t, f_t = rate[inp.t_grant], frac[inp.t_grant]
-        remaining = (pre.t_end - (dn + 1)) / RATE_YEAR_DAYS
+        t_end = pre.end_at(dn)  # a modification's new service end applies from its date only
+        remaining = (t_end - (dn + 1)) / RATE_YEAR_DAYS
         by_rate = outstanding * np.power(1.0 - np.nan_to_num(r_t), np.maximum(remaining, 0.0))
         by_frac = np.minimum(f_t * inp.t_qty, outstanding)
         expected = np.where(~np.isnan(f_t), by_frac, by_rate)
         # no forfeiture is expected once the requisite service is complete (vested, or retirement eligible)
-        n_exp = np.where(vested | ((pre.t_end <= dn) & granted_by), outstanding, expected)
+        n_exp = np.where(vested | ((t_end <= dn) & granted_by), outstanding, expected)
     else:
         n_exp = outstanding.astype(float)
     granted_g = pre.grant <= dn
+    kept = np.zeros(len(pre.l_tranche))
+    if len(pre.l_kept):
+        kept[pre.l_kept] = _kept_units(inp, pre, pre.l_kept, forf)
     q = _Quantities(
         outstanding=outstanding, cancelled=cancelled, n_exp=n_exp, vested=vested, granted_by=granted_by,
         started=pre.l_start <= dn,
@@ -154,6 +161,7 @@ def _quantities(inp: ExpenseInputs, dn: int, forfeitures: str, cut: int, est_day
                          0.0),
         el_set=np.where(pre.set_start <= dn, _elapsed(dn, pre.set_start, pre.set_len), 0.0),
         granted_g=granted_g,
+        kept=kept,
         years_left_t=np.maximum(pre.t_vest - dn, 0) / DAYS_PER_YEAR,
         years_left_g=np.maximum(pre.last - dn, 0) / DAYS_PER_YEAR,
     )
@@ -209,7 +217,7 @@ def measure(inp: ExpenseInputs, d, *, attribution: str, forfeitures: str, events
     pre = inp.prepared()
     lg, lt = pre.l_grant, pre.l_tranche
     n_g = inp.n_grants
-    value = inp.layers.fair_value * Q.n_exp[lt]  # per layer
+    value = inp.layers.fair_value * (Q.n_exp[lt] + Q.kept)  # per layer
     started = Q.started
     cancel_cost = np.bincount(lg, weights=np.where(Q.granted_by[lt] & started,
                                                    inp.layers.fair_value * Q.cancelled[lt], 0.0), minlength=n_g)
@@ -242,5 +250,21 @@ def measure(inp: ExpenseInputs, d, *, attribution: str, forfeitures: str, events
     return Measurement(
         n_expensed=n_expensed, outstanding=Q.outstanding, cancelled=Q.cancelled, elapsed=Q.elapsed[:n_t],
         vested=Q.vested, grant_cost=cost, expected_total=expected_total, unrecognised=unrec,
-        remaining_years=remaining,
+        remaining_years=remaining, layer_kept=Q.kept,
     )
+
+
+def _kept_units(inp: ExpenseInputs, pre, layers: np.ndarray, forf: np.ndarray) -> np.ndarray:
+    """Per layer of ``layers``: units of its tranche forfeited (``forf`` changes) on or after the layer's end."""
+    c_t, c_d, c_q = inp.c_tranche[forf], pre.c_date[forf], inp.c_qty[forf].astype(float)
+    out = np.zeros(len(layers))
+    if not len(c_t):
+        return out
+    t, end = pre.l_tranche[layers], pre.l_end[layers]
+    order = np.lexsort((c_d, c_t))
+    c_t, c_d, c_q = c_t[order], c_d[order], c_q[order]
+    csum = np.r_[0.0, np.cumsum(c_q)]
+    key_c = c_t.astype(np.float64) * 1e7 + c_d
+    lo = np.searchsorted(key_c, t.astype(np.float64) * 1e7 + end, side="left")
+    hi = np.searchsorted(c_t, t, side="right")
+    return np.where(hi > lo, csum[np.maximum(hi, lo)] - csum[lo], 0.0)

@@ -56,6 +56,10 @@ class ExpenseInputs:
     cost_hooks: list = field(default_factory=list)
     #: modifications of the ledger's awards (attribution.modifications.ModificationReport), None when none
     modifications: object = None
+    #: service ends moved by modifications: ``(tranche, from_date, end_before)`` arrays; before
+    #: ``from_date`` the tranche's service ended on ``end_before`` (what the forfeiture estimates use at
+    #: dates before the modification); None when no modification moved one
+    service_end_history: tuple | None = None
     _prep: object = None
 
     def __post_init__(self):
@@ -120,6 +124,7 @@ class Prepared:
         self.t_gdate = self.grant[inp.t_grant]
         self.t_vest = day(inp.t_vest)
         self.t_end = day(inp.t_service_end)
+        self._history(inp.service_end_history)
         self.last = _last_per_grant(self.t_end, inp.t_grant, len(self.grant)) if len(self.t_end) else day(inp.last_vest)
         self.t_len = self.t_end - self.t_gdate
         self.g_len = self.last - self.grant
@@ -136,6 +141,27 @@ class Prepared:
         self.code_star = index.get("*", -1)
         self._layers(inp)
 
+    def _history(self, history) -> None:
+        """Moved service ends, sorted by tranche then date (see ``ExpenseInputs.service_end_history``)."""
+        if history is None or not len(history[0]):
+            self.h_tranche = None
+            return
+        tr, frm, end = (np.asarray(x) for x in history)
+        order = np.lexsort((_days(frm), tr))
+        self.h_tranche, self.h_from, self.h_end = tr[order], _days(frm)[order], _days(end)[order]
+
+    def end_at(self, dn: int) -> np.ndarray:
+        """Per tranche: the service end in force on day number ``dn`` (before a modification moved it)."""
+        if self.h_tranche is None:
+            return self.t_end
+        later = np.flatnonzero(self.h_from > dn)
+        if not len(later):
+            return self.t_end
+        first = later[np.unique(self.h_tranche[later], return_index=True)[1]]
+        out = self.t_end.copy()
+        out[self.h_tranche[first]] = self.h_end[first]
+        return out
+
     def _layers(self, inp: ExpenseInputs) -> None:
         """Per-layer service periods and the layer sets of straight-line attribution."""
         lay = inp.layers
@@ -145,7 +171,11 @@ class Prepared:
         self.l_tranche = lay.tranche
         self.l_grant = inp.t_grant[lay.tranche]
         self.l_start = _days(lay.start)
-        self.l_len = self.t_end[lay.tranche] - self.l_start
+        own_end = ~np.isnat(np.asarray(lay.end, dtype="datetime64[D]"))
+        self.l_end = np.where(own_end, _days(lay.end), self.t_end[lay.tranche])
+        self.l_len = self.l_end - self.l_start
+        # layers kept for units forfeited on or after their own end (see CostLayers.kept)
+        self.l_kept = np.flatnonzero(np.asarray(lay.kept, dtype=bool))
         keys = self.l_grant * (int(lay.set_id.max(initial=0)) + 1) + lay.set_id
         uniq, self.l_set = np.unique(keys, return_inverse=True)
         self.l_set = self.l_set.ravel()
@@ -153,7 +183,16 @@ class Prepared:
         first[self.l_set[::-1]] = np.arange(len(lay))[::-1]
         self.set_grant = self.l_grant[first]
         self.set_start = self.l_start[first]
-        self.set_len = self.last[self.set_grant] - self.set_start
+        # a set's service runs to the award's last service end, or to the latest own end of its layers
+        set_end = self.last[self.set_grant].copy()
+        if own_end.any():
+            own = np.full(len(uniq), np.iinfo(np.int64).min, dtype=np.int64)
+            np.maximum.at(own, self.l_set[own_end], self.l_end[own_end])
+            has = np.bincount(self.l_set[own_end], minlength=len(uniq)) > 0
+            every = np.bincount(self.l_set, weights=own_end.astype(float), minlength=len(uniq)) == np.bincount(
+                self.l_set, minlength=len(uniq))
+            set_end = np.where(has & every, own, np.where(has, np.maximum(set_end, own), set_end))
+        self.set_len = set_end - self.set_start
 
 
 def hook_builders() -> list[Callable]:

@@ -37,6 +37,15 @@ class CostLayers:
         straight-line attribution the layers of one set share one service fraction.
     kind : ndarray of str
         One of :data:`KINDS`.
+    end : ndarray of datetime64[D], optional
+        Last day of the layer's service where it is not the tranche's (NaT: the tranche's service
+        end).  A modification that changes the vesting schedule keeps the original cost on the
+        original service period (ASC 718-20-55-107; IFRS 2 B44(c)).  None: NaT everywhere.
+    kept : ndarray of bool, optional
+        The layer's cost stays recognised for units forfeited on or after its ``end``: the units
+        met the layer's (original) service condition although the tranche now vests later
+        (ASC 718-20-55-107: "would have vested under the original vesting conditions";
+        IFRS 2 B44(c)).  None: False everywhere.
     """
 
     tranche: np.ndarray
@@ -44,6 +53,15 @@ class CostLayers:
     start: np.ndarray
     set_id: np.ndarray
     kind: np.ndarray
+    end: np.ndarray | None = None
+    kept: np.ndarray | None = None
+
+    def __post_init__(self):
+        n = len(self.tranche)
+        if self.end is None:
+            self.end = np.full(n, np.datetime64("NaT"), dtype="datetime64[D]")
+        if self.kept is None:
+            self.kept = np.zeros(n, dtype=bool)
 
     def __len__(self) -> int:
         return len(self.tranche)
@@ -68,4 +86,4 @@ def grant_date_layers(fair_value: np.ndarray, grant_date_of_tranche: np.ndarray)
 def append_layers(base: CostLayers, more: CostLayers) -> CostLayers:
     """Both sets of layers in one table (``more`` after ``base``)."""
     return CostLayers(*(np.concatenate([getattr(base, f), getattr(more, f)])
-                        for f in ("tranche", "fair_value", "start", "set_id", "kind")))
+                        for f in ("tranche", "fair_value", "start", "set_id", "kind", "end", "kept")))

@@ -11,18 +11,23 @@ Rules (docs/modifications.md):
   (ASC 718-20-35-3; IFRS 2 B44(a));
 - ASC 718 improbable-to-probable (Type III, ASC 718-20-55-108 and Example 14 Case C): where the original
   award was not expected to vest (``original_expected_to_vest`` = ``no``) and the modification vests
-  the tranche on the modification date (``accelerate``), the cost recognised so far on the tranche is
+  the tranche earlier (``accelerate`` or a new schedule), the cost recognised so far on the tranche is
   reversed and the modified award's fair value on the modification date recognised instead (layers
-  ``-(value so far)`` and ``+fair value after``).  Under IFRS 2 the grant-date fair value stands and
-  the incremental value is added (B43(a), (c));
-- Type I (probable-to-probable) and Type IV (improbable-to-improbable, no acceleration): the original
+  ``-(value so far)`` and ``+fair value after`` when it vests on the date; for a later new date the
+  reversal is :mod:`~grantval.attribution.schedule_change`'s).  Under IFRS 2 the grant-date fair value
+  stands and the incremental value is added (B43(a), (c));
+- Type I (probable-to-probable) and Type IV (improbable-to-improbable, vesting not earlier): the original
   cost continues and the incremental is added, both following the forfeiture estimates
   (ASC 718-20-55-107);
 - units exercised or expired before the modification take no incremental value: the layer's value
   per counted unit of a vested tranche is scaled by units outstanding / units counted;
 - a reduction in quantity is a cancellation of the units removed (IFRS 2 B44(b), 28(a);
   ASC 718-20-35-9): their remaining cost is recognised on the modification date (the ledger turns it
-  into a ``cancel`` change).
+  into a ``cancel`` change);
+- a new vesting schedule moves the tranches' vesting dates; the service period of the cost they
+  already carry follows :mod:`grantval.attribution.schedule_change` (the original cost on the
+  original period, kept when that period is served, under ASC 718 Types I/II and IFRS 2 B44(c); a
+  shorter period re-spread under IFRS 2 B43(c) and ASC 718).
 """
 
 from __future__ import annotations
@@ -32,6 +37,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from grantval.attribution.layers import CostLayers
+from grantval.attribution.service import service_end
 
 
 @dataclass
@@ -52,16 +58,28 @@ def _layer_rows(values, t_fv_so_far: np.ndarray, standard: str):
     unvested = values.vest_before > t.date[p]
     inc = values.after - values.before
     not_expected = _not_expected(values)
-    type3 = (standard == "asc718") & not_expected & t.accelerate[p] & unvested
+    # vests earlier: on the modification date (accelerated, or a new schedule that vests it at once), or on a
+    # new, earlier date (its reversal then comes from attribution.schedule_change: layers A and R)
+    type3 = (standard == "asc718") & not_expected & (values.vest_after < values.vest_before) & unvested
     per_unit = np.where(type3, values.after, np.maximum(inc, 0.0))
     reverse = np.where(type3, t_fv_so_far, 0.0)
     words = np.where(inc > 0, "incremental value added", "decrease in fair value ignored (no incremental)")
+    later = unvested & (values.vest_after > values.vest_before)
+    earlier = unvested & (values.vest_after < values.vest_before) & (values.vest_after > t.date[p])
     if standard == "asc718":
         kind = np.where(not_expected, "Type IV (improbable to improbable)", "Type I (probable to probable)")
+        kind = np.where(later & ~not_expected, "Type I or II (original expected to vest)", kind)
         label = np.array([f"{k}: {w}" for k, w in zip(kind, words)], dtype=object)
+        label[later & ~not_expected] += ("; original cost on the original vesting date, kept if served to it "
+                                         "(ASC 718-20-55-107)")
+        label[later & not_expected] += "; cost only if the modified award vests (ASC 718-20-55-108)"
+        label[earlier] += "; original cost not yet recognised spread over the new, shorter period"
         label[type3] = "Type III (improbable to probable): original cost reversed, modified fair value recognised"
+        label[type3 & earlier] += " from the modification date to the new vesting date"
     else:
         label = np.array([f"IFRS 2.27: {w}" for w in words], dtype=object)
+        label[later] += "; longer vesting not taken into account (B44(c))"
+        label[earlier] += "; shorter vesting taken into account (B43(c))"
     return per_unit, reverse, label
 
 
@@ -93,7 +111,8 @@ def modification_layers(values, t_fv: np.ndarray, standard: str) -> Modification
         scale = _scale(values, m)
         np.add.at(so_far, values.p_tranche[m], (pu - rv) * scale)
     scale = _scale(values, np.ones(n, dtype=bool))
-    fv = np.concatenate([per_unit * scale, -reverse * scale])
+    at_once = values.vest_after <= t.date[values.p_mod]  # else the reversal is schedule_change's (layers A, R)
+    fv = np.concatenate([per_unit * scale, -np.where(at_once, reverse, 0.0) * scale])
     tranche = np.concatenate([values.p_tranche, values.p_tranche])
     start = np.concatenate([t.date[values.p_mod]] * 2)
     set_id = np.concatenate([t.rank[values.p_mod] + 1] * 2)
@@ -183,7 +202,7 @@ def build(ledger, fair_values, inp, policy) -> tuple[np.ndarray, CostLayers, obj
         values.not_expected = (mods["original_expected_to_vest"].to_numpy(dtype=object)[values.terms.order]
                                == "no")[values.p_mod]
         costs = modification_layers(values, inp.t_fv, policy.standard)
-        layers = costs.layers
+        layers = _rescheduled(ledger, inp, values, costs, policy)
     replaced = None
     if rv is not None:
         from grantval.attribution.layers import append_layers
@@ -193,7 +212,66 @@ def build(ledger, fair_values, inp, policy) -> tuple[np.ndarray, CostLayers, obj
         replaced = ReplacementCosts(rv, incremental, total)
         inp.c_kind = np.where(_replaced_changes(ledger), "replaced", inp.c_kind).astype(object)
     t_vest = vest_in_force(ledger.tranches, ledger.grants, mods)
-    return t_vest, layers, ModificationReport(values, costs, policy.standard, replaced)
+    report = ModificationReport(values, costs, policy.standard, replaced)
+    if values is not None:  # every layer whose tranche's vesting moved has its own service end by now
+        moved = t_vest != np.asarray(inp.t_vest, dtype="datetime64[D]")
+        inp.service_end_history = _end_history(ledger, values, inp.t_service_end)
+        inp.t_service_end = np.where(moved, service_end(ledger, t_vest), inp.t_service_end)
+        report.added_units, report.added_cost, report.added_at_once = _added(ledger, values.terms, inp)
+    return t_vest, layers, report
+
+
+def _end_history(ledger, values, t_end) -> tuple:
+    """``(tranche, modification date, service end before it)`` of every modification that moves a tranche."""
+    t = values.terms
+    vb, va = values.vest_before, values.vest_after
+    moved = (va != vb) & (vb > t.date[values.p_mod])
+    tr = values.p_tranche[moved]
+    end_before = np.empty(len(tr), dtype="datetime64[D]")
+    rank = t.rank[values.p_mod][moved]
+    for r in np.unique(rank):  # the end in force before each modification (pairs of one rank: one per tranche)
+        m = rank == r
+        current = np.asarray(t_end, dtype="datetime64[D]").copy()
+        current[tr[m]] = vb[moved][m]
+        end_before[m] = service_end(ledger, current)[tr[m]]
+    return tr, t.date[values.p_mod][moved], end_before
+
+
+def _added(ledger, t, inp):
+    """Per modification: units added by a quantity increase, their grant-date value (currency), the part vested at once.
+
+    The added units are a grant of their own (:mod:`grantval.ledger.ext.added_units`) whose grant-date
+    fair value is the modified award's on the modification date: their cost is part of the
+    modification's incremental cost (ASC 718-20-35-3; IFRS 2 B43(b)).
+    """
+    n = len(t.gp)
+    units, cost, at_once = np.zeros(n), np.zeros(n), np.zeros(n)
+    g = ledger.grants
+    if "_added_to" not in g or not g["_added_to"].notna().any():
+        return units, cost, at_once
+    ids = g["grant_id"].to_numpy(dtype=object)
+    where = {(k, d): i for i, (k, d) in enumerate(zip(ids[t.gp], t.date))}
+    kids = np.flatnonzero(g["_added_to"].notna().to_numpy())
+    days = g["_added_on"].to_numpy("datetime64[D]")
+    mod = np.array([where.get((g["_added_to"].iat[k], days[k]), -1) for k in kids], dtype=np.int64)
+    kids, mod = kids[mod >= 0], mod[mod >= 0]
+    per_tranche = inp.t_fv * inp.t_qty
+    vest = np.asarray(inp.t_vest, dtype="datetime64[D]")
+    value = np.bincount(inp.t_grant, weights=per_tranche, minlength=len(g))
+    now = np.bincount(inp.t_grant, weights=np.where(vest <= days[inp.t_grant], per_tranche, 0.0), minlength=len(g))
+    np.add.at(units, mod, g["quantity"].to_numpy(float)[kids])
+    np.add.at(cost, mod, value[kids])
+    np.add.at(at_once, mod, now[kids])
+    return units, cost, at_once
+
+
+def _rescheduled(ledger, inp, values, costs: ModificationCosts, policy) -> CostLayers:
+    """The modifications' layers with their service periods under changed vesting (see ``schedule_change``)."""
+    from grantval.attribution.schedule_change import reschedule_layers
+
+    rank = costs.layers.set_id - 1
+    return reschedule_layers(inp.layers, costs.layers, rank, values, lambda v: service_end(ledger, v),
+                             policy.standard, policy.attribution, values.not_expected, np.asarray(inp.t_grant))
 
 
 @dataclass
@@ -213,3 +291,8 @@ class ModificationReport:
     costs: ModificationCosts | None
     standard: str
     replacements: ReplacementCosts | None = None
+    #: per modification: units added by a quantity increase (a grant of their own), their grant-date
+    #: value (currency) and the part of it vested on the modification date
+    added_units: np.ndarray | None = None
+    added_cost: np.ndarray | None = None
+    added_at_once: np.ndarray | None = None

@@ -25,7 +25,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from grantval.dates import year_fraction
-from grantval.ledger.ext.modifications import Terms, terms, vest_in_force
+from grantval.ledger.ext.modifications import Terms, pairs, terms, vest_in_force, vesting
 from grantval.measurement.unique import unique_call
 from grantval.pricing import DEFAULT_STEPS, bsm_value, lattice_value, rsu_value
 from grantval.pricing.terms import simplified_formula
@@ -57,12 +57,7 @@ class ModificationValues:
 
 def _pairs(ledger, t: Terms):
     """(modification, tranche) pairs: every tranche of each modification's grant."""
-    gi = ledger.tranches["grant_idx"].to_numpy()
-    starts = np.searchsorted(gi, t.gp, side="left")
-    ends = np.searchsorted(gi, t.gp, side="right")
-    p_mod = np.repeat(np.arange(len(t.gp)), ends - starts)
-    p_tr = np.concatenate([np.arange(s, e) for s, e in zip(starts, ends)]) if len(t.gp) else np.zeros(0, np.int64)
-    return p_mod, p_tr.astype(np.int64)
+    return pairs(ledger.tranches, t.gp)
 
 
 def _units(ledger, p_mod, p_tr, day):
@@ -180,12 +175,13 @@ def modification_values(ledger, policy, cache: dict | None = None) -> Modificati
     if mods is None or not len(mods):
         return None
     t = terms(ledger.grants, mods)
-    p_mod, p_tr = _pairs(ledger, t)
+    vs = vesting(ledger.grants, ledger.tranches, mods, t)
+    p_mod, p_tr = vs.p_mod, vs.p_tranche
     day = t.date[p_mod]
-    vest = ledger.tranches["vest_date"].to_numpy("datetime64[D]")[p_tr]
-    acc_b = t.accel_before[p_mod]
-    vb = np.where(~np.isnat(acc_b) & (acc_b < vest), acc_b, vest)
-    va = np.where(t.accelerate[p_mod] & (vb > day), day, vb)
+    vb, va = vs.vest_before, vs.vest_after
+    # IFRS 2 B44(c): a longer vesting period does not benefit the employee and is not taken into account
+    ignored = (policy.standard == "ifrs2") & (va > vb)
+    va_valued = np.where(ignored, vb, va)
     ub, ua, counted = _units(ledger, p_mod, p_tr, day)
     rsu = ledger.grants["award_type"].to_numpy(dtype=object)[t.gp][p_mod] == "rsu"
     settled = rsu & (vb <= day)
@@ -198,7 +194,8 @@ def modification_values(ledger, policy, cache: dict | None = None) -> Modificati
     if comp.any():
         idx = np.flatnonzero(comp)
         sub_t = Terms(*(getattr(t, f) for f in Terms.__dataclass_fields__))
-        b, a = _computed(ledger, mods, sub_t, p_mod[idx], p_tr[idx], vb[idx], va[idx], ua[idx], policy, cache)
+        b, a = _computed(ledger, mods, sub_t, p_mod[idx], p_tr[idx], vb[idx], va_valued[idx], ua[idx], policy,
+                         cache)
         before[idx], after[idx] = b, a
     model = _models(ledger, mods, t)
     source = np.where(supplied, "supplied by outside valuation", model)
@@ -253,6 +250,21 @@ def _terms_before(ledger, old: np.ndarray, date: np.ndarray) -> Terms:
     return Terms(np.arange(n), old, date, z, strike, strike, expiry, expiry, accel, np.zeros(n, dtype=bool))
 
 
+def _vest_on(ledger, p_tr: np.ndarray, day: np.ndarray) -> np.ndarray:
+    """Vest date of tranches ``p_tr`` in force on ``day`` (their grant's modifications dated before it applied)."""
+    vest = ledger.tranches["vest_date"].to_numpy("datetime64[D]")[p_tr].copy()
+    mods = ledger.tables.get("modifications")
+    if mods is None or not len(mods):
+        return vest
+    vs = vesting(ledger.grants, ledger.tranches, mods)
+    when = vs.terms.date[vs.p_mod]
+    for i, (tr, d) in enumerate(zip(p_tr, day)):
+        hit = np.flatnonzero((vs.p_tranche == tr) & (when < d))
+        if len(hit):
+            vest[i] = vs.vest_after[hit[np.argmax(when[hit])]]
+    return vest
+
+
 def replaced_values(ledger, policy, cache: dict | None = None) -> ReplacedValues | None:
     """Value of every replaced grant immediately before its replacement (None when there is none)."""
     from grantval.ledger.ext.modifications import replacements
@@ -264,9 +276,7 @@ def replaced_values(ledger, policy, cache: dict | None = None) -> ReplacedValues
     t = _terms_before(ledger, old, date)
     p_mod, p_tr = _pairs(ledger, t)
     day = date[p_mod]
-    vest = ledger.tranches["vest_date"].to_numpy("datetime64[D]")[p_tr]
-    acc = t.accel_before[p_mod]
-    vb = np.where(~np.isnat(acc) & (acc < vest), acc, vest)
+    vb = _vest_on(ledger, p_tr, day)
     ub, _, _ = _units(ledger, p_mod, p_tr, day - np.timedelta64(1, "D"))
     rsu = ledger.grants["award_type"].to_numpy(dtype=object)[old][p_mod] == "rsu"
     ub = np.where(rsu & (vb < day), 0.0, ub)

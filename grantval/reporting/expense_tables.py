@@ -122,3 +122,31 @@ def unrecognised_table(inp: ExpenseInputs, sched: ExpenseSchedule) -> tuple[pd.D
     total = float(unrec_cents.sum()) / 100.0
     wa = float((unrec * frame["remaining_years"]).sum() / total) if total > 0 else 0.0
     return frame, total, wa
+
+
+def with_kept_units(frame: pd.DataFrame, inp: ExpenseInputs, sched: ExpenseSchedule) -> pd.DataFrame:
+    """The tranches table counting units whose cost a layer keeps after they were forfeited.
+
+    A modification that lengthens the vesting period keeps the original cost of units forfeited after
+    the original vesting date (``CostLayers.kept``: ASC 718-20-55-107, IFRS 2 B44(c)).  Such a tranche
+    costs ``sum over layers of fair value x (expected + kept)``; it counts expected + the units kept
+    and shows the cost in force per unit counted, so that units x value = cost (the tie-out on the
+    checks sheet).  Other tranches are unchanged.
+    """
+    m = sched.at_through
+    kept = getattr(m, "layer_kept", None)
+    if kept is None or not kept.any():
+        return frame
+    lay = inp.layers
+    n_t = len(inp.t_qty)
+    started = lay.start <= np.datetime64(sched.period_ends[-1], "D")
+    extra = np.zeros(n_t)
+    np.maximum.at(extra, lay.tranche, np.where(started, kept, 0.0))
+    rows = np.flatnonzero(extra > 0)
+    w = np.where(started, lay.fair_value * (m.n_expensed[lay.tranche] + kept), 0.0)
+    cost = np.bincount(lay.tranche, weights=w, minlength=n_t)
+    units = m.n_expensed + extra
+    frame = frame.copy()
+    frame.loc[rows, "quantity_expected_to_vest"] = units[rows]
+    frame.loc[rows, "fair_value_per_unit"] = cost[rows] / units[rows]
+    return frame

@@ -14,23 +14,35 @@ import pandas as pd
 #: columns of :func:`modification_table`
 COLUMNS = (
     "grant_id", "holder_id", "modification_date", "change", "exercise_price_before", "exercise_price_after",
-    "expiration_date_before", "expiration_date_after", "units_before", "units_after", "units_accelerated",
+    "expiration_date_before", "expiration_date_after", "vesting_before", "vesting_after", "last_vest_date_before",
+    "last_vest_date_after", "units_before", "units_after", "units_added", "units_accelerated", "units_vesting_later",
     "fair_value_before", "fair_value_after", "fair_value_source", "treatment", "incremental_cost",
     "recognised_on_modification_date", "attributed_over_service", "attribution")
 
 
-def _changes(t, i: int, units_before: float, units_after: float, accelerated: float) -> str:
+def _changes(t, i: int, agg: dict) -> str:
     """The changes of modification ``i`` in words."""
     words = []
     if not (np.isnan(t.strike_before[i]) and np.isnan(t.strike_after[i])) and t.strike_before[i] != t.strike_after[i]:
         words.append("repricing")
     if t.expiry_before[i] != t.expiry_after[i]:
         words.append("extended expiration" if t.expiry_after[i] > t.expiry_before[i] else "shortened expiration")
-    if accelerated > 0:
+    if t.accelerate[i] and agg["acc"][i] > 0:
         words.append("accelerated vesting")
-    if units_after < units_before:
+    if t.reschedule is not None and t.reschedule[i]:
+        moved = [w for w, n in (("earlier", agg["acc"][i]), ("later", agg["later_units"][i])) if n > 0]
+        words.append("vesting schedule" + (f" ({' and '.join(moved)})" if moved else " (no tranche moved)"))
+    if agg["ua"][i] < agg["ub"][i]:
         words.append("reduced quantity")
+    if agg["added"][i] > 0:
+        words.append("increased quantity")
     return ", ".join(words) or "no change of terms"
+
+
+def _schedule_words(months: np.ndarray) -> list[str]:
+    """Per modification: a schedule (rows of vest_months, vest_every_months, cliff_months) in words."""
+    return [f"{int(m)} months, every {int(e)}, cliff {int(c)}" if not np.isnan([m, e, c]).any() else ""
+            for m, e, c in months]
 
 
 def _per_mod(report):
@@ -40,12 +52,18 @@ def _per_mod(report):
     s = lambda w: np.bincount(v.p_mod, weights=w, minlength=n)  # noqa: E731
     ub, ua = s(v.units_before), s(v.units_after)
     accelerated = s(np.where(v.vest_after < v.vest_before, v.units_after, 0.0))
+    later_units = s(np.where(v.vest_after > v.vest_before, v.units_after, 0.0))
+    zero = np.zeros(n)
+    added = zero if getattr(report, "added_units", None) is None else report.added_units
+    added_cost = zero if getattr(report, "added_cost", None) is None else report.added_cost
+    added_now = zero if getattr(report, "added_at_once", None) is None else report.added_at_once
     wmean = lambda x: s(x * v.units_before) / np.where(ub > 0, ub, 1)  # noqa: E731
     at_once = v.vest_after <= v.terms.date[v.p_mod]
-    return dict(ub=ub, ua=ua, acc=accelerated, fb=wmean(v.before), fa=wmean(v.after),
-                inc=s(c.incremental), now=s(np.where(at_once, c.incremental, 0.0)),
-                later=s(np.where(at_once, 0.0, c.incremental)),
-                last_vest=_max_by(v.p_mod, v.vest_after, n))
+    return dict(ub=ub, ua=ua, acc=accelerated, later_units=later_units, added=added, fb=wmean(v.before),
+                fa=wmean(v.after), inc=s(c.incremental) + added_cost,
+                now=s(np.where(at_once, c.incremental, 0.0)) + added_now,
+                later=s(np.where(at_once, 0.0, c.incremental)) + added_cost - added_now,
+                last_vest=_max_by(v.p_mod, v.vest_after, n), last_before=_max_by(v.p_mod, v.vest_before, n))
 
 
 def _max_by(p, dates, n):
@@ -68,8 +86,9 @@ def _treatments(report) -> list[str]:
 def modification_table(report, ledger, attribution: str = "graded") -> pd.DataFrame:
     """One row per modification: dates, terms before and after, both fair values, incremental cost.
 
-    Money columns are currency (``incremental_cost`` = incremental value per unit x units outstanding
-    after the modification; the part for tranches vested by then is recognised on the modification
+    Money columns are currency (``incremental_cost`` = incremental value per unit x original units
+    outstanding after the modification, plus the grant-date value of the units a quantity increase adds
+    (``units_added``, a grant of their own); the part for tranches vested by then is recognised on the modification
     date, the rest over the remaining service to each tranche's vesting date, or to the award's last
     vesting date under straight-line ``attribution``).
     """
@@ -79,7 +98,7 @@ def modification_table(report, ledger, attribution: str = "graded") -> pd.DataFr
     g = ledger.grants
     agg = _per_mod(report)
     d = t.date
-    words = [_changes(t, i, agg["ub"][i], agg["ua"][i], agg["acc"][i]) for i in range(len(d))]
+    words = [_changes(t, i, agg) for i in range(len(d))]
     span = "the award's last vesting date" if attribution == "straight-line" else "each tranche's vesting date"
     how = [("on the modification date" if agg["later"][i] == 0 else
             f"{agg['now'][i]:,.2f} on the modification date, the rest from {d[i]} to {span} "
@@ -90,8 +109,11 @@ def modification_table(report, ledger, attribution: str = "graded") -> pd.DataFr
         "modification_date": d, "change": words,
         "exercise_price_before": t.strike_before, "exercise_price_after": t.strike_after,
         "expiration_date_before": t.expiry_before, "expiration_date_after": t.expiry_after,
-        "units_before": agg["ub"].astype(np.int64), "units_after": agg["ua"].astype(np.int64),
-        "units_accelerated": agg["acc"].astype(np.int64), "fair_value_before": agg["fb"],
+        "vesting_before": _schedule_words(t.schedule_before), "vesting_after": _schedule_words(t.schedule_after),
+        "last_vest_date_before": agg["last_before"], "last_vest_date_after": agg["last_vest"],
+        "units_before": agg["ub"].astype(np.int64), "units_after": (agg["ua"] + agg["added"]).astype(np.int64),
+        "units_added": agg["added"].astype(np.int64), "units_accelerated": agg["acc"].astype(np.int64),
+        "units_vesting_later": agg["later_units"].astype(np.int64), "fair_value_before": agg["fb"],
         "fair_value_after": agg["fa"], "fair_value_source": v.source, "treatment": _treatments(report),
         "incremental_cost": agg["inc"], "recognised_on_modification_date": agg["now"],
         "attributed_over_service": agg["later"], "attribution": how,
@@ -164,6 +186,8 @@ def modification_sheets(report, ledger, attribution: str = "graded") -> list:
         return []
     day, price = "yyyy-mm-dd", "#,##0.00"
     fmt = {"modification_date": day, "expiration_date_before": day, "expiration_date_after": day,
+           "last_vest_date_before": day, "last_vest_date_after": day, "units_added": "#,##0",
+           "units_vesting_later": "#,##0",
            "replacement_date": day, "exercise_price_before": price, "exercise_price_after": price,
            "fair_value_before": UNIT, "fair_value_after": UNIT, "fair_value_cancelled_per_unit": UNIT,
            "incremental_cost": MONEY, "recognised_on_modification_date": MONEY, "attributed_over_service": MONEY,
@@ -174,7 +198,8 @@ def modification_sheets(report, ledger, attribution: str = "graded") -> list:
     mods = modification_table(report, ledger, attribution)
     if len(mods):
         sheets.append(Sheet("modifications", frame=mods, formats=fmt, text_columns=text,
-                            widths={"change": 30, "treatment": 60, "attribution": 70}))
+                            widths={"change": 30, "vesting_before": 26, "vesting_after": 26, "treatment": 60,
+                                    "attribution": 70}))
     rep = replacement_table(report, ledger)
     if len(rep):
         sheets.append(Sheet("replacements", frame=rep, formats=fmt, text_columns=text, widths={"attribution": 70}))

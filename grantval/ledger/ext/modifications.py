@@ -13,10 +13,16 @@ Terms in force (used to allocate events, see :func:`adjust`):
 
 - a new ``expiration_date`` is in force from the modification date: events up to it are accepted;
 - ``accelerate`` = ``yes``: every tranche not vested on the modification date vests on it;
+- ``vest_months``, ``vest_every_months``, ``cliff_months`` (blank: the grant's in force): a new vesting
+  schedule from the grant's ``vest_start_date`` for the grant's quantity, generated like the grant's
+  own (:func:`grantval.ledger.schedule.generate_tranches`); each tranche not vested on the modification
+  date takes the new vesting date of its units (units in vesting order), on the modification date at
+  the earliest; a tranche whose units would vest on two dates under the new schedule is refused
+  (the ledger keeps tranches whole); tranches vested by then are unchanged;
 - ``quantity`` is the number of units outstanding after the modification (exercised, expired,
   forfeited and cancelled units not counted); a smaller number cancels the difference on the
   modification date, latest-vesting units first, like a ``cancel`` event (IFRS 2 B44(b): a partial
-  cancellation).
+  cancellation); a larger number adds units, a grant of their own (:mod:`grantval.ledger.ext.added_units`).
 """
 
 from __future__ import annotations
@@ -48,8 +54,8 @@ MODIFICATIONS = (
 
 GRANT_COLUMNS = (Column("replaces_grant_id", "text"),)
 
-#: modification columns refused for now
-NOT_SUPPORTED = ("vest_months", "vest_every_months", "cliff_months")
+#: the schedule columns of a modification (blank: the grant's in force)
+SCHEDULE = ("vest_months", "vest_every_months", "cliff_months")
 
 
 @dataclass
@@ -70,6 +76,11 @@ class Terms:
     expiry_after: np.ndarray
     accel_before: np.ndarray
     accelerate: np.ndarray     # bool
+    #: per modification: a new vesting schedule is given (any of :data:`SCHEDULE`)
+    reschedule: np.ndarray | None = None
+    #: per modification: the schedule in force before and after, months (columns of :data:`SCHEDULE`)
+    schedule_before: np.ndarray | None = None
+    schedule_after: np.ndarray | None = None
 
 
 def grant_positions(grants: pd.DataFrame, mods: pd.DataFrame) -> np.ndarray:
@@ -106,21 +117,125 @@ def terms(grants: pd.DataFrame, mods: pd.DataFrame) -> Terms:
     acc_day = np.where(acc, date, np.datetime64("NaT"))
     acc_b, _ = _carry(acc_day.astype(object), np.full(len(gp), None, dtype=object), new_group)
     as_day = lambda a: pd.to_datetime(pd.Series(a, dtype=object)).to_numpy("datetime64[D]")  # noqa: E731
+    sb, sa, resched = _schedules(grants, mods, order, gp, new_group)
     return Terms(order, gp, date, rank, strike_b.astype(float), strike_a.astype(float), as_day(exp_b), as_day(exp_a),
-                 as_day(acc_b), acc)
+                 as_day(acc_b), acc, resched, sb, sa)
+
+
+def _schedules(grants: pd.DataFrame, mods: pd.DataFrame, order, gp, new_group):
+    """Per modification: the schedule months in force before and after (n x 3) and whether one is given."""
+    n = len(order)
+    before, after = np.zeros((n, 3)), np.zeros((n, 3))
+    given = np.zeros(n, dtype=bool)
+    for k, col in enumerate(SCHEDULE):
+        new = mods[col].to_numpy(float)[order] if col in mods else np.full(n, np.nan)
+        b, a = _carry(new, grants[col].to_numpy(float)[gp], new_group)
+        before[:, k], after[:, k] = b.astype(float), a.astype(float)
+        given |= ~np.isnan(new)
+    return before, after, given
+
+
+@dataclass
+class Vesting:
+    """Vesting dates around every modification, per (modification, tranche) pair.
+
+    Pairs are every tranche of each modification's grant, modifications in :func:`terms` order.
+    ``scheduled`` is the tranche's date under the modification's new schedule (NaT where it gives
+    none); ``split`` marks an unvested tranche whose units would vest on two dates under it.
+    """
+
+    terms: Terms
+    p_mod: np.ndarray
+    p_tranche: np.ndarray
+    vest_before: np.ndarray
+    vest_after: np.ndarray
+    scheduled: np.ndarray
+    scheduled_first: np.ndarray
+    split: np.ndarray
+    final: np.ndarray          # per tranche: vest date after every modification
+
+
+def pairs(tranches: pd.DataFrame, gp: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """(modification, tranche) pairs: every tranche of the grant ``gp[i]`` of each modification ``i``."""
+    gi = tranches["grant_idx"].to_numpy()
+    starts = np.searchsorted(gi, gp, side="left")
+    ends = np.searchsorted(gi, gp, side="right")
+    p_mod = np.repeat(np.arange(len(gp)), ends - starts)
+    p_tr = np.concatenate([np.arange(s, e) for s, e in zip(starts, ends)]) if len(gp) else np.zeros(0, np.int64)
+    return p_mod, p_tr.astype(np.int64)
+
+
+def _scheduled_dates(grants, tranches, t: Terms, p_mod, p_tr):
+    """Per pair: the vesting date of the tranche's first and last unit under the modification's new schedule."""
+    from grantval.ledger.schedule import generate_tranches
+
+    first = np.full(len(p_mod), np.datetime64("NaT"), dtype="datetime64[D]")
+    last = first.copy()
+    mods = np.flatnonzero(t.reschedule) if t.reschedule is not None else np.zeros(0, np.int64)
+    if not len(mods):
+        return first, last
+    g = grants.iloc[t.gp[mods]]
+    granted = np.bincount(tranches["grant_idx"].to_numpy(), weights=tranches["quantity"].to_numpy(float),
+                          minlength=len(grants))[t.gp[mods]]
+    pseudo = pd.DataFrame({"quantity": granted.astype(np.int64),
+                           "vest_start_date": g["vest_start_date"].to_numpy("datetime64[D]"),
+                           **{c: t.schedule_after[mods, k].astype(np.int64) for k, c in enumerate(SCHEDULE)}})
+    new = generate_tranches(pseudo)
+    n_gi, n_q = new["grant_idx"].to_numpy(), new["quantity"].to_numpy(np.int64)
+    n_cum = _cum_within(n_gi, n_q)
+    # units of each tranche in vesting order within its grant: (lo, hi]
+    q = tranches["quantity"].to_numpy(np.int64)
+    hi_t = _cum_within(tranches["grant_idx"].to_numpy(), q)
+    lo_t = hi_t - q
+    which = np.full(len(t.gp), -1, dtype=np.int64)
+    which[mods] = np.arange(len(mods))
+    m = which[p_mod] >= 0
+    k = which[p_mod][m]
+    width = np.int64(max(int(n_cum.max(initial=0)), int(hi_t.max(initial=0))) + 2)
+    key = n_gi.astype(np.int64) * width + n_cum
+    pos_first = np.searchsorted(key, k * width + lo_t[p_tr][m] + 1, side="left")
+    pos_last = np.searchsorted(key, k * width + hi_t[p_tr][m], side="left")
+    d = new["vest_date"].to_numpy("datetime64[D]")
+    pos_first, pos_last = np.minimum(pos_first, len(d) - 1), np.minimum(pos_last, len(d) - 1)
+    first[m], last[m] = d[pos_first], d[pos_last]
+    return first, last
+
+
+def _cum_within(group: np.ndarray, q: np.ndarray) -> np.ndarray:
+    """Cumulative sums of ``q`` within runs of equal ``group`` (rows sorted by group)."""
+    if not len(q):
+        return np.zeros(0, dtype=np.int64)
+    cs = np.cumsum(q)
+    new = np.r_[True, group[1:] != group[:-1]]
+    starts = np.flatnonzero(new)
+    return cs - np.repeat((cs - q)[starts], np.diff(np.r_[starts, len(q)]))
+
+
+def vesting(grants: pd.DataFrame, tranches: pd.DataFrame, mods: pd.DataFrame, t: Terms | None = None) -> Vesting:
+    """Vesting dates before and after each modification (accelerations and new schedules, in date order)."""
+    t = terms(grants, mods) if t is None else t
+    p_mod, p_tr = pairs(tranches, t.gp)
+    current = tranches["vest_date"].to_numpy("datetime64[D]").copy()
+    vb = np.full(len(p_mod), np.datetime64("NaT"), dtype="datetime64[D]")
+    va = vb.copy()
+    first, last = _scheduled_dates(grants, tranches, t, p_mod, p_tr)
+    day = t.date[p_mod]
+    for rank in np.unique(t.rank):
+        m = t.rank[p_mod] == rank
+        b = current[p_tr[m]]
+        a = np.where(~np.isnat(last[m]) & (b > day[m]), np.maximum(last[m], day[m]), b)
+        a = np.where(t.accelerate[p_mod[m]] & (a > day[m]), day[m], a)
+        vb[m], va[m] = b, a
+        current[p_tr[m]] = a
+    split = ~np.isnat(first) & (first != last) & (vb > day) & (np.maximum(first, day) != np.maximum(last, day))
+    return Vesting(t, p_mod, p_tr, vb, va, last, first, split, current)
 
 
 def vest_in_force(tranches: pd.DataFrame, grants: pd.DataFrame, mods: pd.DataFrame) -> np.ndarray:
-    """Per tranche: its vest date with accelerations applied (the earliest acceleration date where earlier)."""
-    vest = tranches["vest_date"].to_numpy("datetime64[D]").copy()
+    """Per tranche: its vest date after every modification (accelerations and new schedules)."""
     if not len(mods):
-        return vest
-    t = terms(grants, mods)
-    first = np.full(len(grants), np.datetime64("NaT"), dtype="datetime64[D]")
-    for gp, d in zip(t.gp[t.accelerate][::-1], t.date[t.accelerate][::-1]):
-        first[gp] = d  # the earliest acceleration of each grant wins (rows run latest first)
-    acc = first[tranches["grant_idx"].to_numpy()]
-    return np.where(~np.isnat(acc) & (acc < vest), acc, vest)
+        return tranches["vest_date"].to_numpy("datetime64[D]").copy()
+    return vesting(grants, tranches, mods).final
 
 
 def _row_problems(m: pd.DataFrame, g: pd.DataFrame, a: pd.DataFrame, src: str) -> list[Problem]:
@@ -152,7 +267,8 @@ def _row_problems(m: pd.DataFrame, g: pd.DataFrame, a: pd.DataFrame, src: str) -
     aset = m["assumption_set"].to_numpy(dtype=object)
     names = set(a["assumption_set"].dropna())
     has_set = m["assumption_set"].notna().to_numpy()
-    for r, k in zip(rows_where(m, has_set & ~np.isin(aset, list(names))), aset[has_set & ~np.isin(aset, list(names))]):
+    unknown = has_set & ~m["assumption_set"].isin(names).to_numpy()
+    for r, k in zip(rows_where(m, unknown), aset[unknown]):
         p.append(Problem(src, r, "assumption_set", f"{k!r} is not an assumption_set of the assumptions table"))
     for r in rows_where(m, has_set & before):
         p.append(Problem(src, r, "assumption_set", "give either an assumption_set or fair_value_before and "
@@ -182,10 +298,6 @@ def _kind_problems(m: pd.DataFrame, g: pd.DataFrame, gp: np.ndarray, src: str) -
     for r in rows_where(m, known & ~np.isin(award, ("option", "rsu"))):
         p.append(Problem(src, r, "grant_id", "modifications of this award type are not supported yet "
                          "(options and RSUs only)"))
-    for col in NOT_SUPPORTED:
-        for r in rows_where(m, m[col].notna().to_numpy()):
-            p.append(Problem(src, r, col, "changes of the vesting schedule are not supported yet (use accelerate "
-                             "= yes to vest every unvested tranche on the modification date)"))
     q = m["quantity"].to_numpy(float)
     for r in rows_where(m, ~np.isnan(q) & (q < 0)):
         p.append(Problem(src, r, "quantity", "must be zero or more (units outstanding after the modification)"))
@@ -269,17 +381,89 @@ def _ended(parts: LedgerParts, t: Terms, live: np.ndarray, src: str, rows: np.nd
     return p
 
 
-def _reductions(t: Terms, new_qty: np.ndarray, live: np.ndarray, src: str, rows: np.ndarray):
-    """Cancel events for reductions in quantity; problems for increases."""
+def _schedule_problems(t: Terms, v: Vesting, tranches: pd.DataFrame, src: str, rows: np.ndarray) -> list[Problem]:
+    """A new schedule that is not one (as the grants table's checks), or that would split a tranche."""
+    p: list[Problem] = []
+    months, every, cliff = (t.schedule_after[:, k] for k in range(3))
+    bad = np.zeros(len(t.gp), dtype=bool)
+    for i in np.flatnonzero(t.reschedule):
+        r, col, msg = int(rows[i]), None, None
+        if months[i] < 0:
+            col, msg = "vest_months", f"must be zero or more; got {months[i]:g}"
+        elif months[i] > 1200:
+            col, msg = "vest_months", f"{months[i]:g} months is more than 100 years"
+        elif every[i] < 1:
+            col, msg = "vest_every_months", f"must be at least 1; got {every[i]:g}"
+        elif months[i] % every[i]:
+            col, msg = "vest_months", f"{months[i]:g} is not a multiple of vest_every_months ({every[i]:g}, in force)"
+        elif cliff[i] < 0 or cliff[i] > months[i]:
+            col, msg = "cliff_months", f"{cliff[i]:g} must be from 0 to vest_months ({months[i]:g}, in force)"
+        if col is not None:
+            bad[i] = True
+            p.append(Problem(src, r, col, msg))
+    number = tranches["tranche"].to_numpy() if "tranche" in tranches else np.zeros(len(tranches), np.int64)
+    qty = tranches["quantity"].to_numpy(np.int64)
+    for j in np.flatnonzero(v.split):
+        i, tr = v.p_mod[j], v.p_tranche[j]
+        if bad[i]:
+            continue
+        sched = ", ".join(f"{c} {int(t.schedule_after[i, k])}" for k, c in enumerate(SCHEDULE))
+        p.append(Problem(src, int(rows[i]), "vest_months", f"the new schedule ({sched}) would vest the "
+                         f"{qty[tr]} units of tranche {int(number[tr])} on two dates ({v.scheduled_first[j]} and "
+                         f"{v.scheduled[j]}); the ledger keeps a tranche whole: choose a schedule whose vesting "
+                         "dates fall between tranches, or cancel the grant and replace it"))
+    return p
+
+
+def _reductions(t: Terms, new_qty: np.ndarray, live: np.ndarray, src: str, rows: np.ndarray, grants: pd.DataFrame):
+    """Cancel events for reductions in quantity; the added units' grant checked for increases."""
+    from grantval.ledger.ext.added_units import child_id
+
     p, ev = [], []
-    for i in np.flatnonzero(~np.isnan(new_qty)):
-        if new_qty[i] > live[i]:
-            p.append(Problem(src, int(rows[i]), "quantity", f"{int(new_qty[i])} is more than the {int(live[i])} "
-                             "units outstanding before the modification: increases in quantity are not supported "
-                             "yet (grant the additional units as a new grant)"))
+    added = _added_units(grants)
+    for i in np.flatnonzero(~np.isnan(new_qty) & (new_qty >= 0)):  # a negative quantity is reported by the checks
+        if new_qty[i] > live[i] and live[i] > 0:
+            kid = child_id(grants["grant_id"].iat[t.gp[i]], t.date[i])
+            got = added.get(kid)
+            if got is None:
+                p.append(Problem(src, int(rows[i]), "quantity", f"the {int(new_qty[i] - live[i])} units added need "
+                                 "valuation inputs on the modification date: an assumption_set of the assumptions "
+                                 "table, or fair_value_after"))
+            elif got != new_qty[i] - live[i]:
+                p.append(Problem(src, int(rows[i]), "quantity", f"{int(new_qty[i])} units after the modification "
+                                 f"add {int(new_qty[i] - live[i])} to the {int(live[i])} outstanding, but grant "
+                                 f"{kid} holds {0 if got is None else int(got)}: report this"))
         elif new_qty[i] < live[i] and live[i] > 0:
             ev.append((i, int(live[i] - new_qty[i])))
     return ev, p
+
+
+def _added_units(grants: pd.DataFrame) -> dict:
+    """Units of every added-units grant (see :mod:`grantval.ledger.ext.added_units`), by grant id."""
+    if "_added_to" not in grants:
+        return {}
+    kids = grants[grants["_added_to"].notna()]
+    return dict(zip(kids["grant_id"], kids["quantity"].to_numpy(float)))
+
+
+def _later_without_children(t: Terms, grants: pd.DataFrame, src: str, rows: np.ndarray) -> list[Problem]:
+    """A modification of a grant after an increase, not given for the added units' grant (a warning)."""
+    if "_added_to" not in grants:
+        return []
+    kids = grants[grants["_added_to"].notna()]
+    ids = grants["grant_id"].to_numpy(dtype=object)[t.gp]
+    given = set(zip(ids, t.date))
+    by_parent: dict = {}
+    for kid, parent, day in zip(kids["grant_id"], kids["_added_to"], kids["_added_on"].to_numpy("datetime64[D]")):
+        by_parent.setdefault(parent, []).append((kid, day))
+    p = []
+    for i, (gid, d) in enumerate(zip(ids, t.date)):
+        for kid, day in by_parent.get(gid, ()):
+            if d > day and (kid, d) not in given:
+                p.append(Problem(src, int(rows[i]), "grant_id", f"the units added on {day} are grant {kid}: this "
+                                 "modification does not change them unless a row gives it for that grant too",
+                                 "warning"))
+    return p
 
 
 def _replacement_cancels(parts: LedgerParts) -> pd.DataFrame:
@@ -312,8 +496,10 @@ def adjust(parts: LedgerParts) -> Adjustment | None:
     rows = m["_row"].to_numpy()[t.order]
     live = _live_at(parts, parts.changes, t.gp, t.date)
     problems = _ended(parts, t, live, src, rows)
-    ev, probs = _reductions(t, m["quantity"].to_numpy(float)[t.order], live, src, rows)
-    problems += probs
+    ev, probs = _reductions(t, m["quantity"].to_numpy(float)[t.order], live, src, rows, g)
+    problems += probs + _later_without_children(t, g, src, rows)
+    v = vesting(g, parts.tranches, m, t)
+    problems += _schedule_problems(t, v, parts.tranches, src, rows)
     grants = g.copy()
     last = {}
     for gp, e in zip(t.gp, t.expiry_after):
@@ -323,14 +509,18 @@ def adjust(parts: LedgerParts) -> Adjustment | None:
         exp[gp] = e
     grants["expiration_date"] = exp
     tranches = parts.tranches.copy()
-    tranches["vest_date"] = vest_in_force(parts.tranches, g, m.iloc[np.sort(t.order)])
+    tranches["vest_date"] = v.final
     events = parts.tables["events"]
     extra = pd.DataFrame({
         "grant_id": [g["grant_id"].iloc[t.gp[i]] for i, _ in ev],
         "event_date": np.array([t.date[i] for i, _ in ev], dtype="datetime64[D]"),
         "event_type": ["cancel"] * len(ev), "quantity": [float(q) for _, q in ev],
         "share_price": [np.nan] * len(ev), "_row": [int(rows[i]) for i, _ in ev], "_source": [src] * len(ev)})
-    extra = pd.concat([extra, _replacement_cancels(parts)], ignore_index=True)
+    from grantval.ledger.ext.added_units import mirrored_events
+
+    mirrored = mirrored_events(g, events.assign(_source=parts.sources["events"]), parts.sources["events"])
+    extra = pd.concat([x for x in (extra, _replacement_cancels(parts), mirrored) if len(x)] or [extra],
+                      ignore_index=True)
     if len(extra):
         events = pd.concat([events.assign(_source=parts.sources["events"]), extra], ignore_index=True)
     return Adjustment(grants=grants, tranches=tranches, events=events, problems=problems)
@@ -361,4 +551,11 @@ EXTENSION = Extension(
     text_columns=frozenset({"replaces_grant_id"}),
     check=check,
     adjust=adjust,
+    contribute=lambda tables, sources: _contribute(tables, sources),
 )
+
+
+def _contribute(tables: dict, sources: dict):
+    from grantval.ledger.ext.added_units import contribute
+
+    return contribute(tables, sources)
