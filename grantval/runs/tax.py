@@ -97,6 +97,22 @@ def _unit_vesting(ledger, inp, left: np.ndarray, through: int) -> tuple[np.ndarr
     return vest, np.where(psu_t, np.floor(left * payout + 1e-9), shares)
 
 
+def _market_scale(ledger, inp, left: np.ndarray, through: int) -> np.ndarray:
+    """Per tranche: shares issued per unit at vesting (1 except market-condition units vested by ``through``:
+    floor(units x the condition's ``achieved_payout``) / units; a blank achieved payout is refused).
+
+    A market condition's cost does not depend on the outcome (the units' fair value holds it), so the cost
+    settled stays units x fair value while the deduction is the shares issued x the share price.
+    """
+    from grantval.ledger.ext.market import achieved_payouts
+
+    vested = inp.prepared().t_vest <= through
+    achieved, market = achieved_payouts(ledger, vested & (left > 0), inp.t_grant)
+    m_t = market[inp.t_grant] & vested & (left > 0)
+    issued = np.floor(left * np.nan_to_num(achieved[inp.t_grant]) + 1e-9)
+    return np.where(m_t, issued / np.where(left > 0, left, 1), 1.0)
+
+
 def _settlements(ledger, inp, deductible, strike, price_at, window, problems) -> Settlements:
     """Exercises, expiries, cancellations, unit vestings and automatic expiries of deductible grants."""
     ch, ev, g = ledger.changes, ledger.events, ledger.grants
@@ -119,6 +135,7 @@ def _settlements(ledger, inp, deductible, strike, price_at, window, problems) ->
     lapse = exercisable & deductible[tg] & (left > 0) & ~np.isnat(expiry)
     t_vest, issued = _unit_vesting(ledger, inp, left, window[1])
     vest_price = np.array([price_at(d) for d in t_vest[units]], dtype=float)
+    vest_price = vest_price * _market_scale(ledger, inp, left, window[1])[units]  # deduction per unit
     in_window = (t_vest[units] >= window[0]) & (t_vest[units] <= window[1])
     for d, t in zip(t_vest[units][in_window & ~np.isfinite(vest_price)], np.flatnonzero(units)[in_window
                                                                                        & ~np.isfinite(vest_price)]):

@@ -399,3 +399,34 @@ def test_psu_settles_at_the_vesting_date_in_force(tmp_path):
     assert _by(run, eff, "P", "tax_deduction")[0] == pytest.approx(12000.0)
     assert _by(run, eff, "P", "excess_tax_benefit")[0] == pytest.approx(500.0)
     assert _by(run, eff, "P", "deferred_tax_asset")[0] == pytest.approx(0.0)
+
+
+def _market_psu(folder, achieved):
+    """100 market-condition units (fair value 10 supplied), vesting 2028-01-01 at a share price of 15."""
+    import csv
+
+    g = grant("P1", award="psu", qty=100)
+    g["condition_set"] = "M1"
+    loc = ledger(folder, grants=[g], assumptions=[assumption(fair_value="10")], rates=STAR21,
+                 prices=[price("2028-01-01", 15)])
+    with open(loc / "market_conditions.csv", "w", newline="") as fh:
+        w = csv.writer(fh)
+        w.writerow(["condition_set", "metric", "start_date", "end_date", "payout_curve", "achieved_payout"])
+        w.writerow(["M1", "absolute_tsr", "2027-01-01", "2027-12-31", "0:1;0.5:2", achieved])
+    return api.expense(loc, through="2028-12-31", start="2027-01-01", period="year")
+
+
+def test_market_condition_units_deduct_the_shares_actually_issued(tmp_path):
+    # ASC 718-740-35-2 / ASU 2016-09 (from memory): the deduction is the value of the shares issued at vesting.
+    # Achieved payout 150%: 150 shares x 15 = 2,250 deducted against the cost of 100 units x 10 = 1,000 (a market
+    # condition's cost does not depend on the outcome): (2,250 - 1,000) x 21% = 262.50 excess tax benefit.
+    run = _market_psu(tmp_path / "l", "1.5")
+    eff = tax_effects(run)
+    assert _by(run, eff, "P1", "tax_deduction")[1] == pytest.approx(2250.0)
+    assert _by(run, eff, "P1", "excess_tax_benefit")[1] == pytest.approx(262.5)
+
+
+def test_market_condition_units_vested_without_achieved_payout_are_refused(tmp_path):
+    run = _market_psu(tmp_path / "l", "")
+    with pytest.raises(LedgerError, match=r"achieved_payout: units under 'M1' have vested"):
+        tax_effects(run)
