@@ -152,7 +152,23 @@ def _settle_options(sim, s: dict) -> dict:
 
 
 def _value_group(ctx, rows: pd.DataFrame, out: MarketResult) -> None:
-    """Value the grants of one simulation key (in place on ``out``)."""
+    """Value the grants of one simulation key (in place on ``out``), once per distinct inputs when the
+    context carries a cache (what-if scenarios that do not move these grants reuse the simulation)."""
+    key = ("market", ctx.mc_paths, ctx.mc_seed) + tuple(
+        tuple(map(repr, rows[c].tolist())) for c in _SIM_KEY + _SETTLE_KEY + ["grant", "payout_curve",
+                                                                             "negative_tsr_cap", "derive"])
+    if ctx.cache is not None and key in ctx.cache:
+        grants, value, se, years = ctx.cache[key]
+        out.value[grants], out.std_error[grants], out.service_years[grants] = value, se, years
+        return
+    _simulate_group(ctx, rows, out)
+    if ctx.cache is not None:
+        g = rows["grant"].to_numpy()
+        ctx.cache[key] = (g, out.value[g].copy(), out.std_error[g].copy(), out.service_years[g].copy())
+
+
+def _simulate_group(ctx, rows: pd.DataFrame, out: MarketResult) -> None:
+    """Simulate one key's assets and value its grants (in place on ``out``)."""
     curves = [parse_payout_curve(str(c), None if pd.isna(cap) else float(cap))
               for c, cap in zip(rows["payout_curve"], rows["negative_tsr_cap"])]
     hurdles = [c.threshold for c, d, daily in zip(curves, rows["derive"], rows["daily"]) if d and daily]

@@ -211,3 +211,22 @@ def test_period_begun_before_the_grant_starts_from_the_return_to_date(tmp_path):
     assert _within(row, absolute_tsr_digital(S, 0.0, VOL, R, _term(), 1 / 1.2 - 1))
     # the check can fail: ignoring the return to date gives the at-the-start digital
     assert not _within(row, absolute_tsr_digital(S, 0.0, VOL, R, _term(), 0.0))
+
+
+def test_a_shared_cache_reuses_the_simulation_of_unmoved_grants(tmp_path):
+    # What-if scenarios share a cache: a scenario that does not move the market grant reuses its simulation
+    # (same value, no new simulation counted), one that moves its volatility simulates again.
+    from grantval.ledger import load_ledger
+    from grantval.measurement.fairvalue import compute_fair_values
+    from grantval.policy import Policy
+    from grantval.scenarios.shifts import Shifts
+
+    ledger = load_ledger(market_ledger(tmp_path, curve="0:1"))
+    cache: dict = {}
+    base = compute_fair_values(ledger, Policy(), cache=cache)
+    others = ledger.grants["grant_id"].to_numpy() != "G2"
+    again = compute_fair_values(ledger, Policy(), Shifts("others", others, share_price=lambda s: s * 1.1), cache)
+    assert again.grant_value[1] == base.grant_value[1]
+    assert again.distinct_valuations < base.distinct_valuations
+    moved = compute_fair_values(ledger, Policy(), Shifts("vol", ~others, volatility=lambda v: v + 0.1), cache)
+    assert moved.grant_value[1] != base.grant_value[1]
