@@ -130,7 +130,11 @@ def _correlation_problems(peers: pd.DataFrame, cor: pd.DataFrame, src: str) -> l
             m[i, j] = m[j, i] = r["correlation"]
             seen[frozenset((a, b))] = row
         missing = [(a, b) for i, a in enumerate(names) for b in names[i + 1:] if frozenset((a, b)) not in seen]
-        if missing:
+        if missing and not seen:
+            p.append(Problem(src, None, "correlation", f"peer set {ps!r} has no rows in the correlations table: "
+                             f"give the correlation of each of its {len(missing)} pairs (self and each peer, and "
+                             "each two peers)"))
+        elif missing:
             p.append(Problem(src, None, "correlation", f"peer set {ps!r} misses the pair(s) "
                              + ", ".join(f"{a}/{b}" for a, b in missing)))
         elif np.linalg.eigvalsh(m).min() < -1e-10:
@@ -351,6 +355,9 @@ def _returns_problems(t: dict, src: str) -> list[Problem]:
         if tr <= -1:
             p.append(Problem(src, int(row), "total_return", f"{tr:g} is a loss of 100% or more; a total return "
                              "is a decimal above -1 (-0.25 is a 25% fall)"))
+        elif tr > 3:
+            p.append(Problem(src, int(row), "total_return", f"{tr:g} is a return of over 300%; a total return is "
+                             "a decimal (0.25 is 25%): check it is not a percentage", severity="warning"))
     dup = mr[["condition_set", "member", "measured_on"]].astype(str).duplicated().to_numpy()
     for r in rows_where(mr, dup):
         p.append(Problem(src, r, "measured_on", "the member already has a total return on this date"))

@@ -174,3 +174,18 @@ def test_duplicate_self_and_unknown_correlation_pairs_are_refused_on_their_row(t
     assert_problem(report, "correlations.csv", 3, "second", "already given on row 2")
     assert_problem(report, "correlations.csv", 4, "second", "with itself")
     assert_problem(report, "correlations.csv", 5, "second", "'ZZ' is not 'self' or a peer")
+
+
+def test_no_correlation_rows_and_a_return_written_as_a_percentage(tmp_path):
+    data = _psu_on_market(_market(tables()))
+    data["market_conditions"][0].update({"start_date": "2026-07-01", "end_date": "2029-06-30"})
+    data["market_returns"] = [{"condition_set": "M1", "member": "self", "measured_on": "2027-01-01",
+                               "total_return": 12},  # meant 12%
+                              {"condition_set": "M1", "member": "A", "measured_on": "2027-01-01",
+                               "total_return": 0.05}]
+    del data["correlations"]
+    report = problems_of(tmp_path, data)
+    assert any(p.column == "correlation" and "has no rows in the correlations table" in p.message
+               and "its 1 pairs" in p.message for p in report.errors)
+    warn = [p for p in report.problems if p.severity == "warning" and p.column == "total_return"]
+    assert warn and warn[0].row == 2 and "not a percentage" in warn[0].message
