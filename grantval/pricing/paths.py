@@ -472,7 +472,6 @@ class _DailyMonitor:
     def _monitor(self, price, day):
         """Update the running maximum and first-hit days with prices of days day+1 .. day+k."""
         spec = self.spec
-        k = price.shape[0]
         if spec.m > 1:
             hist = np.concatenate([self.recent, price])  # (m-1+k, 2, pairs)
             csum = np.cumsum(hist, axis=0)

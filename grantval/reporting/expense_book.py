@@ -2,13 +2,19 @@
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 import numpy as np
+
 from grantval.io.xlsx.sheet import Chart, Sheet
 from grantval.reporting.formats import FORMATS, MONEY, period_labels
 from grantval.reporting.run_sheet import RunInfo, notes_sheet, run_sheet
 from grantval.reporting.period_tables import with_sum_formulas
 from grantval.reporting.checks import CheckRow, checks_sheet
 from grantval.reporting.disclosure_book import disclosure_sheets
+
+if TYPE_CHECKING:  # pragma: no cover
+    import pandas as pd
 
 
 def _with_total_row(frame, columns) -> "pd.DataFrame":
