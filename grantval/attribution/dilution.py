@@ -277,7 +277,7 @@ class GrantDilution:
     unrecognised_start: np.ndarray   # unrecognised cost per unit at the end of the day before the period
     unrecognised_end: np.ndarray     # unrecognised cost per unit at the period end
     unrecognised_average: np.ndarray
-    exercise_price: np.ndarray       # per grant (0 for share units)
+    exercise_price: np.ndarray       # per grant x period (0 for share units; purchase-plan rights by period)
     proceeds: np.ndarray             # assumed proceeds per unit
     incremental: np.ndarray
     antidilutive: np.ndarray
@@ -359,12 +359,33 @@ def grant_dilution(ledger, inp, attribution: str, starts: np.ndarray, ends: np.n
                              _counted_at(inp, perf, lots, before))
         u1[:, k] = _per_unit(measure(inp, ends[k], **kw).unrecognised, _counted_at(inp, perf, lots, int(e_day[k])))
     avg = _mean_of_points(u0, u1)
-    award = ledger.grants["award_type"].to_numpy()
-    price = ledger.grants["exercise_price"].to_numpy(float)
-    price = np.where(flag(award, "option_terms") & np.isfinite(price), price, 0.0)
+    price = exercise_prices(ledger, np.asarray(average_price, dtype=float))
     wu = np.maximum(wu, 0.0)
-    incr, anti = treasury_stock_shares(wu, price[:, None], np.maximum(avg, 0.0), np.asarray(average_price)[None, :])
+    incr, anti = treasury_stock_shares(wu, price, np.maximum(avg, 0.0), np.asarray(average_price)[None, :])
     with np.errstate(divide="ignore", invalid="ignore"):
         payout = np.where(wt > 0, wu / np.where(wt > 0, wt, 1.0), 1.0)
-    return GrantDilution(wu, u0, u1, avg, price, price[:, None] + avg, incr, anti, wt, payout, assessed,
+    return GrantDilution(wu, u0, u1, avg, price, price + avg, incr, anti, wt, payout, assessed,
                          performance_units(ledger) | perf.market)
+
+
+def exercise_prices(ledger, average_price: np.ndarray) -> np.ndarray:
+    """Per grant x period: the price a holder pays per share (currency), part of the assumed proceeds.
+
+    Options: the exercise price; share units: 0; purchase-plan rights: the purchase price if the
+    purchase were made at the period's average price, (1 - discount) x min(start price, average price)
+    with a look-back, (1 - discount) x average price without one (common practice: the treasury stock
+    method's proceeds include what the employee pays: ASC 260-10-45-23 and IAS 33.47A, from memory).
+    """
+    g = ledger.grants
+    award = g["award_type"].to_numpy()
+    price = g["exercise_price"].to_numpy(float)
+    price = np.where(flag(award, "option_terms") & np.isfinite(price), price, 0.0)
+    out = np.repeat(price[:, None], len(average_price), axis=1)
+    espp = award == "espp"
+    if espp.any():
+        start = ledger.assumptions["share_price"].to_numpy(float)[ledger.grant_assumption][espp]
+        disc = g["_espp_discount"].to_numpy(float)[espp]
+        look = g["_espp_lookback"].to_numpy(bool)[espp]
+        paid = np.where(look[:, None], np.minimum(start[:, None], average_price[None, :]), average_price[None, :])
+        out[espp] = (1.0 - disc[:, None]) * paid
+    return out

@@ -64,7 +64,7 @@ def dilution_by_grant(run) -> pd.DataFrame:
         "grant_id": rep(inp.grant_id), "group": rep(inp.group),
         "award_type": rep(run.ledger.grants["award_type"].to_numpy(dtype=object)),
         "period_end": np.tile(run.ends, n)[keep],
-        "weighted_units": flat(g.weighted_units), "exercise_price": rep(g.exercise_price),
+        "weighted_units": flat(g.weighted_units), "exercise_price": flat(g.exercise_price) if np.ndim(g.exercise_price) == 2 else rep(g.exercise_price),
         "unrecognised_per_unit_start": np.nan_to_num(flat(g.unrecognised_start)),
         "unrecognised_per_unit_end": np.nan_to_num(flat(g.unrecognised_end)),
         "average_unrecognised_per_unit": flat(g.unrecognised_average),

@@ -417,3 +417,21 @@ def test_market_condition_units_without_returns_to_date_are_refused(tmp_path):
     with pytest.raises(LedgerError) as err:
         _tsr_dilution(tmp_path, returns)
     assert "grant G2 need the total return to date of A, B, C" in str(err.value) and "2027-03-31" in str(err.value)
+
+def test_purchase_plan_rights_pay_the_look_back_price(tmp_path):
+    # The demo's offering CV-ESPP-2026 (start price 24.30, 15% discount, look-back): a right's proceeds include
+    # the purchase price at the period's average share price, 0.85 x min(24.30, average) (common practice;
+    # ASC 260-10-45-23 and IAS 33.47A, from memory).  Q1 2026 average 26.1902: 0.85 x 24.30 = 20.655.
+    import pathlib
+
+    demo = pathlib.Path(__file__).resolve().parents[2] / "sample_grants"
+    prices = _prices(tmp_path, [("2026-03-31", 26.1902), ("2026-06-30", 23.0)])
+    run = api.dilution(demo, average_prices=prices, start="2026-01-01", through="2026-06-30", period="quarter")
+    by = dilution_by_grant(run)
+    espp = by[by["award_type"] == "espp"]
+    q1 = espp[espp["period_end"] == "2026-03-31"]["exercise_price"].to_numpy(float)
+    assert q1.size == 12 and np.allclose(q1, 20.655, rtol=0, atol=1e-9)
+    # below the start price the look-back pays 85% of the average: 0.85 x 23.00 = 19.55
+    q2 = espp[espp["period_end"] == "2026-06-30"]["exercise_price"].to_numpy(float)
+    assert q2.size and np.allclose(q2, 0.85 * 23.0, rtol=0, atol=1e-9)
+    assert all(c.tool_pass for c in dilution_checks(run, dilution_totals(run), by))
