@@ -75,3 +75,27 @@ def test_options_outstanding_at_expiration_expire_by_themselves(tmp_path):
     d = api.disclose(write_ledger(tmp_path / "l", data), start="2032-01-01", through="2032-12-31").disclosure
     o = lines(d.options)
     assert o["Expired"]["number"] == 1000 and o["Outstanding at end"]["number"] == 900
+
+
+def test_market_condition_assumptions_are_disclosed(tmp_path):
+    # ASC 718-10-50-2 (the method and significant assumptions of the awards granted): the demo's 2026 market-
+    # condition units (35,000 units granted 2026-02-17, one assumptions row) - volatility 0.452, rate 0.0402,
+    # yield 0.008 from sample_grants/assumptions.csv, performance period 1,095 days / 365.25, and the mean of the
+    # company's correlations with the six peers in sample_grants/correlations.csv (computed here with the csv module).
+    import csv
+    import pathlib
+
+    demo = pathlib.Path(__file__).resolve().parents[1] / "sample_grants"
+    with open(demo / "correlations.csv") as fh:
+        own = [float(r["correlation"]) for r in csv.DictReader(fh) if "self" in (r["first"], r["second"])]
+    lines = dict(zip(*[api.disclose(demo, start="2026-01-01", through="2026-12-31").disclosure.grants[c]
+                       for c in ("item", "value")]))
+    label = "Market-condition awards granted (Monte Carlo): weighted-average"
+    assert lines[f"{label} expected volatility"] == pytest.approx(0.452)
+    assert lines[f"{label} risk-free rate"] == pytest.approx(0.0402)
+    assert lines[f"{label} dividend yield"] == pytest.approx(0.008)
+    assert lines[f"{label} performance period (years)"] == pytest.approx(1095 / 365.25, abs=5e-5)  # 4 places
+    # CV-MKT-03 (a hurdle, no peer set) is not in the correlation average
+    assert lines[f"{label} correlation with the peer group"] == pytest.approx(sum(own) / len(own), abs=5e-5)
+    earlier = api.disclose(demo, start="2024-01-01", through="2024-12-31").disclosure.grants
+    assert not any(str(i).startswith("Market-condition") for i in earlier["item"])

@@ -220,7 +220,43 @@ def _granted_figures(ledger: Ledger, fv: FairValues, start, through) -> list[tup
         items.append((f"BSM options granted: weighted-average {name}", _wavg(vals, w)))
         items.append((f"BSM options granted: lowest {name}", float(np.min(vals)) if vals.size else float("nan")))
         items.append((f"BSM options granted: highest {name}", float(np.max(vals)) if vals.size else float("nan")))
+    return items + _market_granted(ledger, fv, g_in)
+
+
+def _market_granted(ledger: Ledger, fv: FairValues, g_in: np.ndarray) -> list[tuple[str, float]]:
+    """Weighted-average inputs of the awards with a market condition granted in the window (ASC 718-10-50-2:
+    the method and significant assumptions used), when there are any."""
+    from grantval.ledger.ext.market import market_grants
+
+    if fv.std_error is None:
+        return []
+    m = market_grants(ledger.grants, ledger.tables) & g_in & np.isfinite(fv.std_error)  # simulated, not supplied
+    if not m.any():
+        return []
+    g, a, ai = ledger.grants, ledger.assumptions, ledger.grant_assumption
+    w = g["quantity"].to_numpy(float)[m]
+    mc = ledger.tables["market_conditions"].drop_duplicates("condition_set").set_index("condition_set")
+    rows = mc.loc[g["condition_set"].to_numpy()[m]]
+    period = (rows["end_date"].to_numpy("datetime64[D]") - g["grant_date"].to_numpy("datetime64[D]")[m]).astype(int)
+    label = "Market-condition awards granted (Monte Carlo): weighted-average"
+    items = [(f"{label} expected volatility", _wavg(a["volatility"].to_numpy(float)[ai][m], w)),
+             (f"{label} risk-free rate", _wavg(a["risk_free_rate"].to_numpy(float)[ai][m], w)),
+             (f"{label} dividend yield", _wavg(np.nan_to_num(a["dividend_yield"].to_numpy(float)[ai][m]), w)),
+             (f"{label} performance period (years)", _wavg(period / 365.25, w))]
+    cor = np.array([_mean_correlation(ledger.tables, ps) for ps in rows["peer_set"]])
+    if np.isfinite(cor).any():
+        ok = np.isfinite(cor)
+        items.append((f"{label} correlation with the peer group", _wavg(cor[ok], w[ok])))
     return items
+
+
+def _mean_correlation(tables: dict, peer_set) -> float:
+    """Mean correlation of the company with the members of ``peer_set`` (NaN without one)."""
+    if not isinstance(peer_set, str) or not peer_set:
+        return float("nan")
+    c = tables["correlations"]
+    c = c[(c["peer_set"] == peer_set) & ((c["first"] == "self") | (c["second"] == "self"))]
+    return float(c["correlation"].mean()) if len(c) else float("nan")
 
 
 def _window_figures(ledger: Ledger, T: _Tranches, inp: ExpenseInputs, m, vested_q, start, through):

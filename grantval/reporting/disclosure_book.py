@@ -12,7 +12,7 @@ def line_format(item: str) -> str:
         return "#,##0"
     if "weighted-average grant-date fair value" in item:
         return UNIT
-    if "years" in item or "term" in item:
+    if "years" in item or "term" in item or "correlation" in item:
         return "0.00"
     if any(w in item for w in ("volatility", "rate", "yield")):
         return "0.00%"
