@@ -48,10 +48,29 @@ def generate_tranches(grants: pd.DataFrame) -> pd.DataFrame:
     vest = add_months(start[gidx], offset)
     cliff_date = add_months(start, cliff)[gidx]
     vest = np.maximum(vest, cliff_date)
-    frame = pd.DataFrame({"grant_idx": gidx, "vest_date": vest, "quantity": qty})
-    merged = frame.groupby(["grant_idx", "vest_date"], sort=True, as_index=False)["quantity"].sum()
-    merged = merged[merged["quantity"] > 0].reset_index(drop=True)
-    return _number(merged)
+    return _merged_runs(gidx, vest, qty)
+
+
+def _merged_runs(gidx: np.ndarray, vest: np.ndarray, qty: np.ndarray) -> pd.DataFrame:
+    """Tranches of the same grant and vest date added together, empty ones dropped, numbered per grant.
+
+    The generated tranches come sorted by grant and, within a grant, by vest
+    date (the offsets grow with k and the cliff only raises early dates to one
+    date), so equal (grant, date) pairs are adjacent runs: summed with numpy,
+    the same table as grouping and sorting them.
+    """
+    start = np.ones(gidx.size, dtype=bool)
+    start[1:] = (gidx[1:] != gidx[:-1]) | (vest[1:] != vest[:-1])
+    heads = np.flatnonzero(start)
+    total = np.add.reduceat(qty, heads) if heads.size else qty[:0]
+    keep = total > 0
+    g, d, q = gidx[heads][keep], vest[heads][keep], total[keep].astype(np.int64)
+    first = np.ones(g.size, dtype=bool)
+    first[1:] = g[1:] != g[:-1]
+    at = np.flatnonzero(first)
+    tranche = np.arange(g.size) - np.repeat(at, np.diff(np.append(at, g.size))) + 1
+    return pd.DataFrame({"grant_idx": g.astype(np.int64), "tranche": tranche.astype(np.int64),
+                         "vest_date": d.astype("datetime64[D]"), "quantity": q})
 
 
 def _number(frame: pd.DataFrame) -> pd.DataFrame:
