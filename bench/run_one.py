@@ -5,7 +5,9 @@
 Besides the wall-clock time of each stage (``stages``, as ``grantval -v``
 shows it) it records the processor time of this process in each stage
 (``cpu_stages``) and in all (``cpu_seconds``): on a machine shared with other
-work, processor time varies much less than wall-clock time.
+work, processor time varies much less than wall-clock time.  ``peak_mib_after``
+is the peak resident memory at the end of each stage, which shows the stage
+that set the peak.
 """
 
 from __future__ import annotations
@@ -18,8 +20,10 @@ import time
 
 
 def _count_cpu(progress) -> list:
-    """Patch the stage timer so that each stage's processor time is recorded too; the list it fills."""
+    """Patch the stage timer so that each stage's processor time and the peak memory at its end (MiB)
+    are recorded too; the two lists it fills."""
     cpu: list[tuple[str, float]] = []
+    peaks: list[tuple[str, float]] = []
     wall_stage = progress.Reporter.stage
 
     @contextlib.contextmanager
@@ -30,16 +34,17 @@ def _count_cpu(progress) -> list:
                 yield
         finally:
             cpu.append((name, time.process_time() - c0))
+            peaks.append((name, resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024))
 
     progress.Reporter.stage = stage
-    return cpu
+    return cpu, peaks
 
 
 def main() -> None:
     from grantval import progress
     from grantval.cli import app
 
-    cpu = _count_cpu(progress)
+    cpu, peaks = _count_cpu(progress)
     t0, c0 = time.perf_counter(), time.process_time()
     code = 0
     try:
@@ -49,7 +54,7 @@ def main() -> None:
     finally:
         total, cpu_total = time.perf_counter() - t0, time.process_time() - c0
         print(json.dumps({"exit": code, "seconds": total, "stages": progress.reporter().timings,
-                          "cpu_seconds": cpu_total, "cpu_stages": cpu,
+                          "cpu_seconds": cpu_total, "cpu_stages": cpu, "peak_mib_after": peaks,
                           "peak_mib": resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024}))
 
 
