@@ -48,7 +48,8 @@ def main() -> None:
     t0, c0 = time.perf_counter(), time.process_time()
     code = 0
     try:
-        app(args=["--quiet", *sys.argv[1:]], prog_name="grantval", standalone_mode=False)
+        # without standalone mode the command's exit status is returned, not raised
+        code = app(args=["--quiet", *sys.argv[1:]], prog_name="grantval", standalone_mode=False) or 0
     except SystemExit as exc:
         code = exc.code or 0
     finally:
