@@ -4,6 +4,9 @@ import numpy as np
 import pandas as pd
 
 from grantval.dates import add_months, period_ends
+import pytest
+
+from grantval.ledger import schedule
 from grantval.ledger.schedule import generate_tranches
 
 
@@ -75,7 +78,9 @@ def _grouped_reference(g: pd.DataFrame) -> pd.DataFrame:
     return f[["grant_idx", "tranche", "vest_date", "quantity"]]
 
 
-def test_random_schedules_match_grouping_one_grant_at_a_time():
+@pytest.mark.parametrize("block", [16_384, 7, 1])
+def test_random_schedules_match_grouping_one_grant_at_a_time(block, monkeypatch):
+    monkeypatch.setattr(schedule, "GRANTS_PER_BLOCK", block)  # blocks of grants give the same table
     # month-end starts, cliffs between and on tranche dates, quantities smaller than the tranche count
     rng = np.random.default_rng(3)
     n = 300
@@ -88,6 +93,13 @@ def test_random_schedules_match_grouping_one_grant_at_a_time():
     want = _grouped_reference(g)
     assert len(got) == len(want) and got.dtypes.to_dict() == want.dtypes.to_dict()
     pd.testing.assert_frame_equal(got, want, check_exact=True)
+
+
+def test_no_grants_no_tranches():
+    t = generate_tranches(grants(quantity=[], vest_months=[], vest_every_months=[], cliff_months=[],
+                                 vest_start_date=np.array([], dtype="datetime64[D]")))
+    assert len(t) == 0 and list(t.columns) == ["grant_idx", "tranche", "vest_date", "quantity"]
+    assert str(t["vest_date"].dtype).startswith("datetime64") and t["quantity"].dtype == np.int64
 
 
 def test_fiscal_periods():
