@@ -79,8 +79,15 @@ def grant_date_layers(fair_value: np.ndarray, grant_date_of_tranche: np.ndarray)
         fair_value=np.asarray(fair_value, dtype=float),
         start=np.asarray(grant_date_of_tranche, dtype="datetime64[D]"),
         set_id=np.zeros(n, dtype=np.int64),
-        kind=np.full(n, "grant", dtype=object),
+        kind=_same_text(n, "grant"),
     )
+
+
+def _same_text(n: int, text: str) -> np.ndarray:
+    """An object array of ``n`` references to one string (``np.full`` would make ``n`` string objects)."""
+    out = np.empty(n, dtype=object)
+    out[:] = text
+    return out
 
 
 def append_layers(base: CostLayers, more: CostLayers) -> CostLayers:

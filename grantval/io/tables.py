@@ -80,6 +80,14 @@ def _is_blank(cell) -> bool:
     return cell is None or (isinstance(cell, str) and cell.strip() == "")
 
 
+def _blank_row(row) -> bool:
+    """Whether every cell of ``row`` is blank (a row of text cells, as CSV gives, is decided by one join)."""
+    try:
+        return not "".join(row).strip()
+    except TypeError:  # cells that are not text (workbooks: numbers, dates, None)
+        return all(_is_blank(c) for c in row)
+
+
 #: how many leading rows are searched for a misplaced header
 _HEADER_SEARCH = 20
 
@@ -172,7 +180,7 @@ def _table_from_rows(name: str, source: str, rows_iter, known: frozenset = froze
         if misplaced is not None:
             return misplaced
     for number, row in itertools.chain(lead, rows_iter):
-        if all(_is_blank(c) for c in row):
+        if _blank_row(row):
             continue
         if check_long:
             long += _long_cells(number, row, limit)

@@ -138,13 +138,64 @@ def _type_uniques(col: Column, uniques, blank_u) -> tuple[list, list]:
     return typed, errors
 
 
+def _type_texts(col: Column, uniques: list[str]) -> tuple[list, list, np.ndarray]:
+    """Typed value, error (or None) and blankness of each distinct cell of a column of text cells (CSV).
+
+    The same results as :func:`_type_uniques`, with the work that is the same
+    for every cell done once over the column: one search for forbidden
+    characters over all the text, text and choice values by list operations.
+    """
+    stripped = [u.strip() for u in uniques]
+    blank_u = np.array([not t for t in stripped], dtype=bool)
+    if _FORBIDDEN.search("".join(uniques)) is None:
+        bad = [None] * len(uniques)
+    else:
+        bad = [_forbidden(u) for u in uniques]
+    if col.kind not in ("text", "choice"):
+        typed, errors = _type_uniques(col, stripped, blank_u | np.array([b is not None for b in bad], dtype=bool))
+        return typed, [b if b is not None else e for b, e in zip(bad, errors)], blank_u
+    skip = blank_u.tolist()
+    if col.kind == "text":
+        typed = [None if k or b else t for t, k, b in zip(stripped, skip, bad)]
+        return typed, bad, blank_u
+    lower = [t.lower() for t in stripped]
+    ok = [t in col.choices for t in lower]
+    typed = [t if g and not (k or b) else None for t, g, k, b in zip(lower, ok, skip, bad)]
+    errors = [b if (k or b) else (None if g else f"{t!r} is not one of: {', '.join(col.choices)}")
+              for t, g, k, b in zip(stripped, ok, skip, bad)]
+    return typed, errors, blank_u
+
+
+def _distinct(cells, sheet: bool) -> tuple[np.ndarray, list]:
+    """Codes (-1 for a missing cell) and the distinct cells of one column."""
+    if sheet and any(isinstance(c, bool) for c in cells):  # CSV cells are text: no booleans
+        cells = [_Bool(c) if isinstance(c, bool) else c for c in cells]  # True must not merge with 1
+    values = np.empty(len(cells), dtype=object)
+    values[:] = cells
+    codes, uniques = pd.factorize(values, use_na_sentinel=True)
+    return codes, np.asarray(uniques, dtype=object).tolist()
+
+
+def _typed_column(col: Column, cells, sheet: bool):
+    """Codes, typed value and error of each distinct cell, and which distinct cells are blank."""
+    codes, uniques = _distinct(cells, sheet)
+    if all(type(u) is str for u in uniques):
+        typed, errors, blank_u = _type_texts(col, uniques)
+    else:
+        blank_u = np.array([_blank(u) for u in uniques], dtype=bool)
+        typed, errors = _type_uniques(col, uniques, blank_u)
+    return codes, typed, errors, blank_u
+
+
 def parse_table(table: RawTable, columns: tuple[Column, ...]) -> tuple[pd.DataFrame, list[Problem]]:
     """Type one raw table.
 
     Returns the typed frame (one column per schema column, present or not,
     plus ``_row``) and the problems found.  Rows with cell problems are kept,
     with the bad cells blank, so that later checks can still run on the
-    rest; any error stops the run before anything is written.
+    rest; any error stops the run before anything is written.  Each distinct
+    cell of a column is typed once and its result and problem spread back to
+    every row holding it.
     """
     problems = list(table.problems)
     src = table.source
@@ -159,40 +210,42 @@ def parse_table(table: RawTable, columns: tuple[Column, ...]) -> tuple[pd.DataFr
         present = col.name in table.headers
         if col.required and not present and table.headers:
             problems.append(Problem(src, 1, col.name, "required column is missing"))
-        cells = table.column(col.name)
-        if "sheet" in src and any(isinstance(c, bool) for c in cells):  # CSV cells are text: no booleans
-            cells = [_Bool(c) if isinstance(c, bool) else c for c in cells]  # True must not merge with 1
-        # each distinct cell is typed once; results and problems are spread back to every row holding it
-        codes, uniques = pd.factorize(pd.Series(cells, dtype=object), use_na_sentinel=True)
-        blank_u = np.array([_blank(u) for u in uniques], dtype=bool)
-        blank = (codes < 0) | (blank_u[codes] if len(uniques) else np.zeros(n, bool))
+        if present:
+            codes, typed, errors, blank_u = _typed_column(col, table.column(col.name), "sheet" in src)
+        else:  # every cell missing
+            codes, typed, errors, blank_u = np.full(n, -1, dtype=np.int64), [], [], np.zeros(0, bool)
+        blank = (codes < 0) | (blank_u[codes] if len(blank_u) else np.zeros(n, bool))
         if col.required and present and blank.any():
             for r in rows[blank]:
                 problems.append(Problem(src, int(r), col.name, "is required and is empty"))
-        typed, errors = _type_uniques(col, uniques, blank_u)
         bad = np.flatnonzero(np.array([e is not None for e in errors], dtype=bool))
         if bad.size:
             where = np.isin(codes, bad)
             for r, c in zip(rows[where], codes[where]):
                 problems.append(Problem(src, int(r), col.name, errors[c]))
-        if col.kind in ("text", "choice"):
-            table_u = np.array(list(typed) + [None], dtype=object)
-            vals = table_u[codes]
-            if col.kind == "choice" and col.default is not None:
-                vals = np.where(blank, col.default, vals)
-            data[col.name] = pd.array(vals, dtype="object")
-        elif col.kind in ("number", "integer"):
-            table_u = np.array(list(typed) + [np.nan], dtype=float)
-            out = table_u[codes]
-            if col.default is not None and not (col.required and present):
-                out = np.where(blank, float(col.default), out)
-            data[col.name] = out
-        elif col.kind == "date":
-            table_u = np.array(list(typed) + [np.datetime64("NaT")], dtype="datetime64[D]")
-            data[col.name] = table_u[codes]
-        else:  # pragma: no cover - schema error
-            raise AssertionError(col.kind)
+        data[col.name] = _spread(col, typed, codes, blank, present)
     frame = pd.DataFrame(data)
     frame.attrs["source"] = src
     frame.attrs["present"] = [c.name for c in columns if c.name in table.headers]
     return frame, problems
+
+
+def _spread(col: Column, typed: list, codes: np.ndarray, blank: np.ndarray, present: bool):
+    """The typed column: each row's distinct cell's value (missing cells as None, NaN or NaT), defaults filled."""
+    if col.kind in ("text", "choice"):
+        table_u = np.empty(len(typed) + 1, dtype=object)
+        table_u[:-1] = typed
+        vals = table_u[codes]
+        if col.kind == "choice" and col.default is not None:
+            vals = np.where(blank, col.default, vals)
+        return pd.array(vals, dtype="object")
+    if col.kind in ("number", "integer"):
+        table_u = np.array(list(typed) + [np.nan], dtype=float)
+        out = table_u[codes]
+        if col.default is not None and not (col.required and present):
+            out = np.where(blank, float(col.default), out)
+        return out
+    if col.kind == "date":
+        table_u = np.array(list(typed) + [np.datetime64("NaT")], dtype="datetime64[D]")
+        return table_u[codes]
+    raise AssertionError(col.kind)  # pragma: no cover - schema error

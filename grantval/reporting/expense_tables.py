@@ -53,6 +53,35 @@ def _long(keys: dict[str, np.ndarray], ends, columns: dict[str, np.ndarray]) -> 
     return pd.DataFrame(data)
 
 
+def long_blocks(keys: dict[str, np.ndarray], ends, columns: dict[str, np.ndarray], rows: int):
+    """The long table of :func:`_long` in blocks of about ``rows`` rows (whole key rows each).
+
+    Yields lists of column arrays in the order keys, ``period_end``, columns,
+    so that a writer holds one block at a time rather than the whole table
+    (key rows x periods).
+    """
+    n, p = next(iter(columns.values())).shape
+    ends = np.asarray(ends, dtype="datetime64[D]")
+    step = max(1, rows // max(p, 1))
+    for at in range(0, n, step):
+        stop = min(n, at + step)
+        yield ([np.repeat(v[at:stop], p) for v in keys.values()] + [np.tile(ends, stop - at)]
+               + [money(v[at:stop].ravel()) for v in columns.values()])
+
+
+def long_expense_blocks(inp: ExpenseInputs, sched: ExpenseSchedule, rows: int):
+    """``expense.csv`` (see :func:`long_expense`) in blocks: its column names and the blocks."""
+    keys, columns = {"grant_id": inp.grant_id, "group": inp.group}, {"expense": sched.expense_cents,
+                                                                    "cumulative_expense": sched.cumulative_cents}
+    return [*keys, "period_end", *columns], long_blocks(keys, sched.period_ends, columns, rows)
+
+
+def long_forecast_blocks(inp: ExpenseInputs, sched: ExpenseSchedule, rows: int):
+    """``forecast.csv`` (see :func:`long_forecast`) in blocks: its column names and the blocks."""
+    keys, columns = {"grant_id": inp.grant_id, "group": inp.group}, {"expense": sched.forecast_cents}
+    return [*keys, "period_end", *columns], long_blocks(keys, sched.forecast_ends, columns, rows)
+
+
 def long_expense(inp: ExpenseInputs, sched: ExpenseSchedule) -> pd.DataFrame:
     """``expense.csv``: grant_id, group, period_end, expense, cumulative_expense (life to date)."""
     return _long({"grant_id": inp.grant_id, "group": inp.group}, sched.period_ends,
@@ -74,8 +103,9 @@ def _status(inp: ExpenseInputs, m, granted) -> np.ndarray:
     """Per tranche at the through date: not granted, vested, unvested, forfeited or cancelled (all units gone)."""
     gone = m.outstanding <= 0
     cancelled = gone & (m.cancelled > 0)
-    return np.select([~granted, cancelled, gone & ~m.vested, m.vested], ["not granted", "cancelled", "forfeited",
-                                                                          "vested"], "unvested").astype(object)
+    words = np.array(["not granted", "cancelled", "forfeited", "vested", "unvested"], dtype=object)
+    # one text object per status, shared by the tranches (not one string per tranche)
+    return words[np.select([~granted, cancelled, gone & ~m.vested, m.vested], [0, 1, 2, 3], 4)]
 
 
 def tranche_table(inp: ExpenseInputs, sched: ExpenseSchedule, tranche_no) -> pd.DataFrame:

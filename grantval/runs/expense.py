@@ -9,7 +9,7 @@ import numpy as np
 
 from grantval.attribution.inputs import ExpenseInputs, build_inputs
 from grantval.attribution.periods import ExpenseSchedule, compute_schedule
-from grantval.io.csv import write_csv
+from grantval.io.csv import BLOCK_ROWS, write_csv, write_csv_blocks
 from grantval.io.files import refuse_overwriting_inputs
 from grantval.io.xlsx.write import write_workbook
 from grantval.ledger import Ledger, load_ledger
@@ -89,11 +89,12 @@ def _write_csvs(run: ExpenseRun, paths, by_group, group_sums, tranches, unrec, l
                 extra: dict | None = None) -> None:
     inp, sched = run.inputs, run.schedule
     pathlib.Path(paths[0]).parent.mkdir(parents=True, exist_ok=True)
-    write_csv(paths[0], T.long_expense(inp, sched), money=("expense", "cumulative_expense"))
+    # the per-period tables (grants x periods rows) are written a block of grants at a time
+    write_csv_blocks(paths[0], *T.long_expense_blocks(inp, sched, BLOCK_ROWS), money=("expense", "cumulative_expense"))
     write_csv(paths[1], T.long_by_group(sched.period_ends, by_group["group"].to_numpy(), group_sums),
               money=("expense",))
     write_csv(paths[2], tranches)
-    write_csv(paths[3], T.long_forecast(inp, sched), money=("expense",))
+    write_csv_blocks(paths[3], *T.long_forecast_blocks(inp, sched, BLOCK_ROWS), money=("expense",))
     write_csv(paths[4], unrec, money=("recognised_to_date", "unrecognised_cost"))
     if liabilities is not None:
         write_csv(paths[5], liabilities, money=("liability", "cash_paid"))

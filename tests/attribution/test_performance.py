@@ -152,6 +152,16 @@ def test_bad_performance_input_is_named(tmp_path, table, row, column, value, whe
     assert any(f.startswith(where) and words in f for f in found), found
 
 
+def test_moving_vest_date_needs_a_single_tranche(tmp_path):
+    # IG Example 2 ledger with the grant vesting yearly (3 tranches) under a set that re-estimates the vesting date
+    folder = ig_example_2(tmp_path / "l")
+    _set("grants", 0, "vest_every_months", "12")(folder)
+    with pytest.raises(LedgerError) as info:
+        api.expense(folder, through="2027-12-31", period="year", standard="ifrs2")
+    found = [str(p) for p in info.value.problems]
+    assert any("grants.csv, row 2, condition_set" in f and "needs a single vesting date" in f for f in found), found
+
+
 def test_psu_without_a_grant_date_assessment_is_an_error(tmp_path):
     found = _bad(tmp_path, _set("performance", 0, "assessed_on", "2027-02-01"))
     assert any("grants.csv, row 2, condition_set" in f and "no assessment on the grant date" in f for f in found)

@@ -4,6 +4,9 @@ import numpy as np
 import pandas as pd
 
 from grantval.dates import add_months, period_ends
+import pytest
+
+from grantval.ledger import schedule
 from grantval.ledger.schedule import generate_tranches
 
 
@@ -56,6 +59,47 @@ def test_many_grants_vectorised():
                cliff_months=np.full(n, 12), vest_start_date=np.full(n, np.datetime64("2027-05-31")))
     t = generate_tranches(g)
     assert (t.groupby("grant_idx")["quantity"].sum().to_numpy() == g["quantity"].to_numpy()).all()
+
+
+def _grouped_reference(g: pd.DataFrame) -> pd.DataFrame:
+    """Tranches built one grant at a time by the documented rule, merged by grouping (docs/ledger-format.md)."""
+    rows = []
+    for i, r in enumerate(g.itertuples()):
+        n = 1 if r.vest_months == 0 else r.vest_months // r.vest_every_months
+        cliff = add_months(np.array([r.vest_start_date], dtype="datetime64[D]"), [r.cliff_months])[0]
+        for k in range(1, n + 1):
+            off = 0 if r.vest_months == 0 else r.vest_every_months * k
+            d = max(add_months(np.array([r.vest_start_date], dtype="datetime64[D]"), [off])[0], cliff)
+            rows.append((i, d, (r.quantity * k) // n - (r.quantity * (k - 1)) // n))
+    f = pd.DataFrame(rows, columns=["grant_idx", "vest_date", "quantity"])
+    f = f.groupby(["grant_idx", "vest_date"], as_index=False)["quantity"].sum()
+    f = f[f["quantity"] > 0].reset_index(drop=True)
+    f["tranche"] = f.groupby("grant_idx").cumcount() + 1
+    return f[["grant_idx", "tranche", "vest_date", "quantity"]]
+
+
+@pytest.mark.parametrize("block", [16_384, 7, 1])
+def test_random_schedules_match_grouping_one_grant_at_a_time(block, monkeypatch):
+    monkeypatch.setattr(schedule, "GRANTS_PER_BLOCK", block)  # blocks of grants give the same table
+    # month-end starts, cliffs between and on tranche dates, quantities smaller than the tranche count
+    rng = np.random.default_rng(3)
+    n = 300
+    every = rng.choice([1, 3, 6, 12], n)
+    g = pd.DataFrame({
+        "quantity": rng.integers(1, 200, n), "vest_months": every * rng.integers(0, 9, n), "vest_every_months": every,
+        "cliff_months": rng.choice([0, 5, 12, 13, 24, 60], n),
+        "vest_start_date": np.datetime64("2027-01-28") + rng.integers(0, 40, n).astype("timedelta64[D]")})
+    got = generate_tranches(g)
+    want = _grouped_reference(g)
+    assert len(got) == len(want) and got.dtypes.to_dict() == want.dtypes.to_dict()
+    pd.testing.assert_frame_equal(got, want, check_exact=True)
+
+
+def test_no_grants_no_tranches():
+    t = generate_tranches(grants(quantity=[], vest_months=[], vest_every_months=[], cliff_months=[],
+                                 vest_start_date=np.array([], dtype="datetime64[D]")))
+    assert len(t) == 0 and list(t.columns) == ["grant_idx", "tranche", "vest_date", "quantity"]
+    assert str(t["vest_date"].dtype).startswith("datetime64") and t["quantity"].dtype == np.int64
 
 
 def test_fiscal_periods():

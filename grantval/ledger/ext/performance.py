@@ -95,7 +95,8 @@ def _cross_problems(g: pd.DataFrame, perf: pd.DataFrame, gsrc: str, psrc: str,
     p: list[Problem] = []
     by_set = {k: f for k, f in perf.groupby("condition_set")} if len(perf) else {}
     known = set(by_set)
-    for row, cs, gdate, mp in zip(g["_row"], g["condition_set"], g["grant_date"], g["max_payout"]):
+    named = g[g["condition_set"].notna().to_numpy()]  # only grants with a condition set (most have none)
+    for row, cs, gdate, mp in zip(named["_row"], named["condition_set"], named["grant_date"], named["max_payout"]):
         if cs is None or (isinstance(cs, float) and np.isnan(cs)):
             continue
         if cs in market and cs not in known:
@@ -126,6 +127,8 @@ def _single_tranche(parts: LedgerParts) -> list[Problem]:
     """A re-estimated vesting date moves the one vesting date of a cliff award; refuse it elsewhere."""
     g, perf = parts.grants, parts.tables["performance"]
     moving = set(perf["condition_set"][perf["expected_vest_date"].notna()])
+    if not moving:
+        return []
     counts = parts.tranches.groupby("grant_idx").size()
     p = []
     for i, (row, cs) in enumerate(zip(g["_row"], g["condition_set"])):
