@@ -61,7 +61,7 @@ def _no_forfeit_after(ledger, ends: np.ndarray, derived_t: np.ndarray) -> None:
     if not late.any():
         return
     ev = ledger.events
-    problems = [Problem(ledger.sources["events"], int(ev["_row"].iat[e]), "date",
+    problems = [Problem(ledger.sources["events"], int(ev["_row"].iat[e]), "event_date",
                         f"a forfeiture after the derived service period of grant {ev['grant_id'].iat[e]} (ended "
                         f"{ends[ti]}): the requisite service was rendered, so its cost is not reversed; record "
                         "the leaver as a cancel if the units lapse")

@@ -15,6 +15,7 @@ import grantval.ledger.validate as v
 from grantval.ledger.events import apply_events
 from grantval.ledger.extensions import (LedgerParts, adjust_extensions, check_extensions, contribute_extensions,
                                        extension_changes, vest_date_extensions)
+from grantval.ledger.ext.market import market_grants
 from grantval.ledger.model import Ledger
 from grantval.ledger.parse import parse_table
 from grantval.ledger.schedule import combine_schedules, generate_tranches
@@ -139,7 +140,7 @@ def read_ledger(location, planned=None) -> tuple[Ledger | None, list[Problem]]:
     # grants the extensions synthesize from their own tables (ESPP enrollments), after the core grant checks
     g, a, pos, own_tranches, probs, withheld = contribute_extensions(g, a, pos, frames, sources)
     problems += probs
-    problems += v.check_grant_assumptions(g, a, pos, sources["assumptions"])
+    problems += v.check_grant_assumptions(g, a, pos, sources["assumptions"], market_grants(g, frames))
 
     ok, tranches, probs = _tranches(g, frames["tranches"], sources["tranches"])
     problems += probs

@@ -169,8 +169,9 @@ def match_assumptions(g: pd.DataFrame, a: pd.DataFrame, gsrc: str) -> tuple[np.n
     return pos, p
 
 
-def check_grant_assumptions(g: pd.DataFrame, a: pd.DataFrame, pos: np.ndarray, asrc: str) -> list[Problem]:
-    """Checks that need both a grant and its assumptions row."""
+def check_grant_assumptions(g: pd.DataFrame, a: pd.DataFrame, pos: np.ndarray, asrc: str,
+                            market: np.ndarray | None = None) -> list[Problem]:
+    """Checks that need both a grant and its assumptions row (``market``: per grant, a market condition)."""
     p: list[Problem] = []
     ok = pos >= 0
     if not ok.any():
@@ -178,17 +179,27 @@ def check_grant_assumptions(g: pd.DataFrame, a: pd.DataFrame, pos: np.ndarray, a
     gi = np.flatnonzero(ok)
     ai = pos[ok]
     option = flag(g["award_type"].to_numpy(), "option_terms")[gi]
+    mc = np.zeros(len(gi), dtype=bool) if market is None else np.asarray(market, dtype=bool)[gi]
     supplied = ~np.isnan(a["fair_value"].to_numpy()[ai])
-    need = option & ~supplied
+    need = (option | mc) & ~supplied
     reported: set[tuple[int, str]] = set()
     for col in ("volatility", "risk_free_rate"):
         missing = need & np.isnan(a[col].to_numpy()[ai])
-        for j, gidx in zip(ai[missing], gi[missing]):
+        for j, gidx, m in zip(ai[missing], gi[missing], mc[missing]):
             if (j, col) in reported:
                 continue
             reported.add((j, col))
+            what = "grants with a market condition (Monte Carlo)" if m else "option grants valued by the tool"
             p.append(Problem(asrc, int(a["_row"].iat[j]), col,
-                             f"is required for option grants valued by the tool (used by grant {g['grant_id'].iat[gidx]})"))
+                             f"is required for {what} (used by grant {g['grant_id'].iat[gidx]})"))
+    lattice = mc & ~supplied & (a["model"].to_numpy()[ai] == "lattice")
+    for j, gidx in zip(ai[lattice], gi[lattice]):
+        if (j, "model") not in reported:
+            reported.add((j, "model"))
+            p.append(Problem(asrc, int(a["_row"].iat[j]), "model",
+                             f"is lattice, but grant {g['grant_id'].iat[gidx]} has a market condition and is valued by "
+                             "Monte Carlo at its expected term (exercise_multiple and post_vest_exit_rate unused): "
+                             "use an assumptions row with model bsm"))
     te = a["expected_term_years"].to_numpy()[ai]
     contract = year_fraction(g["grant_date"].to_numpy("datetime64[D]")[gi], g["expiration_date"].to_numpy("datetime64[D]")[gi])
     longer = option & ~np.isnan(te) & ~np.isnan(contract) & (te > contract + 1e-9)

@@ -96,7 +96,11 @@ def _value_by_kind(ctx: ValuationContext):
     mc = value_market(ctx, market & ~ctx.is_supplied)
     simulated = ~np.isnan(mc.value)
     tv[simulated[ctx.gi]] = mc.value[ctx.gi][simulated[ctx.gi]]
-    model[simulated], term_method[simulated] = MARKET_MODEL, "performance period (market condition)"
+    model[simulated] = MARKET_MODEL
+    opt = simulated & (ctx.award == "option")
+    term_method[simulated & ~opt] = "performance period (market condition)"
+    term_method[opt & np.isnan(ctx.given_term)] = "simplified method (SAB Topic 14.D.2); paths to the period end"
+    term_method[opt & ~np.isnan(ctx.given_term)] = "given; paths to the period end"
     award_term[simulated] = np.where(ctx.award[simulated] == "option", ctx.term_award[simulated], np.nan)
     supplied = ctx.is_supplied
     tv[supplied[ctx.gi]] = ctx.supplied[ctx.gi][supplied[ctx.gi]]

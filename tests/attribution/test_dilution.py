@@ -435,3 +435,29 @@ def test_purchase_plan_rights_pay_the_look_back_price(tmp_path):
     q2 = espp[espp["period_end"] == "2026-06-30"]["exercise_price"].to_numpy(float)
     assert q2.size and np.allclose(q2, 0.85 * 23.0, rtol=0, atol=1e-9)
     assert all(c.tool_pass for c in dilution_checks(run, dilution_totals(run), by))
+
+
+
+def test_a_daily_hurdle_once_reached_stays_met(tmp_path):
+    # share-price hurdle 15, monitored every day: the share_prices rows 12 (2027-03-31), 16 (2027-06-30) and
+    # 13 (2027-09-30): met on 2027-06-30 and still met on 2027-09-30 (payout 1), not met on 2027-03-31.
+    from tests.measurement.test_market import market_ledger
+
+    prices = [{"date": d, "share_price": x} for d, x in (("2027-03-31", 12), ("2027-06-30", 16), ("2027-09-30", 13))]
+    loc = market_ledger(tmp_path / "l", metric="share_price", monitoring="any_day", curve="15:1", averaging=1,
+                        extra={"share_prices": prices, "policy": [{"key": "mc_paths", "value": "2000"}]})
+    avg = _prices(tmp_path / "p", [("2027-03-31", 11), ("2027-06-30", 14), ("2027-09-30", 14)])
+    run = api.dilution(loc, average_prices=avg, start="2027-01-01", through="2027-09-30", period="quarter")
+    by = dilution_by_grant(run)
+    g2 = by[by["grant_id"] == "G2"]
+    assert g2["contingent_payout"].tolist() == [0.0, 1.0, 1.0]
+
+
+def test_a_missing_share_price_names_the_share_prices_table(tmp_path):
+    from tests.measurement.test_market import market_ledger
+
+    loc = market_ledger(tmp_path / "l", metric="share_price", monitoring="end", curve="15:1", averaging=1,
+                        extra={"policy": [{"key": "mc_paths", "value": "2000"}]})
+    with pytest.raises(LedgerError, match=r"share_prices, share_price: diluted shares of grant G2 need the share"):
+        api.dilution(loc, average_prices=_prices(tmp_path / "p", [("2027-03-31", 11)]), start="2027-01-01",
+                     through="2027-03-31", period="quarter")

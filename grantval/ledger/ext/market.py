@@ -113,8 +113,12 @@ def _correlation_problems(peers: pd.DataFrame, cor: pd.DataFrame, src: str) -> l
     """Correlation bounds, missing pairs and positive semi-definiteness per peer set."""
     p: list[Problem] = []
     c = cor["correlation"].to_numpy(float)
-    for r in rows_where(cor, (c < -1) | (c > 1)):
-        p.append(Problem(src, r, "correlation", "must be between -1 and 1"))
+    for r, x in zip(rows_where(cor, (c < -1) | (c > 1)), c[(c < -1) | (c > 1)]):
+        p.append(Problem(src, r, "correlation", f"must be between -1 and 1 (a decimal: 0.45, not 45); got {x:g}"))
+    for r in rows_where(cor, np.isnan(c)):
+        p.append(Problem(src, r, "correlation", "is blank: give the correlation of the pair (a decimal between -1 and 1)"))
+    if np.isnan(c).any() or ((c < -1) | (c > 1)).any():
+        return p  # the matrices cannot be formed or tested until these rows are mended
     for ps, f in (peers.groupby("peer_set") if len(peers) else []):
         names = ["self"] + list(f["peer_id"])
         m = np.eye(len(names))
@@ -232,7 +236,9 @@ def payouts_if_ended(ledger, grants: np.ndarray, day) -> np.ndarray:
         r = rows.loc[i]
         x, cap_tsr, missing = _metric_to_date(t, g["condition_set"].iat[i], r, day)
         if missing:
-            problems.append(Problem(ledger.sources.get("market_returns", "market_returns"), None, "total_return",
+            table = ("share_prices", "share_price") if r["metric"] == "share_price" else ("market_returns",
+                                                                                      "total_return")
+            problems.append(Problem(ledger.sources.get(table[0], table[0]), None, table[1],
                                     f"diluted shares of grant {g['grant_id'].iat[i]} need {missing} on "
                                     f"{np.datetime64(day, 'D')} (the shares issuable if the period ended then)"))
             continue
@@ -248,9 +254,13 @@ def _metric_to_date(t: dict, cs: str, r, day) -> tuple[float, float | None, str]
     """(metric, company TSR or None, what is missing) of one condition on ``day``."""
     if r["metric"] == "share_price":
         sp = t.get("share_prices")
-        hit = sp[sp["date"].to_numpy("datetime64[D]") == np.datetime64(day, "D")] if sp is not None and len(sp) else []
+        d = sp["date"].to_numpy("datetime64[D]") if sp is not None and len(sp) else np.zeros(0, "datetime64[D]")
+        hit = sp[d == np.datetime64(day, "D")] if len(d) else []
         if not len(hit):
             return np.nan, None, "the share price (share_prices table)"
+        if r.get("monitoring") == "any_day":  # once reached the hurdle stays met: the highest price recorded
+            since = (d >= np.datetime64(r["start_date"], "D")) & (d <= np.datetime64(day, "D"))
+            return float(sp["share_price"].to_numpy(float)[since].max()), None, ""
         return float(hit["share_price"].iat[0]), None, ""
     have = returns_on(t, cs, day)
     members = members_of(t["peers"], r["peer_set"])
@@ -375,12 +385,28 @@ def _member_problems(rows: pd.DataFrame, line: np.ndarray, cs: np.ndarray, t: di
                     f"set {rows['peer_set'].iat[i]!r} (the index); it has {n[i]}") for i in np.flatnonzero(bad)]
 
 
+def _peer_value_problems(peers: pd.DataFrame, src: str) -> list[Problem]:
+    """A peer's volatility and dividend yield within the same limits as the assumptions table's."""
+    from grantval import plausibility
+
+    p: list[Problem] = []
+    for col in ("volatility", "dividend_yield"):
+        vals = peers[col].to_numpy(float)
+        bad = plausibility.bad(col, vals)
+        for r, x in zip(rows_where(peers, bad), vals[bad]):
+            p.append(Problem(src, r, col, f"{plausibility.LIMITS[col].words}; got {x:g}"))
+        odd = plausibility.odd(col, vals)
+        for r, x in zip(rows_where(peers, odd), vals[odd]):
+            p.append(Problem(src, r, col, f"{x:g} {plausibility.LIMITS[col].unusual}", "warning"))
+    return p
+
+
 def check(parts: LedgerParts) -> list[Problem]:
     """Every check of the market-condition tables and of the grants that point at them."""
     t, s = parts.tables, parts.sources
     mc, peers, cor = t["market_conditions"], t["peers"], t["correlations"]
     p = _condition_problems(mc, peers, s["market_conditions"]) + _correlation_problems(peers, cor, s["correlations"])
-    p += _returns_problems(t, s["market_returns"])
+    p += _returns_problems(t, s["market_returns"]) + _peer_value_problems(peers, s["peers"])
     both = set(mc["condition_set"]) & set(t["performance"]["condition_set"]) if len(mc) else set()
     for r in rows_where(mc, mc["condition_set"].isin(both).to_numpy()):
         p.append(Problem(s["market_conditions"], r, "condition_set", "is also in the performance table"))

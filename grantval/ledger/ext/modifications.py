@@ -298,6 +298,12 @@ def _kind_problems(m: pd.DataFrame, g: pd.DataFrame, gp: np.ndarray, src: str) -
     for r in rows_where(m, known & ~np.isin(award, ("option", "rsu"))):
         p.append(Problem(src, r, "grant_id", "modifications of this award type are not supported yet "
                          "(options and RSUs only)"))
+    cond = np.zeros(len(m), dtype=bool)  # an option's condition_set can only be a market condition
+    if "condition_set" in g:
+        cond[known] = g["condition_set"].notna().to_numpy()[gp[known]]
+    for r in rows_where(m, known & options & cond):
+        p.append(Problem(src, r, "grant_id", "modifications of an option with a market condition are not supported "
+                         "yet (its values before and after need the Monte Carlo valuation)"))
     q = m["quantity"].to_numpy(float)
     for r in rows_where(m, ~np.isnan(q) & (q < 0)):
         p.append(Problem(src, r, "quantity", "must be zero or more (units outstanding after the modification)"))

@@ -102,7 +102,8 @@ def _cross_problems(g: pd.DataFrame, perf: pd.DataFrame, gsrc: str, psrc: str,
         if cs in market and cs not in known:
             continue
         if cs not in known:
-            p.append(Problem(gsrc, int(row), "condition_set", f"{cs!r} has no rows in the performance table"))
+            p.append(Problem(gsrc, int(row), "condition_set", f"{cs!r} has no rows in the performance table "
+                             "(nor in market_conditions)"))
             continue
         f = by_set[cs]
         gd = np.datetime64(gdate, "D")

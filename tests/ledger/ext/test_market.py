@@ -189,3 +189,45 @@ def test_no_correlation_rows_and_a_return_written_as_a_percentage(tmp_path):
                and "its 1 pairs" in p.message for p in report.errors)
     warn = [p for p in report.problems if p.severity == "warning" and p.column == "total_return"]
     assert warn and warn[0].row == 2 and "not a percentage" in warn[0].message
+
+
+def test_blank_correlation_and_peer_values_out_of_range(tmp_path):
+    # a blank correlation is named on its row (it used to reach the eigenvalue test and crash); a peer's
+    # volatility and dividend yield follow the assumptions table's limits (grantval/plausibility.py)
+    data = _market(tables())
+    data["correlations"][0]["correlation"] = ""
+    data["peers"][0].update({"volatility": 35, "dividend_yield": 1.5})
+    report = problems_of(tmp_path, data)
+    assert_problem(report, "correlations.csv", 2, "correlation", "is blank")
+    assert_problem(report, "peers.csv", 2, "volatility", "got 35")
+    assert_problem(report, "peers.csv", 2, "dividend_yield", "got 1.5")
+    data["correlations"][0]["correlation"] = 45
+    report = problems_of(tmp_path / "b", data)
+    assert_problem(report, "correlations.csv", 2, "correlation", "got 45")
+    assert not any("semi-definite" in p.message for p in report.errors)
+
+
+def test_market_grant_inputs_are_checked_with_the_ledger(tmp_path):
+    # `check` refuses what valuation would: no volatility, and a lattice row (Monte Carlo uses neither the
+    # exercise multiple nor the exit rate)
+    data = _on_grant_date(_psu_on_market(_market(tables())))
+    data["assumptions"][0]["volatility"] = ""
+    report = problems_of(tmp_path, data)
+    assert_problem(report, "assumptions.csv", 2, "volatility", "grants with a market condition")
+    data = _on_grant_date(_market(tables()))
+    for g in data["grants"]:
+        g.setdefault("condition_set", "")
+    data["grants"][2].update({"condition_set": "M1", "grant_date": "2027-01-01"})  # G3: an option on the lattice row
+    report = problems_of(tmp_path / "l", data)
+    assert_problem(report, "assumptions.csv", 3, "model", "valued by Monte Carlo")
+
+
+def test_modifying_a_market_condition_option_is_refused(tmp_path):
+    data = _on_grant_date(_market(tables()))
+    for g in data["grants"]:
+        g.setdefault("condition_set", "")
+    data["grants"][0]["condition_set"] = "M1"
+    data["modifications"] = [{"grant_id": "G1", "modification_date": "2028-01-01", "exercise_price": "8",
+                              "fair_value_before": "3", "fair_value_after": "4"}]
+    report = problems_of(tmp_path, data)
+    assert_problem(report, "modifications.csv", 2, "grant_id", "market condition are not supported yet")
