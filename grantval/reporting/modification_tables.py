@@ -25,7 +25,8 @@ def _changes(t, i: int, agg: dict) -> str:
     words = []
     if not (np.isnan(t.strike_before[i]) and np.isnan(t.strike_after[i])) and t.strike_before[i] != t.strike_after[i]:
         words.append("repricing")
-    if t.expiry_before[i] != t.expiry_after[i]:
+    no_expiry = np.isnat(t.expiry_before[i]) and np.isnat(t.expiry_after[i])  # units have no expiration
+    if not no_expiry and t.expiry_before[i] != t.expiry_after[i]:
         words.append("extended expiration" if t.expiry_after[i] > t.expiry_before[i] else "shortened expiration")
     if t.accelerate[i] and agg["acc"][i] > 0:
         words.append("accelerated vesting")

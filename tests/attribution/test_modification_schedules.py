@@ -463,3 +463,16 @@ def test_modifications_sheet_shows_schedule_and_quantity_changes(tmp_path):
     row = {c: cell.value for c, cell in zip(COLUMNS, load_workbook(tmp_path / "s.xlsx")["modifications"][2])}
     assert row["vesting_before"] == "48 months, every 12, cliff 0" and row["units_accelerated"] == 750
     assert row["change"] == "vesting schedule (earlier)" and "B43(c)" in row["treatment"]
+
+
+def test_rsu_quantity_increase_is_described_without_an_expiration_change(tmp_path):
+    # an RSU has no expiration date: both sides are blank (NaT), which is no change (it read "shortened
+    # expiration" before, as NaT != NaT)
+    grants = [{**OPTION, "grant_id": "U", "award_type": "rsu", "exercise_price": "", "expiration_date": "",
+               "grant_date": "2025-01-01", "quantity": "1000", "vest_months": "24", "vest_every_months": "12"}]
+    a = [_assumption("g", fair_value="12"), _assumption("m", fair_value="15")]
+    folder = write_ledger(tmp_path / "l", {"grants": grants, "assumptions": a,
+                                           "modifications": [_mod("U", "2025-07-01", quantity="1500",
+                                                                  fair_value_before="12", fair_value_after="15")]})
+    led, _, inp, _ = run(folder, "2025-12-31", standard="asc718")
+    assert modification_table(inp.modifications, led).iloc[0]["change"] == "increased quantity"
