@@ -38,6 +38,16 @@ class Disclosure:
     psu_tie: tuple[int, int] = (0, 0)
 
 
+def _vest_in_force(ledger: Ledger) -> np.ndarray:
+    """Per tranche: the vest date after the ledger's modifications (the schedule's when it has none)."""
+    mods = ledger.tables.get("modifications")
+    if mods is None or not len(mods):
+        return ledger.tranches["vest_date"].to_numpy("datetime64[D]")
+    from grantval.ledger.ext.modifications import vest_in_force
+
+    return np.asarray(vest_in_force(ledger.tranches, ledger.grants, mods), dtype="datetime64[D]")
+
+
 class _Tranches:
     """Per-tranche arrays with event quantities by kind up to a date."""
 
@@ -49,7 +59,7 @@ class _Tranches:
         self.performance = in_group(g["award_type"].to_numpy(), "performance_units")[gi]
         self.units = in_group(g["award_type"].to_numpy(), "units")[gi]  # RSUs (not purchase plans or cash)
         self.qty = tr["quantity"].to_numpy(np.int64)
-        self.vest = tr["vest_date"].to_numpy("datetime64[D]")
+        self.vest = _vest_in_force(ledger)  # accelerations and new schedules (they only move unvested tranches)
         self.grant_date = g["grant_date"].to_numpy("datetime64[D]")[gi]
         self.expiry = g["expiration_date"].to_numpy("datetime64[D]")[gi]
         self.strike = g["exercise_price"].to_numpy(float)[gi]

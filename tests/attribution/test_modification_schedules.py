@@ -476,3 +476,19 @@ def test_rsu_quantity_increase_is_described_without_an_expiration_change(tmp_pat
                                                                   fair_value_before="12", fair_value_after="15")]})
     led, _, inp, _ = run(folder, "2025-12-31", standard="asc718")
     assert modification_table(inp.modifications, led).iloc[0]["change"] == "increased quantity"
+
+
+def test_exercisable_options_follow_a_shortened_schedule(tmp_path):
+    # 1,200 options, four annual tranches of 300 from 2025-01-01; on 2026-01-01 the schedule becomes 24 months
+    # (two tranches of 600: 2026-01-01 and 2027-01-01, docs/modifications.md).  ASC 718-10-50-2 activity:
+    # exercisable at the end of 2026 = the 600 vested on 2026-01-01 (it read 300, the original schedule's).
+    from grantval import api
+
+    grants = [{**OPTION, "grant_id": "S", "grant_date": "2025-01-01", "quantity": "1200", "vest_months": "48",
+               "vest_every_months": "12", "cliff_months": "12"}]
+    a = [_assumption("g", fair_value="5")]
+    folder = write_ledger(tmp_path / "l", {"grants": grants, "assumptions": a, "modifications": [
+        _mod("S", "2026-01-01", vest_months="24", fair_value_before="5", fair_value_after="5")]})
+    run = api.disclose(folder, start="2026-01-01", through="2026-12-31")
+    lines = run.disclosure.options.set_index("line")["number"]
+    assert lines["Exercisable at end"] == 600
