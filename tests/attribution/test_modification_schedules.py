@@ -264,15 +264,19 @@ def test_shorter_vesting_without_the_re_spread_layers_differs(tmp_path, monkeypa
     assert abs(s.cumulative_cents[0, 1] - round(b43c * 100)) > 100
 
 
+def _append_modification(folder, **cells) -> None:
+    """Add one row to the ledger's modifications.csv (cells not given are blank)."""
+    lines = (folder / "modifications.csv").read_text().splitlines()
+    header = lines[0].split(",")
+    row = dict.fromkeys(header, "") | cells
+    (folder / "modifications.csv").write_text("\n".join(lines + [",".join(row[h] for h in header)]) + "\n")
+
+
 def test_a_later_modification_sees_the_new_schedule(tmp_path):
     # a repricing on 2026-06-01 after the 2026-01-01 schedule change: its terms before are the new dates
     folder = shortened(tmp_path / "l")
-    mods = (folder / "modifications.csv").read_text().splitlines()
-    header = mods[0].split(",")
-    row = dict.fromkeys(header, "")
-    row.update(grant_id="S", modification_date="2026-06-01", exercise_price="10", fair_value_before="3",
-               fair_value_after="4")
-    (folder / "modifications.csv").write_text("\n".join(mods + [",".join(row[h] for h in header)]) + "\n")
+    _append_modification(folder, grant_id="S", modification_date="2026-06-01", exercise_price="10",
+                         fair_value_before="3", fair_value_after="4")
     led, _, inp, _ = run(folder, "2028-12-31")
     v = inp.modifications.values
     second = v.p_mod == 1
@@ -391,12 +395,8 @@ def test_added_units_count_is_checked_against_the_ledgers_allocation(tmp_path, m
 
 def test_later_modification_of_the_grant_warns_about_the_added_units(tmp_path):
     folder = increased(tmp_path / "l")
-    m = (folder / "modifications.csv").read_text().splitlines()
-    header = m[0].split(",")
-    row = dict.fromkeys(header, "")
-    row.update(grant_id="Q", modification_date="2026-03-01", expiration_date="2036-01-01", fair_value_before="5",
-               fair_value_after="5.5")
-    (folder / "modifications.csv").write_text("\n".join(m + [",".join(row[h] for h in header)]) + "\n")
+    _append_modification(folder, grant_id="Q", modification_date="2026-03-01", expiration_date="2036-01-01",
+                         fair_value_before="5", fair_value_after="5.5")
     led = load_ledger(folder)
     w = [p for p in led.warnings if p.source == "modifications.csv"]
     assert w and w[0].row == 3 and "Q+2025-07-01" in w[0].message

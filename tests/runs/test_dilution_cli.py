@@ -77,21 +77,25 @@ def test_refuses_to_overwrite_the_prices_file(tmp_path):
     assert r.exit_code != 0 and "Traceback" not in r.output
 
 
-def test_workbook_formulas_recalculate_to_pass(tmp_path):
-    """LibreOffice recalculates the live checks (row-by-row incremental shares) of the dilution workbook."""
+def _recalculated(tmp_path, loc, prices):
+    """The dilution workbook recalculated by LibreOffice (skip without it) and its checks' verdicts."""
     import pytest
 
     from tests.io.test_recalculation import SOFFICE, recalculate
 
     if SOFFICE is None:
         pytest.skip("LibreOffice is not installed")
-    loc, prices = _inputs(tmp_path)
     out = tmp_path / "d.xlsx"
     r = run("dilution", loc, "--average-prices", prices, "--from", "2027-01-01", "--through", "2027-12-31",
             "-o", out, "--no-timestamp")
     assert r.exit_code == 0, r.output
     wb = openpyxl.load_workbook(recalculate(out, tmp_path), data_only=True)
-    status = [row[5] for row in wb["checks"].iter_rows(min_row=2, values_only=True)]
+    return wb, [row[5] for row in wb["checks"].iter_rows(min_row=2, values_only=True)]
+
+
+def test_workbook_formulas_recalculate_to_pass(tmp_path):
+    """LibreOffice recalculates the live checks (row-by-row incremental shares) of the dilution workbook."""
+    wb, status = _recalculated(tmp_path, *_inputs(tmp_path))
     assert status and all(s == "PASS" for s in status), status
     ws = wb["dilution_by_grant"]
     head = [c.value for c in ws[1]]
@@ -143,17 +147,5 @@ def test_performance_units_in_the_csv_and_workbook(tmp_path):
 
 
 def test_performance_unit_workbook_recalculates_to_pass(tmp_path):
-    import pytest
-
-    from tests.io.test_recalculation import SOFFICE, recalculate
-
-    if SOFFICE is None:
-        pytest.skip("LibreOffice is not installed")
-    loc, prices = _psu_inputs(tmp_path)
-    out = tmp_path / "d.xlsx"
-    r = run("dilution", loc, "--average-prices", prices, "--from", "2027-01-01", "--through", "2027-12-31",
-            "-o", out, "--no-timestamp")
-    assert r.exit_code == 0, r.output
-    wb = openpyxl.load_workbook(recalculate(out, tmp_path), data_only=True)
-    status = [row[5] for row in wb["checks"].iter_rows(min_row=2, values_only=True)]
+    _, status = _recalculated(tmp_path, *_psu_inputs(tmp_path))
     assert len(status) == 4 and all(s == "PASS" for s in status), status
