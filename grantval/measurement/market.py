@@ -36,7 +36,7 @@ import pandas as pd
 
 from grantval.dates import year_fraction
 from grantval.errors import LedgerError, Problem
-from grantval.ledger.ext.market import TSR_METRICS, market_grants, members_of, returns_on
+from grantval.ledger.ext.market import TSR_METRICS, condition_rows, market_grants, members_of, returns_on
 from grantval.pricing.market_condition import derived_service_period, market_award_values
 from grantval.pricing.paths import simulate_market
 from grantval.pricing.payout import parse_payout_curve
@@ -92,9 +92,8 @@ def _members(ledger, peer_set) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
 def _plan(ctx, grants: np.ndarray) -> pd.DataFrame:
     """One row per valued grant: its condition, settlement and simulation key."""
     g = ctx.ledger.grants
-    mc = ctx.ledger.tables["market_conditions"].drop_duplicates("condition_set").set_index("condition_set")
     at = np.flatnonzero(grants)
-    rows = mc.loc[g["condition_set"].to_numpy()[at]].reset_index()
+    rows = condition_rows(g, ctx.ledger.tables).loc[at].reset_index(drop=True)
     rows["grant"] = at
     rows["averaging_days"] = np.maximum(np.nan_to_num(rows["averaging_days"].to_numpy(float), nan=0.0), 1).astype(int)
     rows["monitoring"] = rows["monitoring"].where(rows["monitoring"].notna(), "end")

@@ -236,7 +236,7 @@ def _granted_figures(ledger: Ledger, fv: FairValues, start, through) -> list[tup
 def _market_granted(ledger: Ledger, fv: FairValues, g_in: np.ndarray) -> list[tuple[str, float]]:
     """Weighted-average inputs of the awards with a market condition granted in the window (ASC 718-10-50-2:
     the method and significant assumptions used), when there are any."""
-    from grantval.ledger.ext.market import market_grants
+    from grantval.ledger.ext.market import condition_rows, market_grants
 
     if fv.std_error is None:
         return []
@@ -245,8 +245,7 @@ def _market_granted(ledger: Ledger, fv: FairValues, g_in: np.ndarray) -> list[tu
         return []
     g, a, ai = ledger.grants, ledger.assumptions, ledger.grant_assumption
     w = g["quantity"].to_numpy(float)[m]
-    mc = ledger.tables["market_conditions"].drop_duplicates("condition_set").set_index("condition_set")
-    rows = mc.loc[g["condition_set"].to_numpy()[m]]
+    rows = condition_rows(g, ledger.tables).loc[np.flatnonzero(m)]
     period = (rows["end_date"].to_numpy("datetime64[D]") - g["grant_date"].to_numpy("datetime64[D]")[m]).astype(int)
     label = "Market-condition awards granted (Monte Carlo): weighted-average"
     items = [(f"{label} expected volatility", _wavg(a["volatility"].to_numpy(float)[ai][m], w)),

@@ -160,9 +160,10 @@ def market_grants(grants: pd.DataFrame, tables: dict) -> np.ndarray:
     return grants["condition_set"].isin(market_sets(tables)).to_numpy()
 
 
-def _condition_rows(grants: pd.DataFrame, tables: dict) -> pd.DataFrame:
-    """Per grant with a market condition: its market_conditions row (index = grant position)."""
-    mc = tables["market_conditions"].drop_duplicates("condition_set").set_index("condition_set")
+def condition_rows(grants: pd.DataFrame, tables: dict) -> pd.DataFrame:
+    """Per grant with a market condition: its market_conditions row (index = grant position; the
+    ``condition_set`` and the table row ``_row`` are columns)."""
+    mc = tables["market_conditions"].drop_duplicates("condition_set").set_index("condition_set", drop=False)
     at = np.flatnonzero(market_grants(grants, tables))
     out = mc.loc[grants["condition_set"].to_numpy()[at]]
     out.index = at
@@ -174,7 +175,7 @@ def vest_dates(grants: pd.DataFrame, tables: dict, tranches: pd.DataFrame) -> pd
     market = market_grants(grants, tables)
     if not market.any():
         return tranches
-    rows = _condition_rows(grants, tables)
+    rows = condition_rows(grants, tables)
     none = grants["vest_months"].to_numpy() == 0
     end = np.full(len(grants), np.datetime64("NaT"), dtype="datetime64[D]")
     end[rows.index.to_numpy()] = rows["end_date"].to_numpy("datetime64[D]")
@@ -203,17 +204,17 @@ def achieved_payouts(ledger, vested_t: np.ndarray, t_grant: np.ndarray) -> tuple
     out = np.full(len(g), np.nan)
     if not market.any():
         return out, market
-    rows = _condition_rows(g, t)
+    rows = condition_rows(g, t)
     out[rows.index.to_numpy()] = rows["achieved_payout"].to_numpy(float)
     vested = np.zeros(len(g), dtype=bool)
     np.logical_or.at(vested, t_grant[vested_t], True)
     blank = market & vested & np.isnan(out)
     if blank.any():
-        mc = t["market_conditions"].drop_duplicates("condition_set").set_index("condition_set")
-        sets = sorted(set(g["condition_set"].to_numpy()[blank]))
-        raise LedgerError([Problem(ledger.sources["market_conditions"], int(mc.loc[c, "_row"]), "achieved_payout",
+        first = rows.loc[np.flatnonzero(blank)].drop_duplicates("condition_set").sort_values("condition_set")
+        raise LedgerError([Problem(ledger.sources["market_conditions"], int(r), "achieved_payout",
                                    f"units under {c!r} have vested: enter the payout achieved (decimal share of "
-                                   "target) so the shares issued can be reported") for c in sets])
+                                   "target) so the shares issued can be reported")
+                           for c, r in zip(first["condition_set"], first["_row"])])
     return out, market
 
 
@@ -231,7 +232,7 @@ def payouts_if_ended(ledger, grants: np.ndarray, day) -> np.ndarray:
     g, t = ledger.grants, ledger.tables
     out = np.full(len(g), np.nan)
     problems: list[Problem] = []
-    rows = _condition_rows(g, t)
+    rows = condition_rows(g, t)
     for i in np.flatnonzero(grants):
         r = rows.loc[i]
         x, cap_tsr, missing = _metric_to_date(t, g["condition_set"].iat[i], r, day)
@@ -282,7 +283,7 @@ def _grant_problems(parts: LedgerParts) -> list[Problem]:
     market = market_grants(g, t)
     if not market.any():
         return []
-    rows = _condition_rows(g, t)
+    rows = condition_rows(g, t)
     at = rows.index.to_numpy()
     award = g["award_type"].to_numpy(dtype=object)[at]
     cs = g["condition_set"].to_numpy(dtype=object)[at]
