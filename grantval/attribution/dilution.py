@@ -222,16 +222,6 @@ class PerformanceUnits:
         self.psu_t = (psu | self.market)[inp.t_grant]
         self.assessments = Assessments(ledger, psu) if (psu | self.market).any() else None
 
-    def _row(self, grants: np.ndarray, days: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-        """Index of the row in force and whether there is one (the lookup of ``Assessments.at``)."""
-        A = self.assessments
-        if A.grant.size == 0:  # market-condition units only: no performance rows
-            return np.zeros(len(grants), dtype=np.int64), np.zeros(len(grants), dtype=bool)
-        key = A.grant * (1 << 32) + A.day
-        pos = np.searchsorted(key, grants.astype(np.int64) * (1 << 32) + days.astype(np.int64), side="right") - 1
-        ok = (pos >= 0) & (A.grant[np.maximum(pos, 0)] == grants)
-        return np.maximum(pos, 0), ok
-
     def at(self, day: int) -> Contingency:
         """Per tranche: the shares counted per unit, the assessment used and the vesting day, as at ``day``."""
         pre = self.inp.prepared()
@@ -241,10 +231,9 @@ class PerformanceUnits:
         A, g_t = self.assessments, self.inp.t_grant
         _, vest_now = A.at(g_t, np.full(n_t, day))
         vest = np.where(self.psu_t & (vest_now != _NO_DAY), vest_now, pre.t_vest).astype(np.int64)
-        pos, ok = self._row(g_t, np.minimum(vest, day))
-        rows = A.payout.size > 0  # market-condition units alone have no performance rows
-        payout = np.where(self.psu_t, np.where(ok, A.payout[pos] if rows else 0.0, 0.0), 1.0)
-        assessed = np.where(self.psu_t & ok, A.day[pos] if rows else _NO_DAY, _NO_DAY)
+        pay_row, _, day_row = A.in_force(g_t, np.minimum(vest, day))
+        payout = np.where(self.psu_t, pay_row, 1.0)
+        assessed = np.where(self.psu_t, day_row, _NO_DAY)
         if self.market.any():
             payout, assessed = self._market(payout, assessed, vest, day)
         return Contingency(payout, assessed, vest)

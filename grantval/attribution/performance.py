@@ -64,15 +64,22 @@ class Assessments:
 
     def at(self, grants: np.ndarray, days: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """Payout and vesting day in force on ``days`` for ``grants`` (0 payout before the first row)."""
+        payout, vest, _ = self.in_force(grants, days)
+        return payout, vest
+
+    def in_force(self, grants: np.ndarray, days: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """Payout, vesting day and assessment day of the row in force on ``days`` for ``grants``
+        (0, no day and no day where none is: before the first row, or no rows at all)."""
+        grants = np.atleast_1d(np.asarray(grants, dtype=np.int64))
         if self.grant.size == 0:
-            n = np.shape(grants)[0] if np.ndim(grants) else 1
-            return np.zeros(n), np.full(n, _NONE)
+            return np.zeros(grants.size), np.full(grants.size, _NONE), np.full(grants.size, _NONE)
         key = self.grant * (1 << 32) + self.day
-        want = np.asarray(grants, dtype=np.int64) * (1 << 32) + np.asarray(days, dtype=np.int64)
+        want = grants * (1 << 32) + np.asarray(days, dtype=np.int64)
         pos = np.searchsorted(key, want, side="right") - 1
         ok = (pos >= 0) & (self.grant[np.maximum(pos, 0)] == grants)
         pos = np.maximum(pos, 0)
-        return np.where(ok, self.payout[pos], 0.0), np.where(ok, self.vest[pos], _NONE)
+        return (np.where(ok, self.payout[pos], 0.0), np.where(ok, self.vest[pos], _NONE),
+                np.where(ok, self.day[pos], _NONE))
 
 
 def _vesting(inp, A: Assessments, psu_t: np.ndarray, dn: int, Q=None):
