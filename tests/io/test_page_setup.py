@@ -1,5 +1,6 @@
 """Every sheet of every workbook the tool writes is set up for printing (close-ready issue)."""
 
+import math
 import pathlib
 
 import openpyxl
@@ -27,8 +28,8 @@ def test_every_sheet_has_page_set_up_and_a_run_sheet(tmp_path, command):
     wb = openpyxl.load_workbook(out)
     assert wb.sheetnames[0] == "run"
     for ws in wb.worksheets:
-        assert ws.sheet_properties.pageSetUpPr.fitToPage, ws.title   # one page wide
-        assert ws.page_setup.fitToWidth == 1, ws.title
+        assert ws.sheet_properties.pageSetUpPr.fitToPage, ws.title
+        assert ws.page_setup.fitToWidth == _pages_across(ws), ws.title
         # rows run on over pages; the expense summary (text and its two charts) fits on one page
         assert ws.page_setup.fitToHeight == (1 if (command, ws.title) == ("expense", "summary") else 0), ws.title
         assert ws.page_setup.orientation in ("landscape", "portrait"), ws.title
@@ -38,9 +39,17 @@ def test_every_sheet_has_page_set_up_and_a_run_sheet(tmp_path, command):
             assert ws.print_title_rows == "$1:$1", ws.title
 
 
+def _pages_across(ws):
+    """Pages wide expected from the written column widths: a table over 300 characters runs on (common practice)."""
+    if ws.freeze_panes != "A2":  # free-form sheets fit one page wide
+        return 1
+    total = sum(d.width * (d.max - d.min + 1) for d in ws.column_dimensions.values() if d.width)
+    return max(1, math.ceil(total / 300))
+
+
 def _assert_set_up(ws, table=True):
     assert ws.sheet_properties.pageSetUpPr.fitToPage, ws.title
-    assert ws.page_setup.fitToWidth == 1 and ws.page_setup.fitToHeight == 0, ws.title
+    assert ws.page_setup.fitToWidth == _pages_across(ws) and ws.page_setup.fitToHeight == 0, ws.title
     assert ws.page_setup.orientation in ("landscape", "portrait"), ws.title
     assert "grantval" in ws.oddFooter.left.text and "SHA-256" in ws.oddFooter.left.text, ws.title
     assert ws.oddFooter.right.text == "&A, page &P of &N", ws.title
@@ -102,3 +111,30 @@ def test_purchase_plan_price_line_is_formatted_as_a_price_not_a_count():
     sheet = purchase_plan_sheet(frame)
     assert sheet.rows[2] == ["Weighted-average purchase price", 17.0, None]
     assert sheet.row_formats[(1, 1)] == "#,##0" and sheet.row_formats[(2, 1)] == "#,##0.00"
+
+
+def _table(n_cols, width):
+    import pandas as pd
+
+    from grantval.io.xlsx.sheet import Sheet
+
+    cols = [f"c{j}" for j in range(n_cols)]
+    return Sheet("t", frame=pd.DataFrame([[1] * n_cols], columns=cols), widths={c: width for c in cols})
+
+
+@pytest.mark.parametrize(("n_cols", "width", "across"), [(10, 30, 1), (10, 31, 2), (25, 24, 2), (30, 30, 3)])
+def test_pages_wide_follows_the_column_widths(n_cols, width, across):
+    from grantval.io.xlsx.write import pages_wide
+
+    assert pages_wide(_table(n_cols, width)) == across  # 300 characters a page: 10 x 30 fits, 10 x 31 does not
+
+
+def test_a_table_wider_than_a_page_repeats_its_first_column(tmp_path):
+    from grantval.io.xlsx.write import write_workbook
+
+    out = tmp_path / "wide.xlsx"
+    write_workbook(out, [_table(12, 40), _table(5, 20)], footer="grantval test SHA-256 0")
+    wb = openpyxl.load_workbook(out)
+    wide, narrow = wb.worksheets[0], wb.worksheets[1]
+    assert wide.page_setup.fitToWidth == 2 and wide.print_title_cols == "$A:$A"
+    assert narrow.page_setup.fitToWidth == 1 and not narrow.print_title_cols

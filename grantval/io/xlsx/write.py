@@ -23,6 +23,11 @@ from grantval.io.xlsx.sheet import (
     label,
 )
 
+#: characters of column width one landscape A4 page holds at about 50% scale (common practice: an
+#: 11-point font printed at about 6 points, the smallest still read without a magnifier); a wider
+#: table prints over more pages
+PAGE_CHARACTERS = 300
+
 
 def _cell_value(v):
     if v is None:
@@ -51,11 +56,9 @@ def _frame_sheet(ws, sh: Sheet, index: int, big: dict) -> None:
     if len(cols) > EXCEL_COLUMNS:
         raise OutputError(f"the sheet {sh.name} would have {len(cols):,} columns, more than Excel's "
                           f"{EXCEL_COLUMNS:,}; use fewer periods (a longer --period) or --csv-dir")
-    widths = []
-    for j, c in enumerate(cols, start=1):
-        width = sh.widths.get(c, max(10, min(40, len(sh.labels.get(c, label(c))) + 2)))
+    widths = _frame_widths(sh)
+    for j, width in enumerate(widths, start=1):
         ws.column_dimensions[get_column_letter(j)].width = width
-        widths.append(width)
     height = _header_height([sh.labels.get(c, label(c)) for c in cols], widths)
     if height:
         ws.row_dimensions[1].height = height
@@ -161,19 +164,39 @@ def _cached_cells(sh: Sheet) -> dict[str, object]:
     return {f"{col_letter(j + 1)}{i + 1}": _cell_value(v) for (i, j), v in sh.cached.items()}
 
 
+def _frame_widths(sh: Sheet) -> list[float]:
+    """Width of each column of a table sheet, in characters (given, or its label's length within 10 to 40)."""
+    return [sh.widths.get(c, max(10, min(40, len(sh.labels.get(c, label(c))) + 2))) for c in sh.frame.columns]
+
+
+def pages_wide(sh: Sheet) -> int:
+    """Pages across that a sheet prints on: tables wider than a landscape page at a readable size run on.
+
+    A landscape A4 page holds about :data:`PAGE_CHARACTERS` characters of column width at the smallest
+    scale still easy to read; a wider table prints over more pages, its first column (the grant or
+    line it describes) repeated on each.  Free-form sheets always fit one page wide.
+    """
+    if sh.frame is None:
+        return 1
+    return max(1, math.ceil(sum(_frame_widths(sh)) / PAGE_CHARACTERS))
+
+
 def _page_setup(ws, sh: Sheet, footer: str) -> None:
-    """Print set-up: landscape where wide, one page wide, header row repeated, a footer with the run and pages."""
+    """Print set-up: landscape where wide, pages wide as needed, header row and first column repeated, a footer."""
     n_cols = len(sh.frame.columns) if sh.frame is not None else max((len(r) for r in sh.rows or [[]]), default=1)
     wide = n_cols > 6 or sh.rows is not None and n_cols > 3 or bool(sh.charts)  # a chart sits beside the table
     ws.page_setup.orientation = "landscape" if wide else "portrait"
     ws.page_setup.paperSize = "9"  # A4
-    ws.page_setup.fitToWidth = 1
+    across = pages_wide(sh)
+    ws.page_setup.fitToWidth = across
     ws.page_setup.fitToHeight = sh.fit_height
     ws.sheet_properties.pageSetUpPr.fitToPage = True
     ws.print_options.gridLines = sh.frame is not None and not sh.charts  # no grid printed around a chart
     ws.page_margins.left = ws.page_margins.right = 0.4
     if sh.frame is not None:
         ws.print_title_rows = "1:1"
+        if across > 1:
+            ws.print_title_cols = "A:A"
     ws.oddFooter.left.text = footer.replace("&", "&&")
     ws.oddFooter.left.size = 8
     ws.oddFooter.right.text = "&A, page &P of &N"
