@@ -138,3 +138,16 @@ def test_a_table_wider_than_a_page_repeats_its_first_column(tmp_path):
     wide, narrow = wb.worksheets[0], wb.worksheets[1]
     assert wide.page_setup.fitToWidth == 2 and wide.print_title_cols == "$A:$A"
     assert narrow.page_setup.fitToWidth == 1 and not narrow.print_title_cols
+
+
+def test_a_text_column_is_wide_enough_for_its_longest_id():
+    import pandas as pd
+
+    from grantval.io.xlsx.sheet import Sheet
+    from grantval.io.xlsx.write import _frame_widths
+
+    frame = pd.DataFrame({"grant_id": ["CV-ESPP-2026H1/H0042", "G-1", None], "units": [1, 2, 3]})
+    assert _frame_widths(Sheet("t", frame=frame, text_columns=("grant_id",))) == [22, 10]  # 20 characters + 2
+    assert _frame_widths(Sheet("t", frame=frame, text_columns=("grant_id",), widths={"grant_id": 12}))[0] == 12
+    long = pd.DataFrame({"grant_id": ["X" * 90]})
+    assert _frame_widths(Sheet("t", frame=long, text_columns=("grant_id",))) == [40]  # capped: wraps past 40

@@ -165,8 +165,23 @@ def _cached_cells(sh: Sheet) -> dict[str, object]:
 
 
 def _frame_widths(sh: Sheet) -> list[float]:
-    """Width of each column of a table sheet, in characters (given, or its label's length within 10 to 40)."""
-    return [sh.widths.get(c, max(10, min(40, len(sh.labels.get(c, label(c))) + 2))) for c in sh.frame.columns]
+    """Width of each column of a table sheet, in characters.
+
+    A width given in ``sh.widths`` is used as given; otherwise the label's length plus two, and for a
+    text column (ids and names from the ledger) at least its longest value plus two, within 10 to 40,
+    so that an id such as ``CV-ESPP-2026H1/H0042`` prints whole.
+    """
+    out = []
+    for c in sh.frame.columns:
+        if c in sh.widths:
+            out.append(sh.widths[c])
+            continue
+        want = len(sh.labels.get(c, label(c))) + 2
+        if c in sh.text_columns and len(sh.frame):
+            longest = sh.frame[c].dropna().astype(str).str.len().max()
+            want = max(want, int(longest) + 2 if longest == longest else 0)  # NaN when every value is blank
+        out.append(max(10, min(40, want)))
+    return out
 
 
 def pages_wide(sh: Sheet) -> int:
