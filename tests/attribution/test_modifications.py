@@ -487,6 +487,23 @@ def test_psu_modifications_are_refused_for_now(tmp_path):
     assert p and "not supported yet" in p[0].message
 
 
+def test_a_psu_quantity_increase_is_refused_once(tmp_path):
+    # the refusal of the award type is the only problem: the assumption set exists, so no second
+    # message may claim that valuation inputs are missing
+    from tests.factory import tables
+
+    t = tables(modifications=[_mod("G2", "2028-01-01", quantity="2000", assumption_set="m")])
+    t["assumptions"].append(_assumption("m", price="8", vol="0.4", rate="0.04"))
+    t["grants"][1].update(award_type="psu", condition_set="c")
+    for g in t["grants"]:
+        g.setdefault("condition_set", "")
+    t["performance"] = [{"condition_set": "c", "assessed_on": "2027-01-01", "payout": "1", "expected_vest_date": ""}]
+    with pytest.raises(LedgerError) as e:
+        load_ledger(write_ledger(tmp_path / "l", t))
+    p = [(p.row, p.column, p.message) for p in e.value.problems if p.source == "modifications.csv"]
+    assert len(p) == 1 and p[0][:2] == (2, "grant_id") and "not supported yet" in p[0][2], p
+
+
 def test_repricing_with_the_inputs_of_a_published_exercise(tmp_path):
     # inputs of "SBR Integrated Workbook", Example 4 (Modifications), as shown at
     # online.flipbuilder.com/bmcx/dlby page 143: 300,000 options to each of 20 managers, fair value 7,
