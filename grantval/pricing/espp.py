@@ -103,3 +103,76 @@ def _espp(s, t, r, sigma, q, d, lookback, fixed_shares):
     if not fixed_shares:
         value = value + d * np.where(s > 0, _bsm(s, strike, t, r, sigma, q, False), 0.0)
     return value
+
+
+def espp_reset_increment(
+    share_price,
+    start_price,
+    term,
+    rate,
+    volatility,
+    dividend_yield=0.0,
+    discount=0.15,
+    basis="fixed_shares",
+):
+    """Incremental value of resetting a look-back purchase right to today's lower share price.
+
+    A reset (a modification of the purchase right) replaces the reference price of the look-back,
+    the offering-start price ``S_0``, by the share price ``S`` on the reset date, ``S <= S_0``; the
+    purchase date is unchanged.  The increment is the value of the right referenced to ``S`` less
+    that of the right referenced to ``S_0``, both on the reset date (ASC 718-20-35-3).
+
+    Parameters
+    ----------
+    share_price : array_like
+        Share price ``S`` on the reset date, the new reference price, currency, > 0.
+    start_price : array_like
+        Offering-start share price ``S_0`` (the reference price before the reset), currency,
+        ``>= share_price``.
+    term : array_like
+        Years from the reset date to the purchase date, >= 0.
+    rate, volatility, dividend_yield : array_like
+        As :func:`espp_value`, on the reset date.
+    discount : array_like, optional
+        Purchase discount ``d``, from 0 up to but excluding 1.
+    basis : {"fixed_shares", "fixed_withholding"}
+        As :func:`espp_value`; under ``"fixed_shares"`` the number of shares stays that fixed at
+        the offering start.
+
+    Returns
+    -------
+    float or ndarray
+        Increment per share purchasable at the original start purchase price ``(1 - d) S_0``
+        (the unit of :func:`espp_value`), currency, >= 0.
+
+    Notes
+    -----
+    With ``c(K)`` and ``p(K)`` the Black-Scholes-Merton call and put on ``S`` struck at ``K``
+    over ``term`` (derivation in ``docs/purchase-plans.md``):
+
+    - fixed shares: ``(1 - d) [S_0 e^{-r t} - p(S_0) - S e^{-r t} + p(S)]``;
+    - fixed withholding: ``(S_0 / S) c(S) - c(S_0)``.
+    """
+    if basis not in BASES:
+        raise InputError(f"basis must be 'fixed_shares' or 'fixed_withholding'; got {basis!r}")
+    (s, s0, t, r, sigma, q, d), scalar = prepare(
+        share_price=(share_price, ((lambda a: a > 0, "greater than 0"),)),
+        start_price=(start_price, ((lambda a: a > 0, "greater than 0"),)),
+        term=(term, (NON_NEGATIVE,)),
+        rate=(rate, (FINITE,)),
+        volatility=(volatility, (NON_NEGATIVE,)),
+        dividend_yield=(dividend_yield, (NON_NEGATIVE,)),
+        discount=(discount, ((lambda a: (a >= 0) & (a < 1), "from 0 up to but excluding 1"),)),
+    )
+    if np.any(s > s0 * (1 + 1e-12)):
+        raise InputError("share_price must not exceed start_price: a reset lowers the look-back's reference price")
+    return finish(_reset_increment(s, s0, t, r, sigma, q, d, basis == "fixed_shares"), scalar)
+
+
+def _reset_increment(s, s0, t, r, sigma, q, d, fixed_shares):
+    """The reset increment on broadcast float arrays (no checks)."""
+    if fixed_shares:
+        owed = lambda k: k * np.exp(-r * t) - _bsm(s, k, t, r, sigma, q, False)  # noqa: E731
+        return (1.0 - d) * (owed(s0) - owed(s))
+    return (s0 / s) * _bsm(s, s, t, r, sigma, q, True) - _bsm(s, s0, t, r, sigma, q, True)
+

@@ -129,3 +129,81 @@ def test_orderings(s, t, r, vol, q, d):
     assert fixed <= varying + 1e-9 * s
     assert varying <= s * (np.exp(-q * t) + d * np.exp(-r * t)) * (1 + 1e-9)
     assert espp_value(s, t, r, vol * 1.1, q, d) >= fixed - 1e-9 * s
+
+
+# Resets of the look-back's reference price (a modification of each purchase right, ASC 718-20-35-3):
+# share price on the reset date, offering-start price, years to the purchase date, rate, volatility,
+# dividend yield, discount
+RESETS = [
+    (20.0, 25.0, 0.5, 0.04, 0.40, 0.0, 0.15),
+    (31.0, 48.0, 1.5, 0.02, 0.65, 0.01, 0.15),
+    (9.5, 10.0, 0.25, 0.05, 0.30, 0.03, 0.10),
+]
+
+
+@pytest.mark.parametrize("s, s0, t, r, vol, q, d", RESETS)
+def test_reset_increment_fixed_shares_against_quantlib(s, s0, t, r, vol, q, d):
+    # Fixed shares: the employee pays (1 - d) min(K, S_T) for a share worth S_T, whose value on the reset
+    # date is S e^{-qt} - (1 - d) (K e^{-rt} - p(K)); the increment is that at K = S less that at K = S_0
+    # (docs/purchase-plans.md). Reference: QuantLib blackFormula puts.
+    from grantval.pricing import espp_reset_increment
+
+    owed = lambda k: k * np.exp(-r * t) - ql_black("put", s, k, t, r, vol, q)  # noqa: E731
+    ref = (1 - d) * (owed(s0) - owed(s))
+    assert espp_reset_increment(s, s0, t, r, vol, q, d) == pytest.approx(ref, rel=1e-10)
+
+
+@pytest.mark.parametrize("s, s0, t, r, vol, q, d", RESETS)
+def test_reset_increment_fixed_withholding_against_quantlib(s, s0, t, r, vol, q, d):
+    # Fixed withholding W = (1 - d) S_0 per share counted: the right is worth
+    # W/(1 - d) (e^{-rt} + c(K)/K) - W e^{-rt}; increment (S_0/S) c(S) - c(S_0). Reference: QuantLib blackFormula.
+    from grantval.pricing import espp_reset_increment
+
+    ref = s0 / s * ql_black("call", s, s, t, r, vol, q) - ql_black("call", s, s0, t, r, vol, q)
+    got = espp_reset_increment(s, s0, t, r, vol, q, d, basis="fixed_withholding")
+    assert got == pytest.approx(ref, rel=1e-10)
+
+
+@pytest.mark.parametrize("basis", ["fixed_shares", "fixed_withholding"])
+def test_reset_increment_matches_the_plan_mechanics_by_simulation(basis):
+    # Independent of the formulas: from the reset date simulate S_T (exact lognormal), buy shares as the plan
+    # does with the reference price S (after) and S_0 (before), W = (1 - d) S_0; discounted mean of the
+    # difference in the employee's gain within 3 standard errors (common practice).
+    from grantval.pricing import espp_reset_increment
+
+    s, s0, t, r, vol, q, d = 20.0, 25.0, 0.5, 0.04, 0.4, 0.01, 0.15
+    z = np.random.default_rng(5).standard_normal(400_000)
+    z = np.concatenate([z, -z])
+    st = s * np.exp((r - q - 0.5 * vol**2) * t + vol * np.sqrt(t) * z)
+    withheld = (1 - d) * s0
+
+    def gain(k):
+        price = (1 - d) * np.minimum(k, st)
+        shares = 1.0 if basis == "fixed_shares" else withheld / price
+        return shares * (st - price)
+
+    diff = (np.exp(-r * t) * (gain(s) - gain(s0))).reshape(2, -1).mean(axis=0)
+    se = diff.std(ddof=1) / np.sqrt(diff.size)
+    assert abs(diff.mean() - espp_reset_increment(s, s0, t, r, vol, q, d, basis=basis)) <= 3 * se
+
+
+def test_reset_to_the_same_price_or_on_the_purchase_date_adds_nothing():
+    from grantval.pricing import espp_reset_increment
+
+    for basis in ("fixed_shares", "fixed_withholding"):
+        assert espp_reset_increment(25.0, 25.0, 0.5, 0.04, 0.4, basis=basis) == pytest.approx(0.0, abs=1e-12)
+        # on the purchase date the look-back already buys at (1 - d) S
+        assert espp_reset_increment(20.0, 25.0, 0.0, 0.04, 0.4, basis=basis) == pytest.approx(0.0, abs=1e-12)
+    got = espp_reset_increment(np.array([24.0, 20.0, 15.0]), 25.0, 0.5, 0.04, 0.4)
+    assert got.shape == (3,) and np.all(np.diff(got) > 0)  # the lower the new price, the larger the increment
+
+
+@pytest.mark.parametrize("kwargs, words", [({"share_price": 26.0}, "must not exceed start_price"),
+                                           ({"share_price": 0.0}, "share_price"), ({"discount": 1.0}, "discount"),
+                                           ({"basis": "shares"}, "basis"), ({"term": -1.0}, "term")])
+def test_reset_bad_inputs_are_named(kwargs, words):
+    from grantval.pricing import espp_reset_increment
+
+    args = {"share_price": 20.0, "start_price": 25.0, "term": 0.5, "rate": 0.04, "volatility": 0.4, **kwargs}
+    with pytest.raises(InputError, match=words):
+        espp_reset_increment(**args)
