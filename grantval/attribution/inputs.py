@@ -56,6 +56,8 @@ class ExpenseInputs:
     cost_hooks: list = field(default_factory=list)
     #: modifications of the ledger's awards (attribution.modifications.ModificationReport), None when none
     modifications: object = None
+    #: purchase-plan resets (attribution.espp_resets.ResetCosts), None when none
+    espp_resets: object = None
     #: service ends moved by modifications: ``(tranche, from_date, end_before)`` arrays; before
     #: ``from_date`` the tranche's service ended on ``end_before`` (what the forfeiture estimates use at
     #: dates before the modification); None when no modification moved one
@@ -239,6 +241,7 @@ def build_inputs(ledger: Ledger, fair_values: "FairValues", policy=None) -> Expe
 
     early = inception.start_service_at_inception(inp, ledger)  # before modifications measure anything
     _modify(ledger, fair_values, inp, policy)
+    _reset_purchase_plans(ledger, inp)
     inp.cost_hooks = [h for h in (b(ledger, fair_values, inp) for b in hook_builders()) if h is not None]
     if early.any():
         from grantval.policy import resolve_policy
@@ -249,6 +252,17 @@ def build_inputs(ledger: Ledger, fair_values: "FairValues", policy=None) -> Expe
 
     install_liability_hook(inp, ledger)
     return inp
+
+
+def _reset_purchase_plans(ledger: Ledger, inp: ExpenseInputs) -> None:
+    """Purchase-plan resets: their incremental cost layers (in place)."""
+    from grantval.attribution.espp_resets import reset_layers
+    from grantval.attribution.layers import append_layers
+
+    got = reset_layers(ledger, inp)
+    if got is not None and len(got.layers):
+        inp.espp_resets = got
+        inp.layers = append_layers(inp.layers, got.layers)
 
 
 def _modify(ledger: Ledger, fair_values, inp: ExpenseInputs, policy) -> None:

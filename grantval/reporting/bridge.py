@@ -140,7 +140,7 @@ def _service_ends_before(inp, day, end) -> np.ndarray:
 
 
 def _has_modifications(inp) -> bool:
-    return inp.modifications is not None
+    return inp.modifications is not None or getattr(inp, "espp_resets", None) is not None
 
 
 def _has_liabilities(inp) -> bool:

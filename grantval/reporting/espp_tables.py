@@ -207,3 +207,58 @@ def activity_sheet(frame: pd.DataFrame) -> Sheet:
                          "weighted_average_purchase_price": "Weighted-average price paid"},
                  widths={"line": 36, "shares": 10, "weighted_average_grant_date_fair_value": 29,
                          "weighted_average_purchase_price": 29})
+
+
+RESET_COLUMNS = ("offering_id", "reset_date", "purchase_date", "years_to_purchase", "reference_price_before",
+                 "reference_price_after", "volatility", "risk_free_rate", "dividend_yield", "increment_per_share",
+                 "shares", "incremental_cost")
+RESET_FORMATS = {
+    "years_to_purchase": "0.0000", "reference_price_before": "#,##0.0000", "reference_price_after": "#,##0.0000",
+    "volatility": "0.00%", "risk_free_rate": "0.000%", "dividend_yield": "0.00%", "increment_per_share": "#,##0.000000",
+    "shares": "#,##0", "incremental_cost": "#,##0.00",
+}
+
+
+def reset_table(inp) -> pd.DataFrame:
+    """One row per purchase-plan reset and purchase date it reaches: prices, inputs, increment and shares.
+
+    ``increment_per_share`` is the incremental value per share counted at the original start purchase
+    price (:mod:`grantval.attribution.espp_resets`); ``incremental_cost`` = increment x shares outstanding
+    on the reset date (before forfeiture estimates), currency.
+    """
+    rc = getattr(inp, "espp_resets", None)
+    if rc is None:
+        return pd.DataFrame(columns=list(RESET_COLUMNS))
+    r = rc.table
+    k = rc.reset_of_layer
+    vest = np.asarray(inp.t_vest, "datetime64[D]")[rc.layers.tranche]
+    rows = pd.DataFrame({"k": k, "purchase_date": vest, "increment_per_share": rc.layers.fair_value,
+                         "shares": rc.units, "incremental_cost": rc.layers.fair_value * rc.units})
+    out = rows.groupby(["k", "purchase_date"], sort=True).agg(
+        increment_per_share=("increment_per_share", "first"), shares=("shares", "sum"),
+        incremental_cost=("incremental_cost", "sum")).reset_index()
+    kk = out["k"].to_numpy()
+    out["offering_id"] = r["offering_id"].to_numpy(object)[kk]
+    out["reset_date"] = r["reset_date"].to_numpy("datetime64[D]")[kk]
+    out["years_to_purchase"] = (out["purchase_date"].to_numpy("datetime64[D]") - out["reset_date"].to_numpy(
+        "datetime64[D]")).astype(np.int64) / 365.25
+    out["reference_price_before"] = r["reference_before"].to_numpy(float)[kk]
+    out["reference_price_after"] = r["share_price"].to_numpy(float)[kk]
+    for c in ("volatility", "risk_free_rate", "dividend_yield"):
+        out[c] = r[c].to_numpy(float)[kk]
+    return out[list(RESET_COLUMNS)]
+
+
+def reset_sheet(table: pd.DataFrame) -> Sheet:
+    """The ``purchase_plan_resets`` worksheet, with a ``Total`` row of SUM formulas (shares, incremental cost)."""
+    cols, n = list(table.columns), len(table)
+    total = {c: None for c in cols}
+    total[cols[0]] = "Total"
+    for c in ("shares", "incremental_cost"):
+        letter = col_letter(cols.index(c) + 1)
+        total[c] = Formula(f"=SUM({letter}2:{letter}{n + 1})") if n else 0.0
+    frame = pd.concat([table.astype(object), pd.DataFrame([total], dtype=object)], ignore_index=True)
+    labels = {"reference_price_before": "Reference before", "reference_price_after": "Reference after",
+              "increment_per_share": "Increment per share"}
+    return Sheet("purchase_plan_resets", frame=frame, formats=RESET_FORMATS, labels=labels,
+                 text_columns=("offering_id",), widths={"offering_id": 14})

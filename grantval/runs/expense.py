@@ -133,6 +133,8 @@ def _espp_parts(run: ExpenseRun) -> tuple[list, list]:
         return [], []
     activity, (a, b) = E.purchase_plan_activity(run.ledger, run.fair_values, run.start, run.through)
     sheets = [E.espp_sheet(E.espp_table(run.ledger, run.fair_values, run.through)), E.activity_sheet(activity)]
+    if getattr(run.inputs, "espp_resets", None) is not None:
+        sheets.append(E.reset_sheet(E.reset_table(run.inputs)))
     check = CheckRow("Purchase-plan roll-forward: start + granted - reached - withdrawn - forfeited = end", a, b, 0,
                      a == b)
     return sheets, [check]

@@ -19,6 +19,13 @@ contributing and leaves the offering while still employed: a cancellation, so th
 purchase periods not yet reached is recognised at once; see ``docs/purchase-plans.md``) and
 ``purchase`` (shares bought, in ``quantity``, at ``share_price`` per share: recorded for the
 purchase-plan table, no change to cost).  A termination of employment is the core ``forfeit``.
+
+``espp_resets`` (optional): ``offering_id``, ``reset_date``, ``share_price`` (on the reset date: the
+new reference price of the look-back, below the one in force), ``volatility``, ``risk_free_rate``,
+``dividend_yield`` (on the reset date).  The purchase rights not yet reached look back to the new
+price from the reset date on: a modification whose incremental value
+(:func:`grantval.pricing.espp_reset_increment`) is a cost layer of each such purchase period, from
+the reset date to its purchase date (:mod:`grantval.attribution.espp_resets`).
 """
 
 from __future__ import annotations
@@ -52,6 +59,15 @@ ENROLLMENTS = (
     Column("holder_id", "text", required=True),
     Column("group", "text"),
     Column("withholding", "number", required=True),
+)
+
+RESETS = (
+    Column("offering_id", "text", required=True),
+    Column("reset_date", "date", required=True),
+    Column("share_price", "number", required=True),
+    Column("volatility", "number", required=True),
+    Column("risk_free_rate", "number", required=True),
+    Column("dividend_yield", "number", default=0.0),
 )
 
 EVENT_TYPES = ("withdraw", "purchase")
@@ -159,6 +175,62 @@ def _enrollment_problems(e: pd.DataFrame, o: pd.DataFrame, o_ok: np.ndarray, src
     return p, pos
 
 
+def reset_problems(r: pd.DataFrame, o: pd.DataFrame, dates: list, o_ok: np.ndarray, src: str,
+                   osrc: str) -> list[Problem]:
+    """Row checks of the resets: a known look-back offering, a date inside it, a lower price, valid inputs."""
+    from grantval.ledger.schema import RATE_MAX, RATE_MIN, VOLATILITY_MAX
+
+    p: list[Problem] = []
+    index = {k: i for i, k in enumerate(o["offering_id"]) if pd.notna(k)}
+    in_force: dict = {}  # offering -> (reference price in force, the reset that set it)
+    order = np.lexsort((r["reset_date"].to_numpy("datetime64[D]"), r["offering_id"].astype(str).to_numpy()))
+    seen: dict = {}
+    for i in order:
+        row, k, day = int(r["_row"].iat[i]), r["offering_id"].iat[i], r["reset_date"].iat[i]
+        price, vol = float(r["share_price"].iat[i]), float(r["volatility"].iat[i])
+        rate, q = float(r["risk_free_rate"].iat[i]), float(r["dividend_yield"].iat[i])
+        if pd.isna(k) or pd.isna(day) or np.isnan(price):
+            continue  # a blank required cell is reported by the reader
+        day = np.datetime64(day, "D")
+        j = index.get(k)
+        if j is None:
+            p.append(Problem(src, row, "offering_id", f"{k!r} is not an offering in {osrc}"))
+            continue
+        if not o_ok[j]:
+            continue  # the offering's own row is reported
+        if o["lookback"].iat[j] != "yes":
+            p.append(Problem(src, row, "offering_id", f"offering {k!r} has no look-back: a reset changes the "
+                             "look-back's reference price, and its purchase price already follows the share price"))
+            continue
+        if not np.isnan(float(o["max_shares"].iat[j])):
+            p.append(Problem(src, row, "offering_id", f"resets of an offering with max_shares ({k!r}) are not "
+                             "supported yet"))
+            continue
+        start = o["start_date"].to_numpy("datetime64[D]")[j]
+        if not start < day < dates[j][-1]:
+            p.append(Problem(src, row, "reset_date", f"{day} must be after the offering's start {start} and before "
+                             f"its last purchase date {dates[j][-1]}"))
+            continue
+        if (k, day) in seen:
+            p.append(Problem(src, row, "reset_date", f"offering {k!r} already resets on {day} (row {seen[k, day]})"))
+            continue
+        seen[k, day] = row
+        ref, by = in_force.get(k, (float(o["share_price"].iat[j]), "the start price"))
+        if not 0 < price < ref:
+            p.append(Problem(src, row, "share_price", f"a reset lowers the reference price: {price:g} must be above "
+                             f"0 and below {ref:g} ({by})"))
+            continue
+        in_force[k] = (price, f"the reset on {day}")
+        if not np.isnan(vol) and not 0 <= vol <= VOLATILITY_MAX:
+            p.append(Problem(src, row, "volatility", f"must be from 0 to {VOLATILITY_MAX:g} (a decimal); got {vol:g}"))
+        if not np.isnan(rate) and not RATE_MIN <= rate <= RATE_MAX:
+            p.append(Problem(src, row, "risk_free_rate", f"must be from {RATE_MIN:g} to {RATE_MAX:g} (a decimal); "
+                             f"got {rate:g}"))
+        if q < 0:
+            p.append(Problem(src, row, "dividend_yield", f"must be zero or more; got {q:g}"))
+    return p
+
+
 def _assumption_rows(o: pd.DataFrame) -> pd.DataFrame:
     """One assumptions row per offering: its start-date valuation inputs."""
     no_look = (o["lookback"] == "no").to_numpy()
@@ -194,6 +266,8 @@ def contribute(tables: dict, sources: dict) -> Contribution:
     p, dates, o_ok = _offering_problems(o, osrc)
     probs, pos = _enrollment_problems(e, o, o_ok, esrc, osrc)
     p += probs
+    if "espp_resets" in tables:
+        p += reset_problems(tables["espp_resets"], o, dates, o_ok, sources["espp_resets"], osrc)
     keep = np.flatnonzero(pos >= 0)
     op = pos[keep]
     n_per = np.array([len(dates[i]) for i in op], dtype=np.int64)
@@ -253,7 +327,7 @@ def check(parts: LedgerParts) -> list[Problem]:
 
 EXTENSION = Extension(
     feature="employee share purchase plans",
-    tables={"espp_offerings": OFFERINGS, "espp_enrollments": ENROLLMENTS},
+    tables={"espp_offerings": OFFERINGS, "espp_enrollments": ENROLLMENTS, "espp_resets": RESETS},
     event_types=EVENT_TYPES,
     text_columns=frozenset({"offering_id", "purchase_dates"}),
     check=check,
