@@ -30,21 +30,29 @@ def modification_section(inputs, ledger, start, through, out: FeatureSections) -
     letters from memory).  Check: the table's incremental cost = the per-modification rows
     (modifications and replacements tables) dated in the window, summed on their own.
     """
+    from grantval.reporting import espp_tables as E
     from grantval.reporting import modification_tables as M
 
-    report = getattr(inputs, "modifications", None)
-    if report is None:
+    report, resets = getattr(inputs, "modifications", None), getattr(inputs, "espp_resets", None)
+    if report is None and resets is None:
         return
     s, t = np.datetime64(start, "D"), np.datetime64(through, "D")
-    table = M.disclosure_table(report, ledger)
+    parts = [M.disclosure_table(report, ledger)] if report is not None else []
+    if resets is not None:  # purchase-plan resets are modifications too (grantval.attribution.espp_resets)
+        parts.append(E.reset_disclosure(inputs, ledger))
+    table = pd.concat([p for p in parts if len(p)], ignore_index=True) if any(len(p) for p in parts) else parts[0]
     d = pd.to_datetime(table["modification_date"]).to_numpy("datetime64[D]")
     table = table[(d >= s) & (d <= t)].reset_index(drop=True)
-    mods, rep = M.modification_table(report, ledger), M.replacement_table(report, ledger)
     total = 0.0
-    for frame, col in ((mods, "modification_date"), (rep, "replacement_date")):
+    frames = [(M.modification_table(report, ledger), "modification_date"),
+              (M.replacement_table(report, ledger), "replacement_date")] if report is not None else []
+    for frame, col in frames:
         if len(frame):
             dd = pd.to_datetime(frame[col]).to_numpy("datetime64[D]")
             total += float(frame["incremental_cost"].to_numpy(float)[(dd >= s) & (dd <= t)].sum())
+    if resets is not None:  # the per-reset totals of the attribution, summed on their own
+        rd = resets.table["reset_date"].to_numpy("datetime64[D]")
+        total += float(resets.incremental[(rd >= s) & (rd <= t)].sum())
     out.tables["modification_disclosure.csv"] = table
     a, b = round(float(table["incremental_cost"].sum()), 2), round(total, 2)
     out.checks.append(CheckRow("Modifications: disclosed incremental cost = sum of the modifications in the window",

@@ -262,3 +262,24 @@ def reset_sheet(table: pd.DataFrame) -> Sheet:
               "increment_per_share": "Increment per share"}
     return Sheet("purchase_plan_resets", frame=frame, formats=RESET_FORMATS, labels=labels,
                  text_columns=("offering_id",), widths={"offering_id": 14})
+
+
+def reset_disclosure(inp, ledger) -> pd.DataFrame:
+    """Resets by date in the shape of the modifications disclosure: enrollments, holders, shares, cost."""
+    cols = ["modification_date", "change", "grants", "holders_affected", "units_affected", "incremental_cost",
+            "fair_value_measured"]
+    rc = getattr(inp, "espp_resets", None)
+    if rc is None:
+        return pd.DataFrame(columns=cols)
+    grant = np.asarray(inp.t_grant, np.int64)[rc.layers.tranche]
+    rows = pd.DataFrame({
+        "modification_date": rc.table["reset_date"].to_numpy("datetime64[D]")[rc.reset_of_layer],
+        "change": "purchase-plan reset to a lower price",
+        "grant_id": ledger.grants["grant_id"].to_numpy(object)[grant],
+        "holder_id": ledger.grants["holder_id"].to_numpy(object)[grant],
+        "units": rc.units, "cost": rc.layers.fair_value * rc.units})
+    out = (rows.groupby(["modification_date", "change"], sort=True)
+           .agg(grants=("grant_id", "nunique"), holders_affected=("holder_id", "nunique"),
+                units_affected=("units", "sum"), incremental_cost=("cost", "sum")).reset_index())
+    out["fair_value_measured"] = "computed: look-back components on the reset date's inputs"
+    return out[cols]

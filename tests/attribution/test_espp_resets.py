@@ -183,3 +183,22 @@ def test_the_resets_sheet_ties_to_the_layers_and_its_total_recalculates(tmp_path
     (tmp_path / "lo").mkdir()
     got = openpyxl.load_workbook(recalculate(book, tmp_path / "lo"), data_only=True)["purchase_plan_resets"]
     assert got["K5"].value == 300 and got["L5"].value == pytest.approx(table["incremental_cost"].sum(), abs=1e-9)
+
+
+def test_the_disclosure_lists_resets_as_modifications_and_its_check_can_fail(tmp_path):
+    # ASC 718-10-50-2(h)(2) (incremental cost of modifications; paragraph letter from memory)
+    from grantval.reporting.disclosure_features import FeatureSections, modification_section
+
+    run = _run(tmp_path / "l", [reset(), reset("2028-01-01", "12")], basis="fixed_withholding",
+               dates="2027-07-01;2028-01-01;2028-07-01", withholding="5100", through="2028-09-30")
+    out = FeatureSections()
+    modification_section(run.inputs, run.ledger, "2027-01-01", "2027-12-31", out)
+    table = out.tables["modification_disclosure.csv"]
+    assert list(table["change"]) == ["purchase-plan reset to a lower price"]  # the 2028 reset is outside
+    assert table["units_affected"].tolist() == [200] and table["grants"].tolist() == [1]
+    assert table["incremental_cost"].iloc[0] == pytest.approx(run.inputs.espp_resets.incremental[0], rel=1e-12)
+    assert out.checks[0].tool_pass
+    run.inputs.espp_resets.incremental[0] += 0.02  # the per-reset total no longer matches the layers
+    bad = FeatureSections()
+    modification_section(run.inputs, run.ledger, "2027-01-01", "2027-12-31", bad)
+    assert not bad.checks[0].tool_pass
