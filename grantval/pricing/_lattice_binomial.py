@@ -13,7 +13,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from grantval.pricing._lattice_layers import exit_payoff, vesting_expectation
+from grantval.pricing._lattice_layers import exit_payoff, narrow_expectation, vesting_expectation
 from grantval.pricing.bsm import _bsm
 
 #: half-width, in standard deviations of log price, of the vesting-date layer
@@ -23,15 +23,18 @@ _COVER = 6.0
 _PRICE_LIMIT = 1e300
 
 
-def optimal_tree(s, k, t, r, sigma, q, v, lam, n_post):
+def optimal_tree(s, k, t, r, sigma, q, v, lam, n_post, narrow=None):
     """Grant-date value (before pre-vesting exits) of options exercised when optimal.
 
     1-D arrays, no checks; ``0 <= v < t``.  The lattice runs from the vesting
     date to expiry with step ``(t - v) / n_post``; its vesting-date layer is
     as wide as needed to cover the vesting-date share price, and the option
     value at the grant date is the discounted expectation over that layer
-    (:func:`~grantval.pricing._lattice_layers.vesting_expectation`).
+    (:func:`~grantval.pricing._lattice_layers.vesting_expectation`), or where ``narrow`` (a vesting-date
+    law narrower than the nodes) from a parabola through three nodes
+    (:func:`~grantval.pricing._lattice_layers.narrow_expectation`).
     """
+    narrow = np.zeros(len(s), dtype=bool) if narrow is None else narrow
     dt = (t - v) / n_post
     sq = sigma * np.sqrt(dt)
     drift = (r - q - 0.5 * sigma**2) * dt
@@ -45,7 +48,10 @@ def optimal_tree(s, k, t, r, sigma, q, v, lam, n_post):
 
     # index of the vesting-date layer: a virtual root that many steps earlier
     vests = v > 0
-    vest_layer = np.where(vests, np.ceil(_COVER * np.sqrt(v / dt)), 0.0).astype(np.int64)
+    # (at least layer 2: three nodes, for the parabola of a narrow vesting-date law)
+    vest_layer = np.maximum(np.ceil(_COVER * np.sqrt(v / dt)), 2.0)
+    vest_layer = np.where(narrow, 2.0 * np.ceil(vest_layer / 2.0), vest_layer)  # even: a node at the log mean
+    vest_layer = np.where(vests, vest_layer, 0.0).astype(np.int64)
     mu = np.log(s) + (r - q - 0.5 * sigma**2) * v  # log mean at vesting
     log_root = mu - vest_layer * drift
     last = vest_layer + n_post - 1  # layer valued with BSM over the final step
@@ -85,9 +91,12 @@ def optimal_tree(s, k, t, r, sigma, q, v, lam, n_post):
             if np.any(h):
                 sd = sigma[h] * np.sqrt(v[h])
                 fwd = s[h] * np.exp((r[h] - q[h]) * v[h])
-                result[h] = vesting_expectation(
-                    st[h], hold[h], after[h], k[h], np.ones(int(h.sum()), bool), mu[h], sd, fwd
-                ) * np.exp(-r[h] * v[h])
+                lin = vesting_expectation(st[h], hold[h], after[h], k[h], np.ones(int(h.sum()), bool), mu[h], sd,
+                                          fwd)
+                c = slice(j // 2 - 1, j // 2 + 2) if j % 2 == 0 else slice(j // 2, j // 2 + 3)  # nearest mu
+                smooth = np.all(hold[h][:, c] > st[h][:, c] - kcol[h], axis=1)  # no exercise among the three
+                par = narrow_expectation(st[h][:, c], after[h][:, c], mu[h], sd, narrow[h] & smooth)
+                result[h] = np.where(np.isnan(par), lin, par) * np.exp(-r[h] * v[h])
             result[here & ~vests] = after[here & ~vests, 0]
         if j > stop and from_logs:
             logs = log_root[:, None] + (j - 1) * drift[:, None] + (2 * nodes[:j] - (j - 1)) * sq[:, None]

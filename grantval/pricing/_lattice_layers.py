@@ -124,6 +124,47 @@ def vesting_expectation(stock, hold, after, k, optimal, mu, sd, fwd):
     return total + (top_v - top_s) * ndtr(-zt) + fwd * ndtr(sd - zt)
 
 
+#: a vesting-date law is narrow when its log standard deviation is below this many times
+#: ``sigma sqrt(dt)`` of the finer lattice: its vesting value is then taken from a parabola through
+#: three nodes instead of linear pieces, on both lattices of the extrapolation alike
+NARROW = 1.5
+
+
+def narrow_expectation(stock3, value3, mu, sd, use):
+    """Vesting-date expectation from a parabola in log price through three neighbouring nodes.
+
+    When the vesting-date law is narrower than the node spacing, linear pieces put a kink where
+    most of the probability lies (an error of about ``V'' h sd``, ``h`` the spacing); the parabola
+    through the node nearest the log mean and its two neighbours is exact to second order.  Its
+    expectation over the normal law ``N(mu, sd^2)`` of the log price is ``a + b m + c (m^2 + sd^2)``
+    with ``m`` = ``mu`` less the middle node's log price.
+
+    Parameters
+    ----------
+    stock3, value3 : ndarray, shape (n, 3)
+        Share prices (currency) and values (currency) at the three nodes, evenly spaced in log price.
+    mu, sd : ndarray
+        Log mean and log standard deviation of the vesting-date share price.
+    use : ndarray of bool
+        Where to apply it: a narrow law (:data:`NARROW`) and no kink among the three nodes (an
+        exercise), where the parabola does not apply.
+
+    Returns
+    -------
+    ndarray
+        The expectation, NaN where it is not used (``use`` False, or a value that is not finite).
+    """
+    usable = use & np.all(np.isfinite(value3), axis=1)
+    if not np.any(usable):
+        return np.full(len(sd), np.nan)
+    spacing = np.log(stock3[:, 2] / stock3[:, 1])
+    a = value3[:, 1]
+    b = (value3[:, 2] - value3[:, 0]) / (2.0 * spacing)
+    c = (value3[:, 2] - 2.0 * value3[:, 1] + value3[:, 0]) / (2.0 * spacing**2)
+    m = mu - np.log(stock3[:, 1])
+    return np.where(usable, a + b * m + c * (m**2 + sd**2), np.nan)
+
+
 def interpolate_at(values, u, top_level, centre):
     """Cubic Lagrange interpolation of node values at fractional level ``u``.
 

@@ -44,6 +44,7 @@ import numpy as np
 from grantval.errors import InputError
 from grantval.pricing._inputs import FINITE, NAN_ALLOWED, NON_NEGATIVE, POSITIVE, finish, prepare
 from grantval.pricing._lattice_binomial import optimal_tree
+from grantval.pricing._lattice_layers import NARROW
 from grantval.pricing._lattice_tree import barrier_tree
 from grantval.pricing.bsm import _bsm
 
@@ -78,12 +79,12 @@ def _post_steps(t, v, sigma, steps):
     return np.maximum(share, 2 * np.ceil(need / 2)).astype(np.int64)
 
 
-def _tree(s, k, t, r, sigma, q, v, barrier, optimal, lam, n_post):
+def _tree(s, k, t, r, sigma, q, v, barrier, optimal, lam, n_post, narrow):
     """Values on one lattice: binomial where exercise is optimal, trinomial with a barrier."""
     out = np.empty_like(s)
     if np.any(optimal):
         o = optimal
-        out[o] = optimal_tree(s[o], k[o], t[o], r[o], sigma[o], q[o], v[o], lam[o], n_post[o])
+        out[o] = optimal_tree(s[o], k[o], t[o], r[o], sigma[o], q[o], v[o], lam[o], n_post[o], narrow[o])
     if not np.all(optimal):
         b = ~optimal
         out[b] = barrier_tree(s[b], k[b], t[b], r[b], sigma[b], q[b], v[b], barrier[b], optimal[b], lam[b],
@@ -116,7 +117,10 @@ def _lattice(s, k, t, r, sigma, q, v, mult, lam, lam_pre, steps):
             n = n_post[start : start + _BLOCK]
             args = (s[idx], k[idx], t[idx], r[idx], sigma[idx], q[idx], v[idx],
                     barrier[idx], optimal[idx], lam[idx])
-            fine, coarse = _tree(*args, n), _tree(*args, n // 2)
+            # a vesting-date law narrower than the finer lattice's nodes: a parabola on both binomial lattices
+            # (the trinomial lattice of a barrier keeps linear pieces: its centre is moved onto the barrier)
+            narrow = (v[idx] > 0) & (np.sqrt(v[idx]) < NARROW * np.sqrt((t[idx] - v[idx]) / n))
+            fine, coarse = _tree(*args, n, narrow), _tree(*args, n // 2, narrow)
             out[idx] = (2.0 * fine - coarse) * np.exp(-lam_pre[idx] * v[idx])
     # the extrapolation can step outside the bounds the true value obeys
     low = np.where((v == 0) & (optimal | at_once), np.maximum(s - k, 0.0), 0.0)
