@@ -18,7 +18,9 @@ Run from the project root::
    growing grids; then 100 cases with vesting and exits against the
    semi-analytic continuous-barrier value (tests/pricing/barrier_reference.py).
 4. Accuracy per family (vesting window, exits with and without dividends,
-   multiple with and without exits): error / tolerance over 50 seeded cases.
+   multiple with and without exits): error / tolerance over 50 seeded cases;
+   and vesting periods of 1 to 7 days (dividends and exits) against the
+   finite-difference reference.
 """
 
 from __future__ import annotations
@@ -233,12 +235,34 @@ def bench_accuracy(lines: list[str]) -> None:
                      f"median {np.median(ratio):.3f}, over {int((ratio > 1).sum())}; {el * 1e3:.3f} ms/option")
 
 
+def bench_short_vesting(lines: list[str], n: int = 50) -> None:
+    """Error of the default lattice with vesting periods of 1 to 7 days (a law narrower than the nodes).
+
+    The cases of :func:`bench_accuracy` with the vesting period replaced by 1-7 days, exercise when
+    optimal, with dividends and exits.  Reference: the test-only finite-difference solver (4001 x 8000).
+    """
+    from tests.pricing.fd_reference import fd_value
+    from tests.pricing.test_lattice_multiple import _cases
+
+    s, k, t, _, r, vol, q, _, lam = (a[:n] for a in _cases(5, 50))
+    v = np.random.default_rng(3).integers(1, 8, s.size) / 365.25
+    t0 = time.perf_counter()
+    ours = lattice_value(s, k, t, r, vol, q, vesting=v, exit_rate=lam)
+    el = (time.perf_counter() - t0) / s.size
+    ref = np.array([fd_value(*a, None, x, 4001, 8000) for *a, x in zip(s, k, t, v, r, q, vol, lam)])
+    ratio = np.abs(ours - ref) / np.maximum(0.005, 2e-4 * np.abs(ref))
+    lines.append(f"accuracy short vesting, 1-7 days, dividends and exits ({s.size} cases): error / tolerance max "
+                 f"{ratio.max():.3f}, median {np.median(ratio):.3f}, over {int((ratio > 1).sum())}; "
+                 f"{el * 1e3:.3f} ms/option")
+
+
 def main() -> None:
     lines = [f"grantval valuation benchmark, {_dt.date.today().isoformat()}", describe()]
     bench_bsm(lines)
     bench_lattice(lines)
     bench_multiple(lines)
     bench_accuracy(lines)
+    bench_short_vesting(lines)
     write_results(RESULTS, lines)
 
 
