@@ -200,10 +200,13 @@ def modification_sheets(report, ledger, attribution: str = "graded") -> list:
     if len(mods):
         sheets.append(Sheet("modifications", frame=mods, formats=fmt, text_columns=text,
                             widths={"change": 30, "vesting_before": 26, "vesting_after": 26, "treatment": 60,
-                                    "attribution": 70}))
+                                    "attribution": 70, "fair_value_source": 30},
+                            wrap_text_columns=("change", "vesting_before", "vesting_after", "treatment",
+                                               "attribution", "fair_value_source")))
     rep = replacement_table(report, ledger)
     if len(rep):
-        sheets.append(Sheet("replacements", frame=rep, formats=fmt, text_columns=text, widths={"attribution": 70}))
+        sheets.append(Sheet("replacements", frame=rep, formats=fmt, text_columns=text, widths={"attribution": 70},
+                            wrap_text_columns=("attribution",)))
     sheets.append(Sheet("modification_disclosure", frame=disclosure_table(report, ledger), formats=fmt,
                         widths={"change": 30, "fair_value_measured": 40}))
     return sheets

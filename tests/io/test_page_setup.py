@@ -151,3 +151,23 @@ def test_a_text_column_is_wide_enough_for_its_longest_id():
     assert _frame_widths(Sheet("t", frame=frame, text_columns=("grant_id",), widths={"grant_id": 12}))[0] == 12
     long = pd.DataFrame({"grant_id": ["X" * 90]})
     assert _frame_widths(Sheet("t", frame=long, text_columns=("grant_id",))) == [40]  # capped: wraps past 40
+
+
+def test_wrapped_text_columns_make_the_row_tall_and_align_it_to_the_top(tmp_path):
+    import pandas as pd
+
+    from grantval.io.xlsx.sheet import Sheet
+    from grantval.io.xlsx.write import write_workbook
+
+    long = "0.00 on the modification date, the rest from 2026-01-01 to each tranche's vesting date (last 2028-01-01)"
+    frame = pd.DataFrame({"grant_id": ["R", "S"], "attribution": [long, "at once"], "cost": [1.5, 2.0]})
+    out = tmp_path / "w.xlsx"
+    write_workbook(out, [Sheet("t", frame=frame, text_columns=("grant_id",), widths={"attribution": 40},
+                               wrap_text_columns=("attribution",)),
+                         Sheet("u", frame=frame, widths={"attribution": 40})])
+    wb = openpyxl.load_workbook(out)
+    ws, plain = wb["t"], wb["u"]
+    assert ws["B2"].alignment.wrap_text and ws["A2"].alignment.vertical == "top"
+    assert ws.row_dimensions[2].height == 45.0  # 104 characters in 40 columns: three lines of 15 points
+    assert not ws.row_dimensions[3].height  # "at once" fits on one line
+    assert not plain["B2"].alignment.wrap_text and not plain.row_dimensions[2].height  # only where asked

@@ -127,6 +127,9 @@ class Sheet:
     fit_height: int = 0
     #: rows sheets: 1-based columns whose text wraps within the column width (rows made tall enough)
     wrap_columns: tuple[int, ...] = ()
+    #: table sheets: columns (names) whose long text wraps within the column width, rows made tall
+    #: enough (tables of at most ``FAST_ROWS`` rows; longer tables are written without wrapping)
+    wrap_text_columns: tuple[str, ...] = ()
     #: rows sheets: (row index, column index) -> what a formula cell there evaluates to, written as its
     #: cached value for readers that do not recalculate (see grantval.io.xlsx.cached)
     cached: dict = field(default_factory=dict)

@@ -79,14 +79,36 @@ def _frame_sheet(ws, sh: Sheet, index: int, big: dict) -> None:
     values = [_column_values(frame[c]) for c in cols]
     fmts = [sh.formats.get(c) for c in cols]
     texts = [c in sh.text_columns for c in cols]
-    for row in zip(*values):
+    wrap = [j for j, c in enumerate(cols) if c in sh.wrap_text_columns] if len(sh.frame) <= FAST_ROWS else []
+    for r, row in enumerate(zip(*values), start=2):
         total = any(isinstance(v, str) and v == "Total" for v in row)
         out = [_frame_cell(ws, v, fmt, is_text) for v, fmt, is_text in zip(row, fmts, texts)]
+        if wrap:
+            _wrap_cells(ws, out, row, wrap, widths, r)
         if total:  # a totals row: bold, with a rule above
             out = [c if hasattr(c, "font") else WriteOnlyCell(ws, value=c) for c in out]
             for c in out:
                 c.font, c.border = bold, top
         ws.append(out)
+
+
+def _wrap_cells(ws, out: list, row: tuple, wrap: list[int], widths: list[float], r: int) -> None:
+    """Wrap the text of columns ``wrap`` of table row ``r`` (in place) and make the row tall enough.
+
+    Every cell of the row is aligned to the top, so a grant id and its figures stand on the first line.
+    """
+    from openpyxl.cell import WriteOnlyCell
+    from openpyxl.styles import Alignment
+
+    wrapped, top = Alignment(wrap_text=True, vertical="top"), Alignment(vertical="top")
+    for j in range(len(out)):
+        if not hasattr(out[j], "alignment"):
+            out[j] = WriteOnlyCell(ws, value=out[j])
+        out[j].alignment = wrapped if j in wrap else top
+    texts = [(str(row[j]), widths[j]) for j in wrap if isinstance(row[j], str)]
+    height = _header_height([t for t, _ in texts], [w for _, w in texts], per_width=1.2)
+    if height:
+        ws.row_dimensions[r].height = height
 
 
 def _frame_cell(ws, v, fmt, is_text):
