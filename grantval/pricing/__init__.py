@@ -18,6 +18,7 @@ from grantval.pricing.montecarlo import (DEFAULT_PATHS, DEFAULT_SEED, MAX_PATHS,
 from grantval.pricing.terms import simplified_term
 
 __all__ = ["bsm_value", "bsm_sensitivities", "lattice_value", "simplified_term", "rsu_value", "DEFAULT_STEPS",
-           "espp_value", "espp_reset_increment", "simulate_market", "MarketSimulation", "market_award_value", "market_award_values",
+           "espp_value", "espp_reset_increment", "simulate_market", "MarketSimulation", "market_award_value",
+           "market_award_values",
            "metric_values", "derived_service_period", "MarketValue", "ServicePeriod", "PayoutCurve",
            "parse_payout_curve", "DEFAULT_PATHS", "DEFAULT_SEED", "MAX_PATHS"]

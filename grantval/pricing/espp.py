@@ -175,4 +175,3 @@ def _reset_increment(s, s0, t, r, sigma, q, d, fixed_shares):
         owed = lambda k: k * np.exp(-r * t) - _bsm(s, k, t, r, sigma, q, False)  # noqa: E731
         return (1.0 - d) * (owed(s0) - owed(s))
     return (s0 / s) * _bsm(s, s, t, r, sigma, q, True) - _bsm(s, s0, t, r, sigma, q, True)
-

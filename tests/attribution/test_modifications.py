@@ -471,16 +471,22 @@ def test_modification_after_every_unit_is_gone(tmp_path):
     assert p and p[0].row == 2 and p[0].column == "modification_date" and "has ended" in p[0].message
 
 
-def test_psu_modifications_are_refused_for_now(tmp_path):
+def _psu_tables(*mods):
+    """The factory ledger with G2 a performance unit, an assumption set ``m`` and the modifications ``mods``."""
     from tests.factory import tables
 
-    t = tables(modifications=[_mod("G1", "2028-01-01", exercise_price="8", assumption_set="m")])
+    t = tables(modifications=list(mods))
     t["assumptions"].append(_assumption("m", price="8", vol="0.4", rate="0.04"))
     t["grants"][1].update(award_type="psu", condition_set="c")
     for g in t["grants"]:
         g.setdefault("condition_set", "")
     t["performance"] = [{"condition_set": "c", "assessed_on": "2027-01-01", "payout": "1", "expected_vest_date": ""}]
-    t["modifications"].append(_mod("G2", "2028-01-01", accelerate="yes", assumption_set="m"))
+    return t
+
+
+def test_psu_modifications_are_refused_for_now(tmp_path):
+    t = _psu_tables(_mod("G1", "2028-01-01", exercise_price="8", assumption_set="m"),
+                    _mod("G2", "2028-01-01", accelerate="yes", assumption_set="m"))
     with pytest.raises(LedgerError) as e:
         load_ledger(write_ledger(tmp_path / "l", t))
     p = [p for p in e.value.problems if p.source == "modifications.csv" and p.row == 3]
@@ -490,14 +496,7 @@ def test_psu_modifications_are_refused_for_now(tmp_path):
 def test_a_psu_quantity_increase_is_refused_once(tmp_path):
     # the refusal of the award type is the only problem: the assumption set exists, so no second
     # message may claim that valuation inputs are missing
-    from tests.factory import tables
-
-    t = tables(modifications=[_mod("G2", "2028-01-01", quantity="2000", assumption_set="m")])
-    t["assumptions"].append(_assumption("m", price="8", vol="0.4", rate="0.04"))
-    t["grants"][1].update(award_type="psu", condition_set="c")
-    for g in t["grants"]:
-        g.setdefault("condition_set", "")
-    t["performance"] = [{"condition_set": "c", "assessed_on": "2027-01-01", "payout": "1", "expected_vest_date": ""}]
+    t = _psu_tables(_mod("G2", "2028-01-01", quantity="2000", assumption_set="m"))
     with pytest.raises(LedgerError) as e:
         load_ledger(write_ledger(tmp_path / "l", t))
     p = [(p.row, p.column, p.message) for p in e.value.problems if p.source == "modifications.csv"]

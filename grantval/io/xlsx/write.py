@@ -45,7 +45,7 @@ def _cell_value(v):
     return v
 
 
-def _frame_sheet(ws, sh: Sheet, index: int, big: dict) -> None:
+def _frame_sheet(ws, sh: Sheet, index: int, big: dict, widths: list[float]) -> None:
     """A table sheet: widths, frozen and filtered header, then the rows (long tables finished by bigsheet)."""
     from openpyxl.cell import WriteOnlyCell
     from openpyxl.styles import Alignment, Border, Font, Side
@@ -56,7 +56,6 @@ def _frame_sheet(ws, sh: Sheet, index: int, big: dict) -> None:
     if len(cols) > EXCEL_COLUMNS:
         raise OutputError(f"the sheet {sh.name} would have {len(cols):,} columns, more than Excel's "
                           f"{EXCEL_COLUMNS:,}; use fewer periods (a longer --period) or --csv-dir")
-    widths = _frame_widths(sh)
     for j, width in enumerate(widths, start=1):
         ws.column_dimensions[get_column_letter(j)].width = width
     height = _header_height([sh.labels.get(c, label(c)) for c in cols], widths)
@@ -206,25 +205,26 @@ def _frame_widths(sh: Sheet) -> list[float]:
     return out
 
 
-def pages_wide(sh: Sheet) -> int:
+def pages_wide(sh: Sheet, widths: list[float] | None = None) -> int:
     """Pages across that a sheet prints on: tables wider than a landscape page at a readable size run on.
 
     A landscape A4 page holds about :data:`PAGE_CHARACTERS` characters of column width at the smallest
     scale still easy to read; a wider table prints over more pages, its first column (the grant or
-    line it describes) repeated on each.  Free-form sheets always fit one page wide.
+    line it describes) repeated on each.  Free-form sheets always fit one page wide.  ``widths``: the
+    sheet's column widths when already computed (:func:`_frame_widths`).
     """
     if sh.frame is None:
         return 1
-    return max(1, math.ceil(sum(_frame_widths(sh)) / PAGE_CHARACTERS))
+    return max(1, math.ceil(sum(_frame_widths(sh) if widths is None else widths) / PAGE_CHARACTERS))
 
 
-def _page_setup(ws, sh: Sheet, footer: str) -> None:
+def _page_setup(ws, sh: Sheet, footer: str, widths: list[float] | None) -> None:
     """Print set-up: landscape where wide, pages wide as needed, header row and first column repeated, a footer."""
     n_cols = len(sh.frame.columns) if sh.frame is not None else max((len(r) for r in sh.rows or [[]]), default=1)
     wide = n_cols > 6 or sh.rows is not None and n_cols > 3 or bool(sh.charts)  # a chart sits beside the table
     ws.page_setup.orientation = "landscape" if wide else "portrait"
     ws.page_setup.paperSize = "9"  # A4
-    across = pages_wide(sh)
+    across = pages_wide(sh, widths)
     ws.page_setup.fitToWidth = across
     ws.page_setup.fitToHeight = sh.fit_height
     ws.sheet_properties.pageSetUpPr.fitToPage = True
@@ -274,9 +274,10 @@ def write_workbook(path: pathlib.Path, sheets: Sequence[Sheet], fixed_time: _dt.
     cached: dict[str, dict] = {}
     for index, sh in enumerate(_split_long(sheets)):
         ws = wb.create_sheet(sh.name)
-        _page_setup(ws, sh, footer or f"grantval {__version__}")  # before the rows: the sheet's head is streamed first
+        widths = _frame_widths(sh) if sh.frame is not None else None  # one pass over the text columns
+        _page_setup(ws, sh, footer or f"grantval {__version__}", widths)  # before the rows: the head is streamed first
         if sh.frame is not None:
-            _frame_sheet(ws, sh, index, big)
+            _frame_sheet(ws, sh, index, big, widths)
         if sh.rows is not None:
             _rows_sheet(ws, sh)
             if sh.cached:

@@ -127,10 +127,22 @@ def _offering_problems(o: pd.DataFrame, src: str) -> tuple[list[Problem], list, 
     return p, dates, ok
 
 
-def _value_checks(o: pd.DataFrame, i: int, bad, ok: np.ndarray) -> None:
-    """Share price, volatility, rate, yield and cap of offering row ``i``."""
+def _input_problems(vol: float, rate: float, q: float) -> list[tuple[str, str]]:
+    """(column, message) for a volatility, rate or dividend yield out of range (NaN: blank, not checked here)."""
     from grantval.ledger.schema import RATE_MAX, RATE_MIN, VOLATILITY_MAX
 
+    out = []
+    if not np.isnan(vol) and not 0 <= vol <= VOLATILITY_MAX:
+        out.append(("volatility", f"must be from 0 to {VOLATILITY_MAX:g} (a decimal: 0.3 is 30%); got {vol:g}"))
+    if not np.isnan(rate) and not RATE_MIN <= rate <= RATE_MAX:
+        out.append(("risk_free_rate", f"must be from {RATE_MIN:g} to {RATE_MAX:g} (a decimal); got {rate:g}"))
+    if not np.isnan(q) and q < 0:
+        out.append(("dividend_yield", f"must be zero or more; got {q:g}"))
+    return out
+
+
+def _value_checks(o: pd.DataFrame, i: int, bad, ok: np.ndarray) -> None:
+    """Share price, volatility, rate, yield and cap of offering row ``i``."""
     price, vol = float(o["share_price"].iat[i]), float(o["volatility"].iat[i])
     rate, q, cap = float(o["risk_free_rate"].iat[i]), float(o["dividend_yield"].iat[i]), float(o["max_shares"].iat[i])
     if np.isnan(price) or np.isnan(rate):
@@ -139,12 +151,8 @@ def _value_checks(o: pd.DataFrame, i: int, bad, ok: np.ndarray) -> None:
         bad(i, "share_price", f"must be above zero; got {price:g}")
     if o["lookback"].iat[i] == "yes" and np.isnan(vol):
         bad(i, "volatility", "is required for an offering with a look-back (the look-back is an option)")
-    if not np.isnan(vol) and not 0 <= vol <= VOLATILITY_MAX:
-        bad(i, "volatility", f"must be from 0 to {VOLATILITY_MAX:g} (a decimal: 0.3 is 30%); got {vol:g}")
-    if not np.isnan(rate) and not RATE_MIN <= rate <= RATE_MAX:
-        bad(i, "risk_free_rate", f"must be from {RATE_MIN:g} to {RATE_MAX:g} (a decimal); got {rate:g}")
-    if not np.isnan(q) and q < 0:
-        bad(i, "dividend_yield", f"must be zero or more; got {q:g}")
+    for col, msg in _input_problems(vol, rate, q):
+        bad(i, col, msg)
     if not np.isnan(cap) and cap < 1:
         bad(i, "max_shares", f"must be a positive whole number; got {cap:g}")
 
@@ -178,8 +186,6 @@ def _enrollment_problems(e: pd.DataFrame, o: pd.DataFrame, o_ok: np.ndarray, src
 def reset_problems(r: pd.DataFrame, o: pd.DataFrame, dates: list, o_ok: np.ndarray, src: str,
                    osrc: str) -> list[Problem]:
     """Row checks of the resets: a known look-back offering, a date inside it, a lower price, valid inputs."""
-    from grantval.ledger.schema import RATE_MAX, RATE_MIN, VOLATILITY_MAX
-
     p: list[Problem] = []
     index = {k: i for i, k in enumerate(o["offering_id"]) if pd.notna(k)}
     in_force: dict = {}  # offering -> (reference price in force, the reset that set it)
@@ -221,13 +227,7 @@ def reset_problems(r: pd.DataFrame, o: pd.DataFrame, dates: list, o_ok: np.ndarr
                              f"0 and below {ref:g} ({by})"))
             continue
         in_force[k] = (price, f"the reset on {day}")
-        if not np.isnan(vol) and not 0 <= vol <= VOLATILITY_MAX:
-            p.append(Problem(src, row, "volatility", f"must be from 0 to {VOLATILITY_MAX:g} (a decimal); got {vol:g}"))
-        if not np.isnan(rate) and not RATE_MIN <= rate <= RATE_MAX:
-            p.append(Problem(src, row, "risk_free_rate", f"must be from {RATE_MIN:g} to {RATE_MAX:g} (a decimal); "
-                             f"got {rate:g}"))
-        if q < 0:
-            p.append(Problem(src, row, "dividend_yield", f"must be zero or more; got {q:g}"))
+        p += [Problem(src, row, col, msg) for col, msg in _input_problems(vol, rate, q)]
     return p
 
 

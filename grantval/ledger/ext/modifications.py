@@ -429,10 +429,10 @@ def _reductions(t: Terms, new_qty: np.ndarray, live: np.ndarray, src: str, rows:
     added = _added_units(grants)
     for i in np.flatnonzero(~np.isnan(new_qty) & (new_qty >= 0)):  # a negative quantity is reported by the checks
         if new_qty[i] > live[i] and live[i] > 0:
-            kid = child_id(grants["grant_id"].iat[t.gp[i]], t.date[i])
-            got = added.get(kid)
             if grants["award_type"].iat[t.gp[i]] not in ("option", "rsu"):
                 continue  # the award type is refused on its own (_kind_problems): nothing more to say
+            kid = child_id(grants["grant_id"].iat[t.gp[i]], t.date[i])
+            got = added.get(kid)
             if got is None:
                 p.append(Problem(src, int(rows[i]), "quantity", f"the {int(new_qty[i] - live[i])} units added need "
                                  "valuation inputs on the modification date: an assumption_set of the assumptions "
