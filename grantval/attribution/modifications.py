@@ -63,7 +63,9 @@ def _layer_rows(values, t_fv_so_far: np.ndarray, standard: str):
     type3 = (standard == "asc718") & not_expected & (values.vest_after < values.vest_before) & unvested
     per_unit = np.where(type3, values.after, np.maximum(inc, 0.0))
     reverse = np.where(type3, t_fv_so_far, 0.0)
-    words = np.where(inc > 0, "incremental value added", "decrease in fair value ignored (no incremental)")
+    words = np.where(inc > 0, "incremental value added",
+                     np.where(inc < 0, "decrease in fair value ignored (no incremental)",
+                              "no change in fair value (no incremental)"))
     later = unvested & (values.vest_after > values.vest_before)
     earlier = unvested & (values.vest_after < values.vest_before) & (values.vest_after > t.date[p])
     if standard == "asc718":

@@ -78,9 +78,10 @@ def _max_by(p, dates, n):
 def _treatments(report) -> list[str]:
     v, c = report.values, report.costs
     out = [[] for _ in range(len(v.terms.gp))]
-    for i, lab in zip(v.p_mod, c.treatment):
-        if lab not in out[i]:
-            out[i].append(lab)
+    for i, lab in zip(v.p_mod, c.treatment):  # clauses of the tranches' labels, each once, in order
+        for clause in str(lab).split("; "):
+            if clause not in out[i]:
+                out[i].append(clause)
     return ["; ".join(x) for x in out]
 
 

@@ -492,3 +492,72 @@ def test_exercisable_options_follow_a_shortened_schedule(tmp_path):
     run = api.disclose(folder, start="2026-01-01", through="2026-12-31")
     lines = run.disclosure.options.set_index("line")["number"]
     assert lines["Exercisable at end"] == 600
+
+
+def split_schedule(folder):
+    # invented: 1,000 options granted 2025-01-01, fair value 12, four annual tranches of 250
+    # (2026-01-01 ... 2029-01-01). On 2025-07-01 the schedule becomes 36 months every 12: 333 / 333 / 334
+    # on 2026-01-01, 2027-01-01, 2028-01-01. Units in vesting order: tranche 2 (251-500) is cut into 83
+    # units moving to 2026-01-01 and 167 keeping 2027-01-01; tranche 3 (501-750) into 166 moving to
+    # 2027-01-01 and 84 keeping 2028-01-01; tranche 4 moves to 2028-01-01. Values before = after.
+    grants = [{**OPTION, "grant_id": "S", "grant_date": "2025-01-01", "quantity": "1000", "vest_months": "48",
+               "vest_every_months": "12"}]
+    return write_ledger(folder, {"grants": grants, "assumptions": [_assumption("g", fair_value="12")],
+                                 "modifications": [_mod("S", "2025-07-01", vest_months="36", fair_value_before="5",
+                                                        fair_value_after="5")]})
+
+
+def test_a_split_tranche_asc718_recognises_each_piece_prospectively(tmp_path):
+    # PwC SC 4.2 step 3, piece by piece: cost to the modification date F (d - s)/(E - s) as granted,
+    # the rest F (E - d)/(E - s) over d..V (the piece's new vesting date); pieces that keep their date
+    # are as granted. s = 2025-01-01, d = 2025-07-01 (181 days on), year-end served days t + 1 - s.
+    led, _, inp, s = run(split_schedule(tmp_path / "l"), "2028-12-31", standard="asc718", attribution="graded")
+    assert led.tranches["quantity"].tolist() == [250, 83, 167, 166, 84, 250]
+    g, d = "2025-01-01", "2025-07-01"
+
+    def moved(f, e, v, t):  # cumulative at year-end t of a piece moving from E = e to V = v
+        before = f * days(g, d) / days(g, e)
+        return before + (f - before) * min(1.0, days(d, t) / days(d, v))
+
+    y = ["2026-01-01", "2027-01-01", "2028-01-01", "2029-01-01"]  # day after each year-end
+    expect = [250 * 12 * min(1.0, days(g, t) / days(g, "2026-01-01"))
+              + moved(83 * 12, "2027-01-01", "2026-01-01", t)
+              + 167 * 12 * min(1.0, days(g, t) / days(g, "2027-01-01"))
+              + moved(166 * 12, "2028-01-01", "2027-01-01", t)
+              + 84 * 12 * min(1.0, days(g, t) / days(g, "2028-01-01"))
+              + moved(250 * 12, "2029-01-01", "2028-01-01", t) for t in y]
+    assert expect[-2:] == [12_000, 12_000]
+    assert np.abs(s.cumulative_cents[0] - np.round(np.array(expect) * 100)).max() <= 1
+    assert [str(x) for x in inp.t_vest] == ["2026-01-01", "2026-01-01", "2027-01-01", "2027-01-01", "2028-01-01",
+                                            "2028-01-01"]
+
+
+def test_a_split_tranche_ifrs2_takes_the_shorter_period_into_account(tmp_path):
+    # IFRS 2 B43(c) with the catch-up of IFRS 2.20 (from memory): each piece's grant-date value over
+    # s..V, its new vesting date (pieces keeping their date: as granted)
+    _, _, _, s = run(split_schedule(tmp_path / "l"), "2028-12-31", standard="ifrs2")
+    g = "2025-01-01"
+    pieces = [(250, "2026-01-01"), (83, "2026-01-01"), (167, "2027-01-01"), (166, "2027-01-01"),
+              (84, "2028-01-01"), (250, "2028-01-01")]
+    expect = [sum(q * 12 * min(1.0, days(g, t) / days(g, v)) for q, v in pieces)
+              for t in ("2026-01-01", "2027-01-01", "2028-01-01", "2029-01-01")]
+    assert np.abs(s.cumulative_cents[0] - np.round(np.array(expect) * 100)).max() <= 1
+
+
+def test_a_split_tranche_costs_the_same_before_the_modification(tmp_path):
+    # cut from the grant date, the pieces carry the whole tranche's cost until the modification date
+    folder = split_schedule(tmp_path / "l")
+    _, _, _, cut = run(folder, "2025-06-30", standard="asc718", attribution="graded")
+    (folder / "modifications.csv").unlink()
+    _, _, _, plain = run(folder, "2025-06-30", standard="asc718", attribution="graded")
+    assert cut.cumulative_cents[0].tolist() == plain.cumulative_cents[0].tolist()
+
+
+def test_the_treatment_names_each_clause_once(tmp_path):
+    # tranches with and without a moved date share the Type I clause: it is written once; equal values
+    # before and after are not called a decrease
+    led, _, inp, _ = run(split_schedule(tmp_path / "l"), "2028-12-31", standard="asc718", attribution="graded")
+    row = modification_table(inp.modifications, led).iloc[0]
+    assert row["treatment"] == ("Type I (probable to probable): no change in fair value (no incremental); original "
+                                "cost not yet recognised spread over the new, shorter period")
+    assert row["units_before"] == 1000 and row["units_accelerated"] == 83 + 166 + 250  # vesting earlier

@@ -279,10 +279,6 @@ BAD = [
      "not a multiple of vest_every_months (12, in force)"),
     (_mod("G1", "2028-01-01", cliff_months="60", assumption_set="m"), "cliff_months", "must be from 0 to"),
     (_mod("G1", "2028-01-01", vest_every_months="0", assumption_set="m"), "vest_every_months", "at least 1"),
-    # 1,000 units over 36 months every 12: 333 / 333 / 334 (units 1-333 on 2028-01-01, 334-666 on
-    # 2029-01-01); tranche 2 holds units 251-500: 251-333 on 2028-01-01 and 334-500 on 2029-01-01
-    (_mod("G1", "2027-06-01", vest_months="36", assumption_set="m"), "vest_months",
-     "would vest the 250 units of tranche 2 on two dates (2028-01-01 and 2029-01-01)"),
     (_mod("G1", "2028-01-01", quantity="-5", assumption_set="m"), "quantity", "must be zero or more"),
     (_mod("G2", "2028-01-01", exercise_price="8", assumption_set="m"), "exercise_price", "only options"),
     (_mod("G9", "2028-01-01", exercise_price="8", assumption_set="m"), "grant_id", "not a grant"),

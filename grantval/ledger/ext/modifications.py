@@ -17,8 +17,9 @@ Terms in force (used to allocate events, see :func:`adjust`):
   schedule from the grant's ``vest_start_date`` for the grant's quantity, generated like the grant's
   own (:func:`grantval.ledger.schedule.generate_tranches`); each tranche not vested on the modification
   date takes the new vesting date of its units (units in vesting order), on the modification date at
-  the earliest; a tranche whose units would vest on two dates under the new schedule is refused
-  (the ledger keeps tranches whole); tranches vested by then are unchanged;
+  the earliest; a tranche whose units would vest on two dates under the new schedule is cut into
+  pieces from the grant date on (:mod:`grantval.ledger.ext.tranche_split`); tranches vested by then
+  are unchanged;
 - ``quantity`` is the number of units outstanding after the modification (exercised, expired,
   forfeited and cancelled units not counted); a smaller number cancels the difference on the
   modification date, latest-vesting units first, like a ``cancel`` event (IFRS 2 B44(b): a partial
@@ -388,7 +389,7 @@ def _ended(parts: LedgerParts, t: Terms, live: np.ndarray, src: str, rows: np.nd
 
 
 def _schedule_problems(t: Terms, v: Vesting, tranches: pd.DataFrame, src: str, rows: np.ndarray) -> list[Problem]:
-    """A new schedule that is not one (as the grants table's checks), or that would split a tranche."""
+    """A new schedule that is not one (as the grants table's checks), or a tranche still split after cutting."""
     p: list[Problem] = []
     months, every, cliff = (t.schedule_after[:, k] for k in range(3))
     bad = np.zeros(len(t.gp), dtype=bool)
@@ -416,8 +417,8 @@ def _schedule_problems(t: Terms, v: Vesting, tranches: pd.DataFrame, src: str, r
         sched = ", ".join(f"{c} {int(t.schedule_after[i, k])}" for k, c in enumerate(SCHEDULE))
         p.append(Problem(src, int(rows[i]), "vest_months", f"the new schedule ({sched}) would vest the "
                          f"{qty[tr]} units of tranche {int(number[tr])} on two dates ({v.scheduled_first[j]} and "
-                         f"{v.scheduled[j]}); the ledger keeps a tranche whole: choose a schedule whose vesting "
-                         "dates fall between tranches, or cancel the grant and replace it"))
+                         f"{v.scheduled[j]}) after the tranche was cut at this and the grant's other new schedules "
+                         "(too many schedule changes of one grant): cancel the grant and replace it"))
     return p
 
 
@@ -560,7 +561,14 @@ EXTENSION = Extension(
     check=check,
     adjust=adjust,
     contribute=lambda tables, sources: _contribute(tables, sources),
+    vest_dates=lambda grants, tables, tranches: _split_tranches(grants, tables, tranches),
 )
+
+
+def _split_tranches(grants: pd.DataFrame, tables: dict, tranches: pd.DataFrame) -> pd.DataFrame:
+    from grantval.ledger.ext.tranche_split import split_tranches
+
+    return split_tranches(grants, tables, tranches)
 
 
 def _contribute(tables: dict, sources: dict):

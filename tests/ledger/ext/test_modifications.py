@@ -92,7 +92,46 @@ def test_child_id():
     assert child_id("G1", np.datetime64("2026-01-01")) == "G1+2026-01-01"
 
 
-def test_split_schedule_is_refused_on_the_row(tmp_path):
+def test_a_schedule_that_splits_a_tranche_cuts_it_from_the_grant_date(tmp_path):
+    # 1,200 units over 12 months with a 6-month cliff: one tranche of 600 on 2025-07-01, then 100 a
+    # month. Removing the cliff on 2025-01-15 puts units 1-100 on 2025-02-01 ... 501-600 on
+    # 2025-07-01: the cliff tranche is cut into six pieces of 100, each vesting 2025-07-01 as granted
+    # (so the grant-date cost is the tranche's) and on its own monthly date from the modification on
+    grants = [{**OPTION, "grant_id": "A", "grant_date": "2025-01-01", "quantity": "1200", "vest_months": "12",
+               "vest_every_months": "1", "cliff_months": "6"}]
+    folder = write_ledger(tmp_path / "l", {
+        "grants": grants, "assumptions": [_assumption("g", fair_value="3")],
+        "modifications": [_mod("A", "2025-01-15", cliff_months="0", fair_value_before="1", fair_value_after="1")]})
+    led = load_ledger(folder)
+    tr = led.tranches
+    assert tr["quantity"].tolist() == [100] * 12 and tr["tranche"].tolist() == list(range(1, 13))
+    assert [str(d) for d in tr["vest_date"].to_numpy("datetime64[D]")[:6]] == ["2025-07-01"] * 6
+    from grantval.ledger.ext.modifications import vest_in_force
+
+    final = vest_in_force(tr, led.grants, led.tables["modifications"])
+    assert [str(d) for d in final] == [f"2025-{m:02d}-01" for m in range(2, 13)] + ["2026-01-01"]
+
+
+def test_a_tranche_vested_before_the_change_is_not_cut(tmp_path):
+    # four annual tranches of 250 from 2025-01-01; on 2026-06-01 the schedule becomes 36 months every 12
+    # (333 / 333 / 334 on 2026-01-01, 2027-01-01, 2028-01-01). Tranche 1 (vested 2026-01-01) stays whole;
+    # tranche 2 (units 251-500): 251-333 would vest 2026-01-01, past, so on the modification date, and
+    # 334-500 on 2027-01-01: cut 83 / 167; tranche 3 (501-750): 501-666 on 2027-01-01, 667-750 on
+    # 2028-01-01: cut 166 / 84; tranche 4 (751-1000) on 2028-01-01 whole
+    grants = [{**OPTION, "grant_id": "A", "grant_date": "2025-01-01", "quantity": "1000", "vest_months": "48",
+               "vest_every_months": "12"}]
+    folder = write_ledger(tmp_path / "l", {
+        "grants": grants, "assumptions": [_assumption("g", fair_value="3")],
+        "modifications": [_mod("A", "2026-06-01", vest_months="36", fair_value_before="1", fair_value_after="1")]})
+    led = load_ledger(folder)
+    assert led.tranches["quantity"].tolist() == [250, 83, 167, 166, 84, 250]
+
+
+def test_a_tranche_left_split_is_reported_on_the_row(tmp_path, monkeypatch):
+    # the guard behind the cut: with no cutting pass allowed, the split tranche is reported
+    from grantval.ledger.ext import tranche_split
+
+    monkeypatch.setattr(tranche_split, "PASSES", 0)
     grants = [{**OPTION, "grant_id": "A", "grant_date": "2025-01-01", "quantity": "1200", "vest_months": "12",
                "vest_every_months": "1", "cliff_months": "6"}]
     folder = write_ledger(tmp_path / "l", {
