@@ -356,6 +356,32 @@ def test_replacement_worth_less_than_the_cancelled_grant_adds_nothing(tmp_path):
     assert list(s.cumulative_cents[:, -1]) == [1_000_000, 0]
 
 
+@pytest.mark.parametrize("standard", ["asc718", "ifrs2"])
+def test_a_leaver_forfeiting_the_replacement_forfeits_the_replaced_cost(tmp_path, standard):
+    # ASC 718-20-55-107 (quoted in the Deloitte roadmap 6.3): cost is recognised only if the award vests
+    # under the modified conditions or would have vested under the original ones; IFRS 2.19-20
+    # (from memory): no cost for instruments that do not vest because a service condition is not met.
+    # The holder leaves on 2026-07-01, before the replacement R (vesting 2028-01-01) and the cancelled
+    # grant X (original vesting 2028-01-01) vest: every cost of both is reversed by 2026-12-31
+    folder = replaced(tmp_path / "l")
+    write_ledger(folder, {"events": [{"grant_id": "R", "event_date": "2026-07-01", "event_type": "forfeit",
+                                      "quantity": "", "share_price": ""}]})
+    _, _, _, s = run(folder, "2027-12-31", standard=standard, attribution="graded")
+    assert s.cumulative_cents[0].tolist() == [round(10_000 * 365 / 1095 * 100), 0, 0]
+    assert s.cumulative_cents[1].tolist() == [0, 0, 0]
+
+
+def test_a_partial_forfeit_of_the_replacement_forfeits_the_same_share(tmp_path):
+    # 200 of the replacement's 800 units forfeited (a quarter): a quarter of the cancelled grant's 1,000
+    # units (250), not vested on that date, are forfeited with them; the rest continue on their schedule
+    folder = replaced(tmp_path / "l")
+    write_ledger(folder, {"events": [{"grant_id": "R", "event_date": "2026-07-01", "event_type": "forfeit",
+                                      "quantity": "200", "share_price": ""}]})
+    _, _, _, s = run(folder, "2027-12-31", standard="asc718", attribution="graded")
+    assert s.cumulative_cents[0].tolist() == [round(10_000 * 365 / 1095 * 100), round(7_500 * 730 / 1095 * 100),
+                                              750_000]
+
+
 @pytest.mark.parametrize("value,words", [("X9", "not a grant"), ("R", "cannot replace itself")])
 def test_bad_replacements(tmp_path, value, words):
     folder = replaced(tmp_path / "l", replaces=value)
