@@ -8,7 +8,7 @@ scalar inputs.
 """
 
 from grantval.pricing.bsm import bsm_value
-from grantval.pricing.espp import espp_reset_increment, espp_value
+from grantval.pricing.espp import espp_remaining_value, espp_reset_increment, espp_value
 from grantval.pricing.greeks import bsm_sensitivities
 from grantval.pricing.lattice import DEFAULT_STEPS, lattice_value
 from grantval.pricing.rsu import rsu_value
@@ -18,7 +18,7 @@ from grantval.pricing.montecarlo import (DEFAULT_PATHS, DEFAULT_SEED, MAX_PATHS,
 from grantval.pricing.terms import simplified_term
 
 __all__ = ["bsm_value", "bsm_sensitivities", "lattice_value", "simplified_term", "rsu_value", "DEFAULT_STEPS",
-           "espp_value", "espp_reset_increment", "simulate_market", "MarketSimulation", "market_award_value",
+           "espp_value", "espp_reset_increment", "espp_remaining_value", "simulate_market", "MarketSimulation", "market_award_value",
            "market_award_values",
            "metric_values", "derived_service_period", "MarketValue", "ServicePeriod", "PayoutCurve",
            "parse_payout_curve", "DEFAULT_PATHS", "DEFAULT_SEED", "MAX_PATHS"]

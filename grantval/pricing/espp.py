@@ -175,3 +175,73 @@ def _reset_increment(s, s0, t, r, sigma, q, d, fixed_shares):
         owed = lambda k: k * np.exp(-r * t) - _bsm(s, k, t, r, sigma, q, False)  # noqa: E731
         return (1.0 - d) * (owed(s0) - owed(s))
     return (s0 / s) * _bsm(s, s, t, r, sigma, q, True) - _bsm(s, s0, t, r, sigma, q, True)
+
+
+def espp_remaining_value(
+    share_price,
+    reference_price,
+    term,
+    rate,
+    volatility,
+    dividend_yield=0.0,
+    discount=0.15,
+    lookback=True,
+    basis="fixed_shares",
+):
+    """Value of a purchase right during its offering: today's share price, the start reference price.
+
+    The value of a right granted at reference price ``K`` (the offering-start price ``S_0``), measured
+    on a later date when the share price is ``S`` and ``term`` years remain to the purchase date: the
+    "original award immediately before" of a modification such as a roll-over into a new offering
+    (ASC 718-20-35-3).  At ``S = K`` it is :func:`espp_value` of a new offering at ``K``.
+
+    Parameters
+    ----------
+    share_price : array_like
+        Share price ``S`` on the measurement date, currency, > 0.
+    reference_price : array_like
+        The look-back's reference price ``K`` (the offering-start price), currency, > 0.
+    term : array_like
+        Years from the measurement date to the purchase date, >= 0.
+    rate, volatility, dividend_yield, discount, lookback, basis
+        As :func:`espp_value`, on the measurement date.
+
+    Returns
+    -------
+    float or ndarray
+        Value per share purchasable at the start purchase price ``(1 - d) K`` (the unit of
+        :func:`espp_value`), currency.
+
+    Notes
+    -----
+    With ``c`` the Black-Scholes-Merton call on ``S`` struck at ``K`` over ``term`` (derivation in
+    ``docs/purchase-plans.md``):
+
+    - look-back, fixed shares: ``d S e^{-qt} + (1 - d) c``;
+    - look-back, fixed withholding: ``d K e^{-rt} + c``;
+    - no look-back, fixed shares: ``d S e^{-qt}``;
+    - no look-back, fixed withholding: ``d K e^{-rt}``.
+    """
+    if basis not in BASES:
+        raise InputError(f"basis must be 'fixed_shares' or 'fixed_withholding'; got {basis!r}")
+    if not isinstance(lookback, (bool, np.bool_)):
+        raise InputError(f"lookback must be True or False; got {lookback!r}")
+    (s, k, t, r, sigma, q, d), scalar = prepare(
+        share_price=(share_price, ((lambda a: a > 0, "greater than 0"),)),
+        reference_price=(reference_price, ((lambda a: a > 0, "greater than 0"),)),
+        term=(term, (NON_NEGATIVE,)),
+        rate=(rate, (FINITE,)),
+        volatility=(volatility, (NON_NEGATIVE,)),
+        dividend_yield=(dividend_yield, (NON_NEGATIVE,)),
+        discount=(discount, ((lambda a: (a >= 0) & (a < 1), "from 0 up to but excluding 1"),)),
+    )
+    return finish(_remaining(s, k, t, r, sigma, q, d, bool(lookback), basis == "fixed_shares"), scalar)
+
+
+def _remaining(s, k, t, r, sigma, q, d, lookback, fixed_shares):
+    """The in-progress value on broadcast float arrays (no checks)."""
+    part = d * s * np.exp(-q * t) if fixed_shares else d * k * np.exp(-r * t)
+    if not lookback:
+        return part
+    call = _bsm(s, k, t, r, sigma, q, True)
+    return part + ((1.0 - d) * call if fixed_shares else call)

@@ -207,3 +207,55 @@ def test_reset_bad_inputs_are_named(kwargs, words):
     args = {"share_price": 20.0, "start_price": 25.0, "term": 0.5, "rate": 0.04, "volatility": 0.4, **kwargs}
     with pytest.raises(InputError, match=words):
         espp_reset_increment(**args)
+
+
+IN_PROGRESS = [
+    # share price today, reference (start) price, years left, rate, volatility, dividend yield, discount
+    (15.0, 20.0, 0.5, 0.04, 0.35, 0.0, 0.15),
+    (26.0, 20.0, 1.5, 0.03, 0.25, 0.02, 0.15),
+    (9.5, 10.0, 0.25, 0.05, 0.30, 0.03, 0.10),
+]
+
+
+@pytest.mark.parametrize("basis", ["fixed_shares", "fixed_withholding"])
+@pytest.mark.parametrize("s, k, t, r, vol, q, d", IN_PROGRESS)
+def test_value_during_the_offering_against_quantlib(s, k, t, r, vol, q, d, basis):
+    # Per share counted at the start purchase price (1 - d) K. Fixed shares: the employee pays
+    # (1 - d) min(K, S_T) for S_T: d S e^{-qt} + (1 - d) c(K). Fixed withholding W = (1 - d) K: payoff
+    # d K + max(S_T - K, 0): d K e^{-rt} + c(K) (docs/purchase-plans.md). Reference: QuantLib blackFormula.
+    from grantval.pricing import espp_remaining_value
+
+    c = ql_black("call", s, k, t, r, vol, q)
+    ref = d * s * np.exp(-q * t) + (1 - d) * c if basis == "fixed_shares" else d * k * np.exp(-r * t) + c
+    assert espp_remaining_value(s, k, t, r, vol, q, d, basis=basis) == pytest.approx(ref, rel=1e-10)
+
+
+@pytest.mark.parametrize("basis", ["fixed_shares", "fixed_withholding"])
+def test_value_during_the_offering_matches_the_plan_mechanics_by_simulation(basis):
+    # Independent of the formulas: from today simulate S_T, buy as the plan does with reference K and
+    # W = (1 - d) K; the discounted mean gain within 3 standard errors (common practice)
+    from grantval.pricing import espp_remaining_value
+
+    s, k, t, r, vol, q, d = 16.0, 20.0, 0.75, 0.04, 0.4, 0.01, 0.15
+    z = np.random.default_rng(11).standard_normal(400_000)
+    st = s * np.exp((r - q - 0.5 * vol**2) * t + vol * np.sqrt(t) * np.concatenate([z, -z]))
+    price = (1 - d) * np.minimum(k, st)
+    shares = 1.0 if basis == "fixed_shares" else (1 - d) * k / price
+    gain = (np.exp(-r * t) * shares * (st - price)).reshape(2, -1).mean(axis=0)
+    se = gain.std(ddof=1) / np.sqrt(gain.size)
+    assert abs(gain.mean() - espp_remaining_value(s, k, t, r, vol, q, d, basis=basis)) <= 3 * se
+
+
+def test_value_during_the_offering_at_the_reference_price_is_a_new_offering():
+    # at S = K the right is the one a new offering at K would grant (espp_value); its difference to the
+    # right referenced to a higher K is the reset increment (espp_reset_increment, fixed shares)
+    from grantval.pricing import espp_remaining_value, espp_reset_increment
+
+    for lookback in (True, False):
+        for basis in ("fixed_shares", "fixed_withholding"):
+            assert espp_remaining_value(18.0, 18.0, 0.5, 0.04, 0.3, 0.01, 0.15, lookback, basis) == pytest.approx(
+                espp_value(18.0, 0.5, 0.04, 0.3, 0.01, 0.15, lookback, basis), rel=1e-13)
+    new, old = (espp_remaining_value(15.0, k, 0.5, 0.04, 0.3, 0.01, 0.15) for k in (15.0, 20.0))
+    assert new - old == pytest.approx(espp_reset_increment(15.0, 20.0, 0.5, 0.04, 0.3, 0.01, 0.15), rel=1e-12)
+    with pytest.raises(InputError, match="reference_price"):
+        espp_remaining_value(15.0, 0.0, 0.5, 0.04, 0.3)
