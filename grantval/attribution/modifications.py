@@ -183,40 +183,43 @@ def _replaced_changes(ledger) -> np.ndarray:
 
 
 def _replacement_forfeits(ledger, inp) -> None:
-    """A replacement's forfeits forfeit the replaced grant's units not vested by then (changes added in place).
+    """A replacement's forfeits and cancellations reach the replaced grant's units not vested by then.
 
     The replaced grant's cost continues as if outstanding, so a leaver who forfeits the replacement
     would keep it; but an award that vests under neither the modified conditions (the replacement)
     nor the original ones (the replaced grant's own dates) has no cost (ASC 718-20-55-107; IFRS 2.19-20,
-    failure of a service condition).  Per forfeiture date F of the replacement, the fraction of its
-    granted units forfeited by F is applied to each replaced tranche's units (rounded to whole units)
-    whose vesting date in force is after F: those become ``forfeit`` changes on F.
+    failure of a service condition), and a cancellation of the modified award recognises all its
+    remaining cost at once (ASC 718-20-35-9; IFRS 2.28(a)).  Per forfeiture (cancellation) date F of
+    the replacement, the fraction of its granted units forfeited (cancelled) by F is applied to each
+    replaced tranche's units (rounded to whole units) whose vesting date in force is after F: those
+    become ``forfeit`` (``cancel``) changes on F, added to ``inp`` in place.
     """
     from grantval.ledger.ext.modifications import replacements
 
     new, old = replacements(ledger.grants)
     c_grant = inp.t_grant[inp.c_tranche]
-    forfeit, replaced = inp.c_kind == "forfeit", inp.c_kind == "replaced"
+    replaced = inp.c_kind == "replaced"
     granted = np.bincount(inp.t_grant, weights=inp.t_qty, minlength=len(inp.grant_id))
-    add_t, add_d, add_q = [], [], []
+    vest = np.asarray(inp.t_vest, dtype="datetime64[D]")
+    add: list = []
     for n, o in zip(new, old):
-        f = np.flatnonzero(forfeit & (c_grant == n))
         r = np.flatnonzero(replaced & (c_grant == o))
-        if not len(f) or not len(r) or granted[n] <= 0:
-            continue
-        days = np.unique(inp.c_date[f])
-        share = np.array([inp.c_qty[f][inp.c_date[f] <= d].sum() for d in days]) / granted[n]
-        for tr, q in zip(inp.c_tranche[r], inp.c_qty[r]):
-            step = np.diff(np.r_[0, np.round(q * np.minimum(share, 1.0)).astype(np.int64)])
-            live = (step > 0) & (np.asarray(inp.t_vest, dtype="datetime64[D]")[tr] > days)
-            add_t += [tr] * int(live.sum())
-            add_d += list(days[live])
-            add_q += list(step[live])
-    if add_t:
-        inp.c_tranche = np.r_[inp.c_tranche, np.array(add_t, dtype=np.int64)]
-        inp.c_date = np.r_[np.asarray(inp.c_date, dtype="datetime64[D]"), np.array(add_d, dtype="datetime64[D]")]
-        inp.c_qty = np.r_[inp.c_qty, np.array(add_q, dtype=np.int64)]
-        inp.c_kind = np.r_[inp.c_kind, np.full(len(add_t), "forfeit", dtype=object)].astype(object)
+        for kind in ("forfeit", "cancel"):
+            f = np.flatnonzero((inp.c_kind == kind) & (c_grant == n))
+            if not len(f) or not len(r) or granted[n] <= 0:
+                continue
+            days = np.unique(inp.c_date[f])
+            share = np.array([inp.c_qty[f][inp.c_date[f] <= d].sum() for d in days]) / granted[n]
+            for tr, q in zip(inp.c_tranche[r], inp.c_qty[r]):
+                step = np.diff(np.r_[0, np.round(q * np.minimum(share, 1.0)).astype(np.int64)])
+                live = (step > 0) & (vest[tr] > days)
+                add += [(tr, d, s, kind) for d, s in zip(days[live], step[live])]
+    if add:
+        tr, d, q, k = zip(*add)
+        inp.c_tranche = np.r_[inp.c_tranche, np.array(tr, dtype=np.int64)]
+        inp.c_date = np.r_[np.asarray(inp.c_date, dtype="datetime64[D]"), np.array(d, dtype="datetime64[D]")]
+        inp.c_qty = np.r_[inp.c_qty, np.array(q, dtype=np.int64)]
+        inp.c_kind = np.r_[inp.c_kind, np.array(k, dtype=object)].astype(object)
 
 
 def build(ledger, fair_values, inp, policy) -> tuple[np.ndarray, CostLayers, object] | None:

@@ -265,6 +265,30 @@ def _vest_on(ledger, p_tr: np.ndarray, day: np.ndarray) -> np.ndarray:
     return vest
 
 
+def _espp_before(ledger, old: np.ndarray, new: np.ndarray, day: np.ndarray, purchase: np.ndarray) -> np.ndarray:
+    """Per purchase period of a rolled-over enrollment: its value on the roll-over date, per share counted.
+
+    :func:`grantval.pricing.espp_remaining_value` with the old offering's reference (start) price,
+    discount, look-back and basis, on the new offering's start-date inputs (the share price then).
+    """
+    from grantval.pricing import espp_remaining_value
+
+    g, a = ledger.grants, ledger.assumptions
+    col = lambda c, rows: a[c].to_numpy(float)[ledger.grant_assumption[rows]]  # noqa: E731
+    out = np.zeros(len(old))
+    look, basis = g["_espp_lookback"].to_numpy()[old], g["_espp_basis"].to_numpy(dtype=object)[old]
+    for lb in (True, False):
+        for b in ("fixed_shares", "fixed_withholding"):
+            m = (look == lb) & (basis == b)
+            if m.any():
+                out[m] = espp_remaining_value(
+                    col("share_price", new[m]), col("share_price", old[m]), np.maximum(year_fraction(day[m],
+                    purchase[m]), 0.0), col("risk_free_rate", new[m]), col("volatility", new[m]),
+                    np.nan_to_num(col("dividend_yield", new[m])), g["_espp_discount"].to_numpy(float)[old[m]],
+                    lookback=bool(lb), basis=b)
+    return out
+
+
 def replaced_values(ledger, policy, cache: dict | None = None) -> ReplacedValues | None:
     """Value of every replaced grant immediately before its replacement (None when there is none)."""
     from grantval.ledger.ext.modifications import replacements
@@ -282,6 +306,10 @@ def replaced_values(ledger, policy, cache: dict | None = None) -> ReplacedValues
     ub = np.where(rsu & (vb < day), 0.0, ub)
     before, _ = _computed(ledger, None, t, p_mod, p_tr, vb, vb, ub, policy, cache,
                           rows=ledger.grant_assumption[new])
+    espp = ledger.grants["award_type"].to_numpy(dtype=object)[old][p_mod] == "espp"
+    if espp.any():  # an offering rolled over into a new one: its purchase periods not yet reached
+        ub = np.where(espp & (vb <= day), 0.0, ub)
+        before[espp] = _espp_before(ledger, old[p_mod][espp], new[p_mod][espp], day[espp], vb[espp])
     units = np.bincount(p_mod, weights=ub, minlength=len(new))
     total = np.bincount(p_mod, weights=before * ub, minlength=len(new))
     return ReplacedValues(new, old, date, units, total, total / np.where(units > 0, units, 1))

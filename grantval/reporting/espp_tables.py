@@ -35,9 +35,11 @@ def _status(ledger, t_idx: np.ndarray, vest: np.ndarray, through) -> np.ndarray:
     pos = {t: i for i, t in enumerate(t_idx)}
     ev = ledger.events
     kinds = ev["event_type"].to_numpy(object)
+    into = ev["_replaced_by"].to_numpy(object) if "_replaced_by" in ev else np.full(len(ev), None, dtype=object)
     for t, e, d, k in zip(ch["tranche_idx"], ch["event_idx"], ch["date"].to_numpy("datetime64[D]"), ch["kind"]):
         if t in pos and d <= through:
-            status[pos[t]] = "withdrawn" if kinds[e] == "withdraw" else {"forfeit": "forfeited"}.get(k, "cancelled")
+            status[pos[t]] = ("withdrawn" if kinds[e] == "withdraw" else f"rolled over into {into[e]}"
+                              if pd.notna(into[e]) else {"forfeit": "forfeited"}.get(k, "cancelled"))
     return status
 
 

@@ -52,6 +52,7 @@ OFFERINGS = (
     Column("risk_free_rate", "number", required=True),
     Column("dividend_yield", "number", default=0.0),
     Column("max_shares", "integer"),
+    Column("rolls_over_from", "text"),
 )
 
 ENROLLMENTS = (
@@ -231,6 +232,47 @@ def reset_problems(r: pd.DataFrame, o: pd.DataFrame, dates: list, o_ok: np.ndarr
     return p
 
 
+def rollover_problems(o: pd.DataFrame, dates: list, o_ok: np.ndarray, src: str,
+                      resets: pd.DataFrame | None) -> tuple[list[Problem], dict]:
+    """Checks of ``rolls_over_from``; the valid roll-overs as ``{new offering: (old offering, date, row)}``.
+
+    The new offering starts inside the old one (after its start, before its last purchase date); an
+    offering rolls over into one offering at most; offerings with ``max_shares`` or resets are not
+    supported yet as the old offering.
+    """
+    p: list[Problem] = []
+    out: dict = {}
+    if "rolls_over_from" not in o or not o["rolls_over_from"].notna().any():
+        return p, out
+    index = {k: i for i, k in enumerate(o["offering_id"]) if pd.notna(k)}
+    reset_ids = set(resets["offering_id"].dropna()) if resets is not None and len(resets) else set()
+    start = o["start_date"].to_numpy("datetime64[D]")
+    taken: dict = {}
+    for i in np.flatnonzero(o["rolls_over_from"].notna().to_numpy()):
+        row, k, own = int(o["_row"].iat[i]), o["rolls_over_from"].iat[i], o["offering_id"].iat[i]
+        j = index.get(k)
+        msg = None
+        if k == own:
+            msg = "an offering cannot roll over from itself"
+        elif j is None:
+            msg = f"{k!r} is not an offering in {src}"
+        elif not (o_ok[i] and o_ok[j]):
+            continue  # the offerings' own rows are reported
+        elif not start[j] < start[i] < dates[j][-1]:
+            msg = (f"the roll-over date (this offering's start, {start[i]}) must be after the start {start[j]} of "
+                   f"offering {k!r} and before its last purchase date {dates[j][-1]}")
+        elif k in taken:
+            msg = f"offering {k!r} already rolls over into offering {taken[k]!r}"
+        elif not np.isnan(float(o["max_shares"].iat[j])) or k in reset_ids:
+            msg = (f"roll-overs of an offering with max_shares or resets ({k!r}) are not supported yet")
+        if msg is not None:
+            p.append(Problem(src, row, "rolls_over_from", msg))
+            continue
+        taken[k] = own
+        out[own] = (k, start[i], row)
+    return p, out
+
+
 def _assumption_rows(o: pd.DataFrame) -> pd.DataFrame:
     """One assumptions row per offering: its start-date valuation inputs."""
     no_look = (o["lookback"] == "no").to_numpy()
@@ -266,8 +308,11 @@ def contribute(tables: dict, sources: dict) -> Contribution:
     p, dates, o_ok = _offering_problems(o, osrc)
     probs, pos = _enrollment_problems(e, o, o_ok, esrc, osrc)
     p += probs
-    if "espp_resets" in tables:
-        p += reset_problems(tables["espp_resets"], o, dates, o_ok, sources["espp_resets"], osrc)
+    resets = tables.get("espp_resets")
+    if resets is not None:
+        p += reset_problems(resets, o, dates, o_ok, sources["espp_resets"], osrc)
+    probs, rolled = rollover_problems(o, dates, o_ok, osrc, resets)
+    p += probs
     keep = np.flatnonzero(pos >= 0)
     op = pos[keep]
     n_per = np.array([len(dates[i]) for i in op], dtype=np.int64)
@@ -297,6 +342,11 @@ def contribute(tables: dict, sources: dict) -> Contribution:
         "_espp_cap_ratio": cap / exact,  # max_shares / shares at the start price (NaN: no cap)
         "_espp_exact_shares": exact,
     })
+    if rolled:
+        from grantval.ledger.ext.espp_rollover import link_rollovers
+
+        grants, probs = link_rollovers(grants, rolled, tables, sources)
+        p += probs
     gi = np.repeat(np.arange(len(keep)), n_per)
     vest = np.concatenate([np.asarray(dates[i], "datetime64[D]") for i in op]) if len(op) else np.zeros(0, "M8[D]")
     tranches = pd.DataFrame({"grant": gi, "vest_date": vest, "quantity": np.repeat(whole, n_per)})
@@ -329,7 +379,7 @@ EXTENSION = Extension(
     feature="employee share purchase plans",
     tables={"espp_offerings": OFFERINGS, "espp_enrollments": ENROLLMENTS, "espp_resets": RESETS},
     event_types=EVENT_TYPES,
-    text_columns=frozenset({"offering_id", "purchase_dates"}),
+    text_columns=frozenset({"offering_id", "purchase_dates", "rolls_over_from"}),
     check=check,
     contribute=contribute,
     changes=lambda parts, events, grant_pos, core: _event_changes(parts, events, grant_pos, core),

@@ -354,7 +354,8 @@ def _grant_column_problems(g: pd.DataFrame, src: str) -> list[Problem]:
                              f"grant date {gd[o]} of the grant it replaces"))
         if not np.isnat(ex[o]) and gd[n] > ex[o]:
             p.append(Problem(src, row, "replaces_grant_id", f"the grant it replaces expired on {ex[o]}"))
-        if award[n] not in ("option", "rsu") or award[o] not in ("option", "rsu"):
+        rollover = award[n] == award[o] == "espp"  # set by the purchase plans' roll-overs
+        if not rollover and (award[n] not in ("option", "rsu") or award[o] not in ("option", "rsu")):
             p.append(Problem(src, row, "replaces_grant_id", "replacements of this award type are not supported "
                              "yet (options and RSUs only)"))
     return p
