@@ -114,10 +114,19 @@ def test_the_bridge_shows_the_reset_on_its_modifications_line(tmp_path):
     assert sum(lines.values()) == int(s.expense_cents[:, 0].sum())
 
 
+def test_a_capped_fixed_shares_offering_resets_per_share_counted(tmp_path):
+    # fixed shares with max_shares 60: 60 of the 100 shares a period's withholding buys are counted, at
+    # the same value per share (the cap fixes the count whatever the price); the reset adds 60 x the
+    # uncapped increment
+    run = _run(tmp_path / "l", [reset()], max_shares="60")
+    inc = fixed_shares_increment(15, 20, 184, 0.045, 0.35, 0.02, 0.15)
+    assert run.inputs.espp_resets.incremental == pytest.approx([60 * inc], rel=1e-10)
+
+
 @pytest.mark.parametrize("row, offering, column, words", [
     (reset(offering_id="NOPE"), {}, "offering_id", "not an offering"),
     (reset(), {"lookback": "no", "volatility": ""}, "offering_id", "no look-back"),
-    (reset(), {"max_shares": "50"}, "offering_id", "not supported yet"),
+    (reset(), {"max_shares": "50", "shares_basis": "fixed_withholding"}, "offering_id", "not supported yet"),
     (reset("2027-01-01"), {}, "reset_date", "after the offering's start"),
     (reset("2028-01-01"), {}, "reset_date", "before its last purchase date"),
     (reset(price="20"), {}, "share_price", "lowers the reference price"),

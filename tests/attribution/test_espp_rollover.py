@@ -101,7 +101,7 @@ def test_a_holder_left_in_the_old_offering_is_named(tmp_path):
     ({"rolls_over_from": "O99"}, None, "'O99' is not an offering"),
     ({"rolls_over_from": "O27B"}, None, "cannot roll over from itself"),
     ({"start_date": "2028-01-01", "purchase_dates": "2028-07-01"}, None, "before its last purchase date 2028-01-01"),
-    ({}, {"max_shares": "500"}, "not supported yet"),
+    ({}, {"max_shares": "500", "shares_basis": "fixed_withholding"}, "not supported yet"),
 ])
 def test_bad_roll_overs_are_named_with_file_row_and_column(tmp_path, new, old, words):
     folder = _ledger(tmp_path / "l", new=new, old=old)
@@ -139,3 +139,10 @@ def test_a_withdrawal_from_the_new_offering_cancels_the_old_periods_too(tmp_path
     i = list(run.inputs.grant_id).index("O27/H1")
     cents = run.schedule.expense_cents[i]
     assert abs(cents[:3].sum() - round(100 * sum(v) * 100)) <= 1 and cents[3:].sum() == 0
+
+
+def test_a_capped_fixed_shares_offering_rolls_over_per_share_counted(tmp_path):
+    # max_shares 60 on the old offering: 60 shares counted per period, at the uncapped value per share
+    run = _run(tmp_path / "l", old={"max_shares": "60"})
+    assert run.inputs.modifications.replacements.values.value_before == pytest.approx([60 * _old_value(184)],
+                                                                                      rel=1e-10)

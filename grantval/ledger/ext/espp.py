@@ -209,9 +209,9 @@ def reset_problems(r: pd.DataFrame, o: pd.DataFrame, dates: list, o_ok: np.ndarr
             p.append(Problem(src, row, "offering_id", f"offering {k!r} has no look-back: a reset changes the "
                              "look-back's reference price, and its purchase price already follows the share price"))
             continue
-        if not np.isnan(float(o["max_shares"].iat[j])):
-            p.append(Problem(src, row, "offering_id", f"resets of an offering with max_shares ({k!r}) are not "
-                             "supported yet"))
+        if not np.isnan(float(o["max_shares"].iat[j])) and o["shares_basis"].iat[j] != "fixed_shares":
+            p.append(Problem(src, row, "offering_id", f"resets of a fixed-withholding offering with max_shares "
+                             f"({k!r}) are not supported yet"))
             continue
         start = o["start_date"].to_numpy("datetime64[D]")[j]
         if not start < day < dates[j][-1]:
@@ -237,8 +237,9 @@ def rollover_problems(o: pd.DataFrame, dates: list, o_ok: np.ndarray, src: str,
     """Checks of ``rolls_over_from``; the valid roll-overs as ``{new offering: (old offering, date, row)}``.
 
     The new offering starts inside the old one (after its start, before its last purchase date); an
-    offering rolls over into one offering at most; offerings with ``max_shares`` or resets are not
-    supported yet as the old offering.
+    offering rolls over into one offering at most; offerings with resets, and fixed-withholding
+    offerings with ``max_shares``, are not supported yet as the old offering (under fixed shares the
+    cap only sets the shares counted, and the value per share counted is the uncapped one).
     """
     p: list[Problem] = []
     out: dict = {}
@@ -263,8 +264,10 @@ def rollover_problems(o: pd.DataFrame, dates: list, o_ok: np.ndarray, src: str,
                    f"offering {k!r} and before its last purchase date {dates[j][-1]}")
         elif k in taken:
             msg = f"offering {k!r} already rolls over into offering {taken[k]!r}"
-        elif not np.isnan(float(o["max_shares"].iat[j])) or k in reset_ids:
-            msg = (f"roll-overs of an offering with max_shares or resets ({k!r}) are not supported yet")
+        elif (not np.isnan(float(o["max_shares"].iat[j])) and o["shares_basis"].iat[j] != "fixed_shares") \
+                or k in reset_ids:
+            msg = (f"roll-overs of an offering with resets, or of a fixed-withholding offering with max_shares "
+                   f"({k!r}), are not supported yet")
         if msg is not None:
             p.append(Problem(src, row, "rolls_over_from", msg))
             continue
