@@ -117,14 +117,16 @@ class _Quantities:
     as_of: int | None = None  # forecasts: the day whose expected quantities and payouts are kept
 
 
-def _quantities(inp: ExpenseInputs, dn: int, forfeitures: str, cut: int, est_day: int | None = None) -> _Quantities:
+def _quantities(inp: ExpenseInputs, dn: int, forfeitures: str, cut: int, est_day: int | None = None,
+                need_elapsed: bool = True) -> _Quantities:
     """Everything at day number ``dn`` that does not depend on fair values.
 
     Events dated after day ``cut`` are ignored; the estimates are those in force on day
-    ``est_day`` (default ``dn``).
+    ``est_day`` (default ``dn``).  Without ``need_elapsed`` the per-layer service fractions
+    (``elapsed``, used by graded attribution and the full figures) are not computed (None).
     """
     est_day = dn if est_day is None else est_day
-    key = (dn, forfeitures, cut, est_day, inp.estimate_label)
+    key = (dn, forfeitures, cut, est_day, inp.estimate_label, need_elapsed)
     if inp.memo is not None and key in inp.memo:
         return inp.memo[key]
     pre = inp.prepared()
@@ -157,8 +159,8 @@ def _quantities(inp: ExpenseInputs, dn: int, forfeitures: str, cut: int, est_day
         outstanding=outstanding, cancelled=cancelled, n_exp=n_exp, vested=vested, granted_by=granted_by,
         started=pre.l_start <= dn,
         # a tranche vested before its service end (accelerated by a modification) is fully served
-        elapsed=np.where(pre.l_start <= dn, np.where(vested[pre.l_tranche], 1.0, _elapsed(dn, pre.l_start, pre.l_len)),
-                         0.0),
+        elapsed=np.where(pre.l_start <= dn, np.where(pre.on_layers(vested), 1.0, _elapsed(dn, pre.l_start, pre.l_len)),
+                         0.0) if need_elapsed else None,
         el_set=np.where(pre.set_start <= dn, _elapsed(dn, pre.set_start, pre.set_len), 0.0),
         granted_g=granted_g,
         kept=kept,
@@ -186,7 +188,7 @@ def _apply_hooks(inp: ExpenseInputs, Q: _Quantities, dn: int, attribution: str, 
 
 
 def measure(inp: ExpenseInputs, d, *, attribution: str, forfeitures: str, events_through=None,
-            estimates_as_of=None, frozen_at=None) -> Measurement:
+            estimates_as_of=None, frozen_at=None, cost_only: bool = False) -> Measurement:
     """Cumulative cost of every grant through ``d``.
 
     Parameters
@@ -206,40 +208,47 @@ def measure(inp: ExpenseInputs, d, *, attribution: str, forfeitures: str, events
         they stand on this date, with no true-up at later vesting dates, so that a
         forecast to the end of vesting totals the unrecognised cost on this date
         (ASC 718-10-35-3, IFRS 2.20: the estimates in force).
+    cost_only : bool, optional
+        Compute only ``grant_cost`` (the schedule's periods need nothing else); the other
+        per-grant figures of the result are then None.  The cost is the same either way.
     """
     dn = int(np.datetime64(d, "D").astype(np.int64))
     cut = dn if events_through is None else min(dn, int(np.datetime64(events_through, "D").astype(np.int64)))
     est_day = None if estimates_as_of is None else int(np.datetime64(estimates_as_of, "D").astype(np.int64))
-    Q = _quantities(inp, dn, forfeitures, cut, est_day)
+    fast = cost_only and not inp.cost_hooks
+    need = not (fast and attribution == "straight-line")  # straight-line cost: the sets' fractions only
+    Q = _quantities(inp, dn, forfeitures, cut, est_day, need)
     if frozen_at is not None:
         fd = int(np.datetime64(frozen_at, "D").astype(np.int64))
-        Q = replace(Q, n_exp=_quantities(inp, fd, forfeitures, min(cut, fd), est_day).n_exp, as_of=fd)
+        Q = replace(Q, n_exp=_quantities(inp, fd, forfeitures, min(cut, fd), est_day, need).n_exp, as_of=fd)
     pre = inp.prepared()
-    lg, lt = pre.l_grant, pre.l_tranche
+    lg = pre.l_grant
     n_g = inp.n_grants
-    value = inp.layers.fair_value * (Q.n_exp[lt] + Q.kept)  # per layer
+    value = inp.layers.fair_value * (pre.on_layers(Q.n_exp) + Q.kept)  # per layer
     started = Q.started
-    cancel_cost = np.bincount(lg, weights=np.where(Q.granted_by[lt] & started,
-                                                   inp.layers.fair_value * Q.cancelled[lt], 0.0), minlength=n_g)
+    cancel_cost = np.bincount(lg, weights=np.where(pre.on_layers(Q.granted_by) & started,
+                                                   inp.layers.fair_value * pre.on_layers(Q.cancelled), 0.0), minlength=n_g)
+    if fast:
+        return _cost_only(inp, Q, value, cancel_cost, attribution)
     if attribution == "graded":
         layer_cost = value * Q.elapsed
         cost = np.bincount(lg, weights=layer_cost, minlength=n_g)
         left = np.where(started, value - layer_cost, 0.0)
         unrec = np.bincount(lg, weights=left, minlength=n_g)
-        weighted = np.bincount(lg, weights=left * Q.years_left_t[lt], minlength=n_g)
+        weighted = np.bincount(lg, weights=left * pre.on_layers(Q.years_left_t), minlength=n_g)
         remaining = weighted / np.where(unrec > 0, unrec, 1.0)
     else:
         total = np.bincount(lg, weights=np.where(started, value, 0.0), minlength=n_g)
         by_set = np.bincount(pre.l_set, weights=value, minlength=len(pre.set_grant)) * Q.el_set
-        vested_value = np.bincount(lg, weights=np.where(Q.vested[lt] & started, value, 0.0), minlength=n_g)
+        vested_value = np.bincount(lg, weights=np.where(pre.on_layers(Q.vested) & started, value, 0.0), minlength=n_g)
         cost = np.maximum(np.bincount(pre.set_grant, weights=by_set, minlength=n_g), vested_value)
         # every tranche vested (also by acceleration): the cost is the vested value, even if lower
-        all_vested = np.bincount(lg, weights=(started & ~Q.vested[lt]).astype(float), minlength=n_g) == 0
+        all_vested = np.bincount(lg, weights=(started & ~pre.on_layers(Q.vested)).astype(float), minlength=n_g) == 0
         cost = np.where(all_vested & Q.granted_g, vested_value, cost)
         unrec = np.where(Q.granted_g, total - cost, 0.0)
         remaining = Q.years_left_g
     remaining = np.where(unrec > 0, remaining, 0.0)
-    expected_total = np.bincount(lg, weights=np.where(Q.granted_by[lt] & started, value, 0.0),
+    expected_total = np.bincount(lg, weights=np.where(pre.on_layers(Q.granted_by) & started, value, 0.0),
                                  minlength=n_g) + cancel_cost
     cost = cost + cancel_cost
     n_expensed = Q.n_exp
@@ -251,6 +260,27 @@ def measure(inp: ExpenseInputs, d, *, attribution: str, forfeitures: str, events
         n_expensed=n_expensed, outstanding=Q.outstanding, cancelled=Q.cancelled, elapsed=Q.elapsed[:n_t],
         vested=Q.vested, grant_cost=cost, expected_total=expected_total, unrecognised=unrec,
         remaining_years=remaining, layer_kept=Q.kept,
+    )
+
+
+def _cost_only(inp: ExpenseInputs, Q: _Quantities, value: np.ndarray, cancel_cost: np.ndarray,
+               attribution: str) -> Measurement:
+    """``measure``'s cost alone: the same arithmetic as its full path, without the other figures."""
+    pre = inp.prepared()
+    lg, n_g = pre.l_grant, inp.n_grants
+    if attribution == "graded":
+        cost = np.bincount(lg, weights=value * Q.elapsed, minlength=n_g)
+    else:
+        by_set = np.bincount(pre.l_set, weights=value, minlength=len(pre.set_grant)) * Q.el_set
+        vested_value = np.bincount(lg, weights=np.where(pre.on_layers(Q.vested) & Q.started, value, 0.0), minlength=n_g)
+        cost = np.maximum(np.bincount(pre.set_grant, weights=by_set, minlength=n_g), vested_value)
+        all_vested = np.bincount(lg, weights=(Q.started & ~pre.on_layers(Q.vested)).astype(float), minlength=n_g) == 0
+        cost = np.where(all_vested & Q.granted_g, vested_value, cost)
+    return Measurement(
+        n_expensed=Q.n_exp, outstanding=Q.outstanding, cancelled=Q.cancelled,
+        elapsed=None if Q.elapsed is None else Q.elapsed[:len(inp.t_qty)],
+        vested=Q.vested, grant_cost=cost + cancel_cost, expected_total=None, unrecognised=None,
+        remaining_years=None, layer_kept=Q.kept,
     )
 
 

@@ -164,6 +164,10 @@ class Prepared:
         out[self.h_tranche[first]] = self.h_end[first]
         return out
 
+    def on_layers(self, per_tranche: np.ndarray) -> np.ndarray:
+        """A per-tranche array taken to the layers (itself when the layers are the tranches)."""
+        return per_tranche if self.l_identity else per_tranche[self.l_tranche]
+
     def _layers(self, inp: ExpenseInputs) -> None:
         """Per-layer service periods and the layer sets of straight-line attribution."""
         lay = inp.layers
@@ -171,6 +175,8 @@ class Prepared:
         if len(lay) < n_t or not np.array_equal(lay.tranche[:n_t], np.arange(n_t)):
             raise ValueError("the first cost layer of each tranche must come first, in tranche order")
         self.l_tranche = lay.tranche
+        #: the layers are the grant-date layers alone, one per tranche in tranche order
+        self.l_identity = len(lay) == n_t
         self.l_grant = inp.t_grant[lay.tranche]
         self.l_start = _days(lay.start)
         own_end = ~np.isnat(np.asarray(lay.end, dtype="datetime64[D]"))

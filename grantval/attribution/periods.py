@@ -113,27 +113,47 @@ def compute_schedule(inp: ExpenseInputs, policy: Policy, through, start=None, fo
     if start > through:
         raise UsageError(f"{{start}} {start} is after {{through}} {through}", ("start", "through"))
     ends = _ends(start, through, policy)
-    kw = dict(attribution=policy.attribution, forfeitures=policy.forfeitures)
-    opening = to_cents(measure(inp, start - DAY, **kw).grant_cost)
-    cum = np.empty((inp.n_grants, len(ends)), dtype=np.int64)
-    at_through = None
-    for k, d in track(enumerate(ends), len(ends), "periods"):
-        m = measure(inp, d, **kw)
-        cum[:, k] = to_cents(m.grant_cost)
-        at_through = m
-    prev = np.column_stack([opening, cum[:, :-1]])
-    expense = cum - prev
     if forecast_through is not None:
         fthrough = np.datetime64(forecast_through, "D")
         if fthrough <= through:
             raise UsageError(f"{{forecast_through}} {fthrough} must be after {{through}} {through}",
                               ("forecast_through", "through"))
         fends = _ends(through + DAY, fthrough, policy)
-        fcum = np.empty((inp.n_grants, len(fends)), dtype=np.int64)
-        for k, d in enumerate(fends):
-            fcum[:, k] = to_cents(measure(inp, d, events_through=through, frozen_at=through, **kw).grant_cost)
-        fcents = fcum - np.column_stack([cum[:, -1], fcum[:, :-1]])
     else:
         fends = np.zeros(0, dtype="datetime64[D]")
-        fcents = np.zeros((inp.n_grants, 0), dtype=np.int64)
+    kw = dict(attribution=policy.attribution, forfeitures=policy.forfeitures)
+    opening, cum, fcum, at_through = _by_blocks(inp, start, ends, fends, kw)
+    prev = np.column_stack([opening, cum[:, :-1]])
+    expense = cum - prev
+    fcents = fcum - np.column_stack([cum[:, -1], fcum[:, :-1]]) if len(fends) else fcum
     return ExpenseSchedule(ends, start, cum, opening, expense, fends, fcents, at_through)
+
+
+def _by_blocks(inp: ExpenseInputs, start, ends, fends, kw: dict):
+    """``_cumulative`` of the whole ledger, or of blocks of grants put together (the same figures)."""
+    from grantval.attribution import blocks
+
+    if not blocks.blockable(inp):
+        return _cumulative(inp, start, ends, fends, kw, track_periods=True)
+    todo = blocks.grant_blocks(np.asarray(inp.t_grant), inp.n_grants)
+    parts = [_cumulative(blocks.sub_inputs(inp, *b), start, ends, fends, kw) for b in track(todo, len(todo), "grants")]
+    opening, cum, fcum, at = zip(*parts)
+    return np.concatenate(opening), np.vstack(cum), np.vstack(fcum), blocks.joined(list(at))
+
+
+def _cumulative(inp: ExpenseInputs, start, ends, fends, kw: dict, track_periods: bool = False):
+    """Opening cents, cumulative cents at ``ends`` and forecast ``fends``, and the measurement at the last end."""
+    through = ends[-1]
+    opening = to_cents(measure(inp, start - DAY, cost_only=True, **kw).grant_cost)
+    cum = np.empty((inp.n_grants, len(ends)), dtype=np.int64)
+    at_through = None
+    dates = track(enumerate(ends), len(ends), "periods") if track_periods else enumerate(ends)
+    for k, d in dates:
+        m = measure(inp, d, cost_only=k < len(ends) - 1, **kw)  # every figure at the through date only
+        cum[:, k] = to_cents(m.grant_cost)
+        at_through = m
+    fcum = np.empty((inp.n_grants, len(fends)), dtype=np.int64)
+    for k, d in enumerate(fends):
+        fcum[:, k] = to_cents(measure(inp, d, events_through=through, frozen_at=through, cost_only=True,
+                                      **kw).grant_cost)
+    return opening, cum, fcum, at_through

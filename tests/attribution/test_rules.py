@@ -135,3 +135,26 @@ def test_forecast_assumes_no_further_events(tmp_path):
     # with no event considered after the through date, the forecast equals the run without it
     assert run.schedule.cumulative_cents[i][-1] + run.schedule.forecast_cents[i].sum() == \
         full.schedule.cumulative_cents[i][-1]
+
+
+@pytest.mark.parametrize("attribution", ["graded", "straight-line"])
+@pytest.mark.parametrize("forfeitures", ["as-occur", "estimate"])
+def test_the_cost_only_path_gives_the_full_paths_cost(tmp_path, attribution, forfeitures):
+    # the schedule measures its periods with cost_only=True; the full path is the reference, on random
+    # ledgers and on one with modifications (layers with their own service ends and sets)
+    from grantval.attribution.engine import measure
+    from tests.attribution.test_modification_schedules import shortened
+
+    folders = [write_ledger(tmp_path / f"r{seed}", random_ledger(seed, n=14)) for seed in (1, 2)]
+    folders.append(shortened(tmp_path / "m"))
+    for folder in folders:
+        run = api.expense(folder, through="2031-03-15", start="2025-01-01", attribution=attribution,
+                          forfeitures=forfeitures)
+        days = np.arange(np.datetime64("2025-01-01"), np.datetime64("2031-03-15"), 97)
+        nonzero = 0
+        for d in days:
+            kw = dict(attribution=attribution, forfeitures=forfeitures)
+            full, fast = measure(run.inputs, d, **kw).grant_cost, measure(run.inputs, d, cost_only=True, **kw).grant_cost
+            assert np.array_equal(full, fast), (folder, d)
+            nonzero += bool(fast.any())
+        assert nonzero >= len(days) // 2  # the dates compare real costs
