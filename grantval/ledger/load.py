@@ -148,14 +148,14 @@ def read_ledger(location, planned=None) -> tuple[Ledger | None, list[Problem]]:
     problems += v.check_last_vest(g, tranches, sources["grants"])
 
     ev = frames["events"]
-    index = {k: i for i, k in enumerate(g["grant_id"])}
-    epos = np.array([index.get(k, -1) for k in ev["grant_id"]], dtype=np.int64)
+    index = {k: i for i, k in enumerate(g["grant_id"].to_numpy(dtype=object))}
+    epos = np.array([index.get(k, -1) for k in ev["grant_id"].to_numpy(dtype=object)], dtype=np.int64)
     for r, k in zip(ev["_row"][epos < 0], ev["grant_id"][epos < 0]):
         if k is not None and k not in withheld:  # withheld: an extension already reported why (ESPP)
             problems.append(Problem(sources["events"], int(r), "grant_id", f"{k!r} is not a grant in the grants table"))
     # events are only allocated for grants whose schedule is complete
     def allocated(events):
-        at = np.array([index.get(k, -1) for k in events["grant_id"]], dtype=np.int64)
+        at = np.array([index.get(k, -1) for k in events["grant_id"].to_numpy(dtype=object)], dtype=np.int64)
         valid = at >= 0
         valid[valid] = ok[at[valid]]
         return np.where(valid, at, -1)

@@ -141,31 +141,44 @@ def check_assumptions(a: pd.DataFrame, src: str) -> list[Problem]:
     return p
 
 
+def _first_rows(keys: np.ndarray, rows: np.ndarray) -> tuple[pd.Index, np.ndarray]:
+    """An index of the distinct ``keys`` and, per key, the first of ``rows`` holding it."""
+    idx = pd.Index(keys)
+    keep = ~idx.duplicated(keep="first")
+    return idx[keep], rows[keep]
+
+
 def match_assumptions(g: pd.DataFrame, a: pd.DataFrame, gsrc: str) -> tuple[np.ndarray, list[Problem]]:
-    """Row of ``assumptions`` for each grant (-1 when none), with problems."""
-    p: list[Problem] = []
-    pos = np.full(len(g), -1, dtype=np.int64)
-    key_set = a["assumption_set"].notna().to_numpy()
-    by_name = {k: i for i, k in zip(np.flatnonzero(key_set)[::-1], a["assumption_set"][key_set][::-1])}
+    """Row of ``assumptions`` for each grant (-1 when none), with problems.  Vectorised over grants.
+
+    A grant naming an ``assumption_set`` takes the first row of that name; a grant without one takes
+    the first row without a name whose ``grant_date`` is the grant's.
+    """
+    names = a["assumption_set"].to_numpy(dtype=object)
+    key_set = pd.notna(names)
     dates = a["grant_date"].to_numpy("datetime64[D]")
-    by_date = {d: i for i, d in zip(np.flatnonzero(~key_set)[::-1], dates[~key_set][::-1]) if not np.isnat(d)}
-    sets = g["assumption_set"].to_numpy()
+    named = np.flatnonzero(key_set)
+    dated = np.flatnonzero(~key_set & ~np.isnat(dates))
+    name_index, name_rows = _first_rows(names[named], named)
+    date_index, date_rows = _first_rows(dates[dated], dated)
+    sets = g["assumption_set"].to_numpy(dtype=object)
     gd = g["grant_date"].to_numpy("datetime64[D]")
     rows = g["_row"].to_numpy()
-    for i in range(len(g)):
-        name = sets[i]
-        if name is not None and not (isinstance(name, float)):
-            j = by_name.get(name, -1)
-            if j < 0:
-                p.append(Problem(gsrc, int(rows[i]), "assumption_set", f"{name!r} is not an assumption_set in the assumptions table"))
+    by_name = pd.notna(sets)
+    pos = np.full(len(g), -1, dtype=np.int64)
+    at = name_index.get_indexer(sets[by_name]) if by_name.any() else np.zeros(0, np.int64)
+    pos[by_name] = np.where(at >= 0, name_rows[np.maximum(at, 0)] if len(name_rows) else -1, -1)
+    by_date = ~by_name & ~np.isnat(gd)
+    at = date_index.get_indexer(gd[by_date]) if by_date.any() else np.zeros(0, np.int64)
+    pos[by_date] = np.where(at >= 0, date_rows[np.maximum(at, 0)] if len(date_rows) else -1, -1)
+    p: list[Problem] = []
+    for i in np.flatnonzero((by_name | by_date) & (pos < 0)):  # in grant order, as the rows are read
+        if by_name[i]:
+            p.append(Problem(gsrc, int(rows[i]), "assumption_set",
+                             f"{sets[i]!r} is not an assumption_set in the assumptions table"))
         else:
-            if np.isnat(gd[i]):
-                continue
-            j = by_date.get(gd[i], -1)
-            if j < 0:
-                p.append(Problem(gsrc, int(rows[i]), "grant_date",
-                                 f"no assumptions row has grant_date {gd[i]} (and assumption_set is blank)"))
-        pos[i] = j
+            p.append(Problem(gsrc, int(rows[i]), "grant_date",
+                             f"no assumptions row has grant_date {gd[i]} (and assumption_set is blank)"))
     return pos, p
 
 
@@ -234,8 +247,8 @@ def _lattice_range(g, a, gi, ai, valued, contract, asrc) -> list[Problem]:
 def check_tranches_table(t: pd.DataFrame, g: pd.DataFrame, src: str) -> tuple[pd.DataFrame, list[Problem]]:
     """Tranches given in the ledger: known grants, positive quantities, sums equal to the grant."""
     p: list[Problem] = []
-    index = {k: i for i, k in enumerate(g["grant_id"])}
-    gpos = np.array([index.get(k, -1) for k in t["grant_id"]], dtype=np.int64)
+    index = {k: i for i, k in enumerate(g["grant_id"].to_numpy(dtype=object))}
+    gpos = np.array([index.get(k, -1) for k in t["grant_id"].to_numpy(dtype=object)], dtype=np.int64)
     for r, k in zip(rows_where(t, (gpos < 0) & t["grant_id"].notna().to_numpy()), t["grant_id"][(gpos < 0) & t["grant_id"].notna()]):
         p.append(Problem(src, r, "grant_id", f"{k!r} is not a grant in the grants table"))
     q = t["quantity"].to_numpy()
@@ -270,9 +283,9 @@ def check_estimates(e: pd.DataFrame, g: pd.DataFrame, src: str) -> list[Problem]
         p.append(Problem(src, r, "annual_forfeiture_rate", f"must be at least 0 and below 1 (a decimal: 0.05 is 5%); got {x:g}"))
     for r, x in zip(rows_where(e, (frac <= 0) | (frac > 1)), frac[(frac <= 0) | (frac > 1)]):
         p.append(Problem(src, r, "expected_vest_fraction", f"must be above 0 and at most 1; got {x:g}"))
-    ids = set(g["grant_id"].dropna())
-    groups = set(g["group"].dropna())
-    for r, k in zip(e["_row"], e["applies_to"]):
+    ids = set(g["grant_id"].dropna().to_numpy(dtype=object))
+    groups = set(g["group"].dropna().to_numpy(dtype=object))
+    for r, k in zip(e["_row"].to_numpy(), e["applies_to"].to_numpy(dtype=object)):
         if k is None or k == "*" or k in ids or k in groups:
             continue
         p.append(Problem(src, int(r), "applies_to", f"{k!r} is not a grant_id, a group or '*'"))

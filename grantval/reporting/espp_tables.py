@@ -49,7 +49,7 @@ def _purchases(ledger, gi: np.ndarray, vest: np.ndarray, through):
     bought, price = np.full(len(gi), np.nan), np.full(len(gi), np.nan)
     if not len(ev):
         return bought, price
-    index = {k: i for i, k in enumerate(ledger.grants["grant_id"])}
+    index = {k: i for i, k in enumerate(ledger.grants["grant_id"].to_numpy(dtype=object))}
     key = {(g, v): j for j, (g, v) in enumerate(zip(gi, vest))}
     m = (ev["event_type"] == "purchase").to_numpy()
     for k, d, q, p in zip(ev["grant_id"][m], ev["event_date"][m].to_numpy("datetime64[D]"),

@@ -143,7 +143,7 @@ def cash_paid_rows(run, figures: dict | None = None) -> pd.DataFrame | None:
     paid = paid_in_period(f)
     gi, k = np.nonzero(paid)
     g = run.ledger.grants
-    types = dict(zip(g["grant_id"], g["award_type"]))
+    types = dict(zip(g["grant_id"].to_numpy(dtype=object), g["award_type"].to_numpy(dtype=object)))
     pos = f["grants"][gi]
     ids = np.asarray(run.inputs.grant_id, dtype=object)[pos]
     return pd.DataFrame({"grant_id": ids, "group": np.asarray(run.inputs.group, dtype=object)[pos],
@@ -200,7 +200,7 @@ def cash_from_ledger(run, lo, hi) -> np.ndarray:
     if engine is None:
         return out
     lo, hi = np.datetime64(lo, "D"), np.datetime64(hi, "D")
-    pos = {k: i for i, k in enumerate(g["grant_id"])}
+    pos = {k: i for i, k in enumerate(g["grant_id"].to_numpy(dtype=object))}
     strike = g["exercise_price"].to_numpy(float)
     for gid, kind, d, q, s in zip(ev["grant_id"], ev["event_type"], ev["event_date"].to_numpy("datetime64[D]"),
                                   ev["quantity"].to_numpy(float), ev["share_price"].to_numpy(float)):

@@ -121,7 +121,7 @@ def contribute(tables: dict, sources: dict):
     q = mods["quantity"].to_numpy(float)
     names = set(tables["assumptions"]["assumption_set"].dropna())
     valued = mods["assumption_set"].isin(names).to_numpy() | mods["fair_value_after"].notna().to_numpy()
-    kinds = dict(zip(g["grant_id"], g["award_type"]))
+    kinds = dict(zip(g["grant_id"].to_numpy(dtype=object), g["award_type"].to_numpy(dtype=object)))
     valued &= np.array([kinds.get(k) in ("option", "rsu") for k in mods["grant_id"]], dtype=bool)  # others refused
     # rows without valuation inputs get no grant: their own checks say what is missing
     up = np.flatnonzero(~np.isnan(q) & ~np.isnan(live) & (q > live) & (live > 0) & valued)

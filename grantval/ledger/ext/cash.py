@@ -61,9 +61,10 @@ def _exercise_rows(parts: LedgerParts) -> list[Problem]:
     if ev.empty:
         return []
     g = parts.grants
-    award = dict(zip(g["grant_id"], g["award_type"]))
+    award = dict(zip(g["grant_id"].to_numpy(dtype=object), g["award_type"].to_numpy(dtype=object)))
     p: list[Problem] = []
-    for r, gid, kind, s in zip(ev["_row"], ev["grant_id"], ev["event_type"], ev["share_price"].to_numpy(float)):
+    for r, gid, kind, s in zip(ev["_row"].to_numpy(), ev["grant_id"].to_numpy(dtype=object),
+                               ev["event_type"].to_numpy(dtype=object), ev["share_price"].to_numpy(float)):
         if award.get(gid) not in CASH_TYPES or kind != "exercise":
             continue
         if np.isnan(s):

@@ -86,8 +86,8 @@ class Terms:
 
 def grant_positions(grants: pd.DataFrame, mods: pd.DataFrame) -> np.ndarray:
     """Position in ``grants`` of each modification's grant (-1 when unknown)."""
-    index = {k: i for i, k in enumerate(grants["grant_id"])}
-    return np.array([index.get(k, -1) for k in mods["grant_id"]], dtype=np.int64)
+    index = {k: i for i, k in enumerate(grants["grant_id"].to_numpy(dtype=object))}
+    return np.array([index.get(k, -1) for k in mods["grant_id"].to_numpy(dtype=object)], dtype=np.int64)
 
 
 def _carry(values: np.ndarray, start: np.ndarray, new_group: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -330,10 +330,12 @@ def _grant_column_problems(g: pd.DataFrame, src: str) -> list[Problem]:
         return []
     p: list[Problem] = []
     rep = g["replaces_grant_id"].to_numpy(dtype=object)
-    ids = set(g["grant_id"])
-    for r, k, own in zip(g["_row"], rep, g["grant_id"]):
-        if pd.isna(k):
-            continue
+    given = np.flatnonzero(pd.notna(rep))
+    if not given.size:  # the common case: no replacements
+        return p
+    own_ids = g["grant_id"].to_numpy(dtype=object)
+    ids = set(own_ids)
+    for r, k, own in zip(g["_row"].to_numpy()[given], rep[given], own_ids[given]):
         if k == own:
             p.append(Problem(src, int(r), "replaces_grant_id", "a grant cannot replace itself"))
         elif k not in ids:

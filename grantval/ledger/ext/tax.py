@@ -113,7 +113,7 @@ def _dd_rate_problems(parts: LedgerParts) -> list[Problem]:
     dd = ev[(ev["event_type"] == DISQUALIFYING) & ev["grant_id"].isin(set(g["grant_id"].dropna()))]
     if dd.empty:
         return []
-    group = dict(zip(g["grant_id"], g["group"]))
+    group = dict(zip(g["grant_id"].to_numpy(dtype=object), g["group"].to_numpy(dtype=object)))
     first = _earliest_rate(parts, dd["grant_id"].to_numpy(dtype=object),
                            np.array([group[k] for k in dd["grant_id"]], dtype=object))
     day = dd["event_date"].to_numpy("datetime64[D]")
@@ -126,10 +126,11 @@ def _dd_rate_problems(parts: LedgerParts) -> list[Problem]:
 def _event_problems(parts: LedgerParts, treat: np.ndarray, with_rates: bool) -> list[Problem]:
     """Disqualifying dispositions (grant, share price, quantity) and exercises of deductible options without a price."""
     ev, g, src = parts.tables["events"], parts.grants, parts.sources["events"]
-    index = {k: i for i, k in enumerate(g["grant_id"])}
+    index = {k: i for i, k in enumerate(g["grant_id"].to_numpy(dtype=object))}
     exercisable = flag(g["award_type"].to_numpy(), "exercisable")
     out = []
-    for r, gid, kind, q, p in zip(ev["_row"], ev["grant_id"], ev["event_type"], ev["quantity"].to_numpy(float),
+    for r, gid, kind, q, p in zip(ev["_row"].to_numpy(), ev["grant_id"].to_numpy(dtype=object),
+                                  ev["event_type"].to_numpy(dtype=object), ev["quantity"].to_numpy(float),
                                   ev["share_price"].to_numpy(float)):
         i = index.get(gid)
         if i is None:
