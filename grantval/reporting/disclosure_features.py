@@ -82,7 +82,7 @@ def liability_section(run, out: FeatureSections) -> None:
 def espp_section(ledger, fair_values, start, through, out: FeatureSections) -> None:
     """``purchase_plan_activity.csv``: purchase rights open, enrolled, reached, withdrawn; shares bought.
 
-    Check: start + granted - reached - withdrawn - forfeited = end, the end counted on its own.
+    Check: start + granted - reached - withdrawn - rolled over - forfeited = end, the end counted on its own.
     """
     from grantval.reporting import espp_tables as E
 
@@ -90,7 +90,7 @@ def espp_section(ledger, fair_values, start, through, out: FeatureSections) -> N
         return
     frame, (a, b) = E.purchase_plan_activity(ledger, fair_values, str(start), str(through))
     out.tables["purchase_plan_activity.csv"] = frame
-    out.checks.append(CheckRow("Purchase-plan disclosure: start + granted - reached - withdrawn - forfeited = end",
+    out.checks.append(CheckRow("Purchase-plan disclosure: start + granted - reached - withdrawn - rolled over - forfeited = end",
                                a, b, 0, a == b))
 
 

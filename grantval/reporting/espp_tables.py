@@ -128,26 +128,32 @@ def espp_sheet(table: pd.DataFrame) -> Sheet:
 
 
 def _flows(ledger, through_lo, through_hi):
-    """Per ESPP tranche: shares withdrawn and forfeited (or cancelled) with dates in [lo, hi]."""
+    """Per ESPP tranche: shares withdrawn, rolled over and forfeited (or cancelled) with dates in [lo, hi]."""
     ch, tr = ledger.changes, ledger.tranches
     n = len(tr)
     if not len(ch):
-        return np.zeros(n, np.int64), np.zeros(n, np.int64)
+        return np.zeros(n, np.int64), np.zeros(n, np.int64), np.zeros(n, np.int64)
     d = ch["date"].to_numpy("datetime64[D]")
     in_win = (d >= through_lo) & (d <= through_hi)
-    by_withdraw = ledger.events["event_type"].to_numpy(object)[ch["event_idx"].to_numpy()] == "withdraw"
+    ev = ledger.events
+    e = ch["event_idx"].to_numpy()
+    by_withdraw = ev["event_type"].to_numpy(object)[e] == "withdraw"
+    by_rollover = pd.notna(ev["_replaced_by"].to_numpy(object)[e]) if "_replaced_by" in ev else np.zeros(len(e), bool)
     t, q = ch["tranche_idx"].to_numpy(), ch["quantity"].to_numpy(np.int64)
-    w = np.bincount(t[in_win & by_withdraw], weights=q[in_win & by_withdraw], minlength=n).astype(np.int64)
-    f = np.bincount(t[in_win & ~by_withdraw], weights=q[in_win & ~by_withdraw], minlength=n).astype(np.int64)
-    return w, f
+
+    def per_tranche(m):
+        return np.bincount(t[in_win & m], weights=q[in_win & m], minlength=n).astype(np.int64)
+
+    return per_tranche(by_withdraw), per_tranche(by_rollover), per_tranche(~by_withdraw & ~by_rollover)
 
 
 def purchase_plan_activity(ledger, fair_values, start, through) -> tuple[pd.DataFrame, tuple[int, int]]:
     """Roll-forward of ESPP purchase rights (shares at the start purchase price) from ``start`` to ``through``.
 
-    Lines: open at start, granted (enrolled), purchase date reached, withdrawn, forfeited or cancelled,
-    open at end; then shares bought (``purchase`` events) and their weighted-average price.  Returns
-    the table and the tie ``(start + granted - reached - withdrawn - forfeited, end)``.
+    Lines: open at start, granted (enrolled), purchase date reached, withdrawn, rolled over into a new
+    offering (a roll-over's replacement), forfeited or cancelled, open at end; then shares bought
+    (``purchase`` events) and their weighted-average price.  Returns the table and the tie
+    ``(start + granted - reached - withdrawn - rolled over - forfeited, end)``.
     """
     start, through = np.datetime64(start, "D"), np.datetime64(through, "D")
     g, tr = ledger.grants, ledger.tranches
@@ -160,16 +166,17 @@ def purchase_plan_activity(ledger, fair_values, start, through) -> tuple[pd.Data
     before = start - np.timedelta64(1, "D")
 
     def open_at(d):
-        w, f = _flows(ledger, early, d)
-        return np.where((gdate <= d) & (vest > d), qty - w - f, 0)
+        w, r, f = _flows(ledger, early, d)
+        return np.where((gdate <= d) & (vest > d), qty - w - r - f, 0)
 
-    w_in, f_in = _flows(ledger, start, through)
-    w_all, f_all = _flows(ledger, early, through)
-    reached = np.where((vest >= start) & (vest <= through), qty - w_all - f_all, 0)
+    w_in, r_in, f_in = _flows(ledger, start, through)
+    w_all, r_all, f_all = _flows(ledger, early, through)
+    reached = np.where((vest >= start) & (vest <= through), qty - w_all - r_all - f_all, 0)
     granted = np.where((gdate >= start) & (gdate <= through), qty, 0)
     o0, o1 = open_at(before), open_at(through)
     lines = [("Open at start", o0), ("Granted (enrolled)", granted), ("Purchase date reached", reached),
-             ("Withdrawn", w_in), ("Forfeited or cancelled", f_in), ("Open at end", o1)]
+             ("Withdrawn", w_in), ("Rolled over into a new offering", r_in), ("Forfeited or cancelled", f_in),
+             ("Open at end", o1)]
     fv = np.asarray(fair_values.tranche_value, float)
     rows = [(name, float(np.sum(x[espp])), _wavg(fv[espp], x[espp])) for name, x in lines]
     ev = ledger.events
@@ -180,7 +187,7 @@ def purchase_plan_activity(ledger, fair_values, start, through) -> tuple[pd.Data
     rows.append(("Shares bought (purchase events)", float(bought.sum()), float("nan")))
     rows.append(("Weighted-average purchase price", _wavg(paid, bought), float("nan")))
     frame = pd.DataFrame(rows, columns=["line", "number", "weighted_average_grant_date_fair_value"])
-    tie = (int(np.sum((o0 + granted - reached - w_in - f_in)[espp])), int(np.sum(o1[espp])))
+    tie = (int(np.sum((o0 + granted - reached - w_in - r_in - f_in)[espp])), int(np.sum(o1[espp])))
     return frame, tie
 
 

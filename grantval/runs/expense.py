@@ -135,7 +135,7 @@ def _espp_parts(run: ExpenseRun) -> tuple[list, list]:
     sheets = [E.espp_sheet(E.espp_table(run.ledger, run.fair_values, run.through)), E.activity_sheet(activity)]
     if getattr(run.inputs, "espp_resets", None) is not None:
         sheets.append(E.reset_sheet(E.reset_table(run.inputs)))
-    check = CheckRow("Purchase-plan roll-forward: start + granted - reached - withdrawn - forfeited = end", a, b, 0,
+    check = CheckRow("Purchase-plan roll-forward: start + granted - reached - withdrawn - rolled over - forfeited = end", a, b, 0,
                      a == b)
     return sheets, [check]
 

@@ -392,12 +392,13 @@ def test_purchase_plan_activity_rolls_forward_and_ties(tmp_path):
                      event("O27/H1", "2028-01-01", "purchase", "100", "16")])
     run = api.expense(folder, through="2028-12-31")
     year1, tie1 = purchase_plan_activity(run.ledger, run.fair_values, "2027-01-01", "2027-12-31")
-    assert year1["number"].tolist()[:6] == [0, 300, 150, 50, 0, 100]  # counted by hand from the ledger above
+    # counted by hand from the ledger above (no roll-over: that line is 0)
+    assert year1["number"].tolist()[:7] == [0, 300, 150, 50, 0, 0, 100]
     assert tie1 == (100, 100)
-    assert year1["number"].iloc[6] == 100 and year1["number"].iloc[7] == 17
+    assert year1["number"].iloc[7] == 100 and year1["number"].iloc[8] == 17
     year2, tie2 = purchase_plan_activity(run.ledger, run.fair_values, "2028-01-01", "2028-12-31")
-    assert year2["number"].tolist()[:6] == [100, 0, 100, 0, 0, 0] and tie2 == (0, 0)
-    assert year2["number"].iloc[7] == 16
+    assert year2["number"].tolist()[:7] == [100, 0, 100, 0, 0, 0, 0] and tie2 == (0, 0)
+    assert year2["number"].iloc[8] == 16
     from grantval.reporting.espp_tables import activity_sheet
 
     sheet = activity_sheet(year1)
@@ -405,7 +406,7 @@ def test_purchase_plan_activity_rolls_forward_and_ties(tmp_path):
     # one unit per column: share counts (whole-number format) apart from the price paid per share
     assert list(sheet.frame.columns) == ["line", "shares", "weighted_average_grant_date_fair_value",
                                          "weighted_average_purchase_price"]
-    assert sheet.frame["shares"].tolist() == [0, 300, 150, 50, 0, 100, 100]
+    assert sheet.frame["shares"].tolist() == [0, 300, 150, 50, 0, 0, 100, 100]
     assert sheet.frame["weighted_average_purchase_price"].iloc[-1] == 17
     assert sheet.frame["weighted_average_purchase_price"].iloc[:-1].isna().all()
     assert sheet.formats["shares"] == "#,##0"

@@ -146,3 +146,14 @@ def test_a_capped_fixed_shares_offering_rolls_over_per_share_counted(tmp_path):
     run = _run(tmp_path / "l", old={"max_shares": "60"})
     assert run.inputs.modifications.replacements.values.value_before == pytest.approx([60 * _old_value(184)],
                                                                                       rel=1e-10)
+
+
+def test_the_activity_roll_forward_shows_the_roll_over_and_ties(tmp_path):
+    # the old period not yet reached (100 shares) leaves the roll-forward as rolled over, not as forfeited
+    from grantval.reporting.espp_tables import purchase_plan_activity
+
+    run = _run(tmp_path / "l")
+    frame, (a, b) = purchase_plan_activity(run.ledger, run.fair_values, "2027-01-01", "2028-09-30")
+    lines = dict(zip(frame["line"], frame["number"]))
+    assert lines["Rolled over into a new offering"] == 100 and lines["Forfeited or cancelled"] == 0
+    assert lines["Granted (enrolled)"] == 400 and lines["Purchase date reached"] == 300 and a == b == 0

@@ -166,7 +166,7 @@ def test_performance_unit_roll_forward_turns_to_fail(tmp_path, monkeypatch):
     assert r.exit_code == 1 and f"check failed: {PSU_CHECK}" in r.output
 
 
-ESPP_CHECK = "Purchase-plan roll-forward: start + granted - reached - withdrawn - forfeited = end"
+ESPP_CHECK = "Purchase-plan roll-forward: start + granted - reached - withdrawn - rolled over - forfeited = end"
 
 
 def test_purchase_plan_roll_forward_turns_to_fail(tmp_path, monkeypatch):
