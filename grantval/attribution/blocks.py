@@ -8,9 +8,7 @@ arithmetic on the same numbers).  It is faster for large ledgers because one blo
 date, where the whole ledger's arrays (a million tranches and more) go through memory at every
 step.
 
-:func:`grantval.attribution.engine.measure` and the schedule use the blocks by themselves (the
-sub-inputs are built once per inputs object, :func:`blocks_of`).  Only inputs without the features
-that reach across the engine's arrays are blocked: cost hooks
+Only inputs without the features that reach across the engine's arrays are blocked: cost hooks
 (performance units, liabilities, service before the grant date), layers besides the grant-date
 ones (modifications, purchase-plan resets), moved service ends, scenario adjustments of the
 estimates and shared memos.  Other inputs take the whole-ledger path.
@@ -34,8 +32,6 @@ MIN_TRANCHES = 2 * BLOCK_TRANCHES
 
 def blockable(inp: ExpenseInputs) -> bool:
     """Whether ``inp`` may be computed by blocks of grants (see the module docstring)."""
-    if inp._block:
-        return False
     t_grant = np.asarray(inp.t_grant)
     return (not inp.cost_hooks and inp.memo is None and inp.service_end_history is None
             and inp.estimate_adjust is None and len(inp.layers) == len(inp.t_qty)
@@ -72,15 +68,7 @@ def sub_inputs(inp: ExpenseInputs, g0: int, g1: int, t0: int, t1: int) -> Expens
         last_vest=inp.last_vest[g0:g1], t_grant=np.asarray(inp.t_grant)[t0:t1] - g0, t_vest=inp.t_vest[t0:t1],
         t_qty=inp.t_qty[t0:t1], t_fv=inp.t_fv[t0:t1], c_tranche=inp.c_tranche[c] - t0, c_date=inp.c_date[c],
         c_qty=inp.c_qty[c], c_kind=inp.c_kind[c], t_service_end=inp.t_service_end[t0:t1], layers=layers,
-        _prep=None, _blocks=None, _block=True)
-
-
-def blocks_of(inp: ExpenseInputs) -> list[ExpenseInputs]:
-    """The sub-inputs of ``inp``'s blocks of grants, built once and kept on ``inp`` (each keeps its own
-    prepared arrays, so every later measurement of ``inp`` reuses them)."""
-    if inp._blocks is None:
-        inp._blocks = [sub_inputs(inp, *b) for b in grant_blocks(np.asarray(inp.t_grant), inp.n_grants)]
-    return inp._blocks
+        _prep=None)
 
 
 def joined(parts: list[Measurement]) -> Measurement:

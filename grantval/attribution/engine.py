@@ -212,12 +212,6 @@ def measure(inp: ExpenseInputs, d, *, attribution: str, forfeitures: str, events
         Compute only ``grant_cost`` (the schedule's periods need nothing else); the other
         per-grant figures of the result are then None.  The cost is the same either way.
     """
-    from grantval.attribution import blocks
-
-    if blocks.blockable(inp):  # a large plain ledger: a block of grants at a time, the same figures
-        return blocks.joined([measure(b, d, attribution=attribution, forfeitures=forfeitures,
-                                      events_through=events_through, estimates_as_of=estimates_as_of,
-                                      frozen_at=frozen_at, cost_only=cost_only) for b in blocks.blocks_of(inp)])
     dn = int(np.datetime64(d, "D").astype(np.int64))
     cut = dn if events_through is None else min(dn, int(np.datetime64(events_through, "D").astype(np.int64)))
     est_day = None if estimates_as_of is None else int(np.datetime64(estimates_as_of, "D").astype(np.int64))

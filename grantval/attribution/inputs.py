@@ -63,9 +63,6 @@ class ExpenseInputs:
     #: dates before the modification); None when no modification moved one
     service_end_history: tuple | None = None
     _prep: object = None
-    #: blocks of grants (attribution.blocks): the sub-inputs, built once; ``_block``: this is one of them
-    _blocks: object = None
-    _block: bool = False
 
     def __post_init__(self):
         if self.t_service_end is None:

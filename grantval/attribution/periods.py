@@ -135,8 +135,8 @@ def _by_blocks(inp: ExpenseInputs, start, ends, fends, kw: dict):
 
     if not blocks.blockable(inp):
         return _cumulative(inp, start, ends, fends, kw, track_periods=True)
-    todo = blocks.blocks_of(inp)
-    parts = [_cumulative(b, start, ends, fends, kw) for b in track(todo, len(todo), "grants")]
+    todo = blocks.grant_blocks(np.asarray(inp.t_grant), inp.n_grants)
+    parts = [_cumulative(blocks.sub_inputs(inp, *b), start, ends, fends, kw) for b in track(todo, len(todo), "grants")]
     opening, cum, fcum, at = zip(*parts)
     return np.concatenate(opening), np.vstack(cum), np.vstack(fcum), blocks.joined(list(at))
 

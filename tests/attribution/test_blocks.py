@@ -57,24 +57,3 @@ def test_features_across_the_arrays_take_the_whole_ledger_path(tmp_path, monkeyp
     monkeypatch.setattr(blocks, "MIN_TRANCHES", 0)
     run = api.expense(shortened(tmp_path / "m"), through="2028-12-31")
     assert not blocks.blockable(run.inputs)
-
-
-@pytest.mark.parametrize("attribution", ["graded", "straight-line"])
-def test_measure_by_blocks_gives_every_whole_ledger_figure(tmp_path, monkeypatch, attribution):
-    # engine.measure itself takes the blocks on a blockable ledger (the disclosure, checks and bridge call
-    # it); every field of its result matches the whole-ledger path, also for forecasts (frozen_at)
-    from grantval.attribution.engine import measure
-
-    folder = write_ledger(tmp_path / "l", random_ledger(5, n=30))
-    run = _run(folder, monkeypatch, True, attribution=attribution, forfeitures="estimate")
-    kw = dict(attribution=attribution, forfeitures="estimate")
-    for d, extra in (("2028-06-30", {}), ("2030-12-31", {"events_through": "2029-01-01", "frozen_at": "2029-01-01"})):
-        monkeypatch.setattr(blocks, "MIN_TRANCHES", 0)
-        assert blocks.blockable(run.inputs)
-        parts = measure(run.inputs, np.datetime64(d), **kw, **extra)
-        monkeypatch.setattr(blocks, "MIN_TRANCHES", 10**12)
-        whole = measure(run.inputs, np.datetime64(d), **kw, **extra)
-        assert whole.grant_cost.any()
-        for f in fields(Measurement):
-            x, y = getattr(whole, f.name), getattr(parts, f.name)
-            assert (x is None and y is None) or np.array_equal(x, y, equal_nan=True), f.name
