@@ -18,10 +18,26 @@ from __future__ import annotations
 import numpy as np
 
 from grantval.errors import InputError
-from grantval.pricing._inputs import FINITE, NON_NEGATIVE, finish, prepare
+from grantval.pricing._inputs import FINITE, NON_NEGATIVE, POSITIVE, finish, prepare
 from grantval.pricing.bsm import _bsm
 
 BASES = ("fixed_shares", "fixed_withholding")
+DISCOUNT = (lambda a: (a >= 0) & (a < 1), "from 0 up to but excluding 1")
+
+
+def _check_choices(basis, lookback=True) -> None:
+    """``basis`` one of :data:`BASES` and ``lookback`` a bool, or :class:`InputError`."""
+    if basis not in BASES:
+        raise InputError(f"basis must be 'fixed_shares' or 'fixed_withholding'; got {basis!r}")
+    if not isinstance(lookback, (bool, np.bool_)):
+        raise InputError(f"lookback must be True or False; got {lookback!r}")
+
+
+def _prepared(prices: dict, term, rate, volatility, dividend_yield, discount):
+    """:func:`prepare` of the ``prices`` (name -> (value, rules)) and the common market inputs, in that order."""
+    return prepare(**prices, term=(term, (NON_NEGATIVE,)), rate=(rate, (FINITE,)),
+                   volatility=(volatility, (NON_NEGATIVE,)), dividend_yield=(dividend_yield, (NON_NEGATIVE,)),
+                   discount=(discount, (DISCOUNT,)))
 
 
 def espp_value(
@@ -77,18 +93,9 @@ def espp_value(
     - no look-back, fixed withholding: ``d S_0 e^{-rT}`` (a known cash
       amount, ``d / (1 - d)`` of the withholdings, at the purchase date).
     """
-    if basis not in BASES:
-        raise InputError(f"basis must be 'fixed_shares' or 'fixed_withholding'; got {basis!r}")
-    if not isinstance(lookback, (bool, np.bool_)):
-        raise InputError(f"lookback must be True or False; got {lookback!r}")
-    (s, t, r, sigma, q, d), scalar = prepare(
-        share_price=(share_price, (NON_NEGATIVE,)),
-        term=(term, (NON_NEGATIVE,)),
-        rate=(rate, (FINITE,)),
-        volatility=(volatility, (NON_NEGATIVE,)),
-        dividend_yield=(dividend_yield, (NON_NEGATIVE,)),
-        discount=(discount, ((lambda a: (a >= 0) & (a < 1), "from 0 up to but excluding 1"),)),
-    )
+    _check_choices(basis, lookback)
+    (s, t, r, sigma, q, d), scalar = _prepared({"share_price": (share_price, (NON_NEGATIVE,))}, term, rate,
+                                               volatility, dividend_yield, discount)
     return finish(_espp(s, t, r, sigma, q, d, bool(lookback), basis == "fixed_shares"), scalar)
 
 
@@ -153,17 +160,10 @@ def espp_reset_increment(
     - fixed shares: ``(1 - d) [S_0 e^{-r t} - p(S_0) - S e^{-r t} + p(S)]``;
     - fixed withholding: ``(S_0 / S) c(S) - c(S_0)``.
     """
-    if basis not in BASES:
-        raise InputError(f"basis must be 'fixed_shares' or 'fixed_withholding'; got {basis!r}")
-    (s, s0, t, r, sigma, q, d), scalar = prepare(
-        share_price=(share_price, ((lambda a: a > 0, "greater than 0"),)),
-        start_price=(start_price, ((lambda a: a > 0, "greater than 0"),)),
-        term=(term, (NON_NEGATIVE,)),
-        rate=(rate, (FINITE,)),
-        volatility=(volatility, (NON_NEGATIVE,)),
-        dividend_yield=(dividend_yield, (NON_NEGATIVE,)),
-        discount=(discount, ((lambda a: (a >= 0) & (a < 1), "from 0 up to but excluding 1"),)),
-    )
+    _check_choices(basis)
+    (s, s0, t, r, sigma, q, d), scalar = _prepared(
+        {"share_price": (share_price, (POSITIVE,)), "start_price": (start_price, (POSITIVE,))},
+        term, rate, volatility, dividend_yield, discount)
     if np.any(s > s0 * (1 + 1e-12)):
         raise InputError("share_price must not exceed start_price: a reset lowers the look-back's reference price")
     return finish(_reset_increment(s, s0, t, r, sigma, q, d, basis == "fixed_shares"), scalar)
@@ -222,19 +222,10 @@ def espp_remaining_value(
     - no look-back, fixed shares: ``d S e^{-qt}``;
     - no look-back, fixed withholding: ``d K e^{-rt}``.
     """
-    if basis not in BASES:
-        raise InputError(f"basis must be 'fixed_shares' or 'fixed_withholding'; got {basis!r}")
-    if not isinstance(lookback, (bool, np.bool_)):
-        raise InputError(f"lookback must be True or False; got {lookback!r}")
-    (s, k, t, r, sigma, q, d), scalar = prepare(
-        share_price=(share_price, ((lambda a: a > 0, "greater than 0"),)),
-        reference_price=(reference_price, ((lambda a: a > 0, "greater than 0"),)),
-        term=(term, (NON_NEGATIVE,)),
-        rate=(rate, (FINITE,)),
-        volatility=(volatility, (NON_NEGATIVE,)),
-        dividend_yield=(dividend_yield, (NON_NEGATIVE,)),
-        discount=(discount, ((lambda a: (a >= 0) & (a < 1), "from 0 up to but excluding 1"),)),
-    )
+    _check_choices(basis, lookback)
+    (s, k, t, r, sigma, q, d), scalar = _prepared(
+        {"share_price": (share_price, (POSITIVE,)), "reference_price": (reference_price, (POSITIVE,))},
+        term, rate, volatility, dividend_yield, discount)
     return finish(_remaining(s, k, t, r, sigma, q, d, bool(lookback), basis == "fixed_shares"), scalar)
 
 
