@@ -34,8 +34,7 @@ def blockable(inp: ExpenseInputs) -> bool:
     """Whether ``inp`` may be computed by blocks of grants (see the module docstring)."""
     t_grant = np.asarray(inp.t_grant)
     return (not inp.cost_hooks and inp.memo is None and inp.service_end_history is None
-            and inp.estimate_adjust is None and len(inp.layers) == len(inp.t_qty)
-            and np.array_equal(inp.layers.tranche, np.arange(len(inp.t_qty)))
+            and inp.estimate_adjust is None and len(inp.layers) == len(inp.t_qty)  # grant-date layers only
             and bool(np.all(np.diff(t_grant) >= 0)) and len(inp.t_qty) >= MIN_TRANCHES)
 
 

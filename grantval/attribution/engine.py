@@ -239,12 +239,7 @@ def measure(inp: ExpenseInputs, d, *, attribution: str, forfeitures: str, events
         remaining = weighted / np.where(unrec > 0, unrec, 1.0)
     else:
         total = np.bincount(lg, weights=np.where(started, value, 0.0), minlength=n_g)
-        by_set = np.bincount(pre.l_set, weights=value, minlength=len(pre.set_grant)) * Q.el_set
-        vested_value = np.bincount(lg, weights=np.where(pre.on_layers(Q.vested) & started, value, 0.0), minlength=n_g)
-        cost = np.maximum(np.bincount(pre.set_grant, weights=by_set, minlength=n_g), vested_value)
-        # every tranche vested (also by acceleration): the cost is the vested value, even if lower
-        all_vested = np.bincount(lg, weights=(started & ~pre.on_layers(Q.vested)).astype(float), minlength=n_g) == 0
-        cost = np.where(all_vested & Q.granted_g, vested_value, cost)
+        cost = _straight_line_cost(pre, Q, value, n_g)
         unrec = np.where(Q.granted_g, total - cost, 0.0)
         remaining = Q.years_left_g
     remaining = np.where(unrec > 0, remaining, 0.0)
@@ -263,6 +258,17 @@ def measure(inp: ExpenseInputs, d, *, attribution: str, forfeitures: str, events
     )
 
 
+def _straight_line_cost(pre, Q: _Quantities, value: np.ndarray, n_g: int) -> np.ndarray:
+    """Per grant: straight-line cost, each layer set served over its own period, at least the vested value."""
+    lg = pre.l_grant
+    by_set = np.bincount(pre.l_set, weights=value, minlength=len(pre.set_grant)) * Q.el_set
+    vested_value = np.bincount(lg, weights=np.where(pre.on_layers(Q.vested) & Q.started, value, 0.0), minlength=n_g)
+    cost = np.maximum(np.bincount(pre.set_grant, weights=by_set, minlength=n_g), vested_value)
+    # every tranche vested (also by acceleration): the cost is the vested value, even if lower
+    all_vested = np.bincount(lg, weights=(Q.started & ~pre.on_layers(Q.vested)).astype(float), minlength=n_g) == 0
+    return np.where(all_vested & Q.granted_g, vested_value, cost)
+
+
 def _cost_only(inp: ExpenseInputs, Q: _Quantities, value: np.ndarray, cancel_cost: np.ndarray,
                attribution: str) -> Measurement:
     """``measure``'s cost alone: the same arithmetic as its full path, without the other figures."""
@@ -271,11 +277,7 @@ def _cost_only(inp: ExpenseInputs, Q: _Quantities, value: np.ndarray, cancel_cos
     if attribution == "graded":
         cost = np.bincount(lg, weights=value * Q.elapsed, minlength=n_g)
     else:
-        by_set = np.bincount(pre.l_set, weights=value, minlength=len(pre.set_grant)) * Q.el_set
-        vested_value = np.bincount(lg, weights=np.where(pre.on_layers(Q.vested) & Q.started, value, 0.0), minlength=n_g)
-        cost = np.maximum(np.bincount(pre.set_grant, weights=by_set, minlength=n_g), vested_value)
-        all_vested = np.bincount(lg, weights=(Q.started & ~pre.on_layers(Q.vested)).astype(float), minlength=n_g) == 0
-        cost = np.where(all_vested & Q.granted_g, vested_value, cost)
+        cost = _straight_line_cost(pre, Q, value, n_g)
     return Measurement(
         n_expensed=Q.n_exp, outstanding=Q.outstanding, cancelled=Q.cancelled,
         elapsed=None if Q.elapsed is None else Q.elapsed[:len(inp.t_qty)],
