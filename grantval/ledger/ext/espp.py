@@ -184,6 +184,14 @@ def _enrollment_problems(e: pd.DataFrame, o: pd.DataFrame, o_ok: np.ndarray, src
     return p, pos
 
 
+def _capped_withholding(o: pd.DataFrame, j: int) -> bool:
+    """Offering row ``j`` is fixed-withholding with ``max_shares``: its resets and roll-overs are not supported yet.
+
+    (Under fixed shares the cap only sets the shares counted; the value per share counted is the uncapped one.)
+    """
+    return not np.isnan(float(o["max_shares"].iat[j])) and o["shares_basis"].iat[j] != "fixed_shares"
+
+
 def reset_problems(r: pd.DataFrame, o: pd.DataFrame, dates: list, o_ok: np.ndarray, src: str,
                    osrc: str) -> list[Problem]:
     """Row checks of the resets: a known look-back offering, a date inside it, a lower price, valid inputs."""
@@ -209,7 +217,7 @@ def reset_problems(r: pd.DataFrame, o: pd.DataFrame, dates: list, o_ok: np.ndarr
             p.append(Problem(src, row, "offering_id", f"offering {k!r} has no look-back: a reset changes the "
                              "look-back's reference price, and its purchase price already follows the share price"))
             continue
-        if not np.isnan(float(o["max_shares"].iat[j])) and o["shares_basis"].iat[j] != "fixed_shares":
+        if _capped_withholding(o, j):
             p.append(Problem(src, row, "offering_id", f"resets of a fixed-withholding offering with max_shares "
                              f"({k!r}) are not supported yet"))
             continue
@@ -264,8 +272,7 @@ def rollover_problems(o: pd.DataFrame, dates: list, o_ok: np.ndarray, src: str,
                    f"offering {k!r} and before its last purchase date {dates[j][-1]}")
         elif k in taken:
             msg = f"offering {k!r} already rolls over into offering {taken[k]!r}"
-        elif (not np.isnan(float(o["max_shares"].iat[j])) and o["shares_basis"].iat[j] != "fixed_shares") \
-                or k in reset_ids:
+        elif _capped_withholding(o, j) or k in reset_ids:
             msg = (f"roll-overs of an offering with resets, or of a fixed-withholding offering with max_shares "
                    f"({k!r}), are not supported yet")
         if msg is not None:
