@@ -52,7 +52,7 @@ def link_rollovers(grants: pd.DataFrame, rolled: dict, tables: dict, sources: di
     offering = grants["_espp_offering"].to_numpy(object)
     holder = grants["holder_id"].to_numpy(object)
     for new, (old, day, row) in rolled.items():
-        in_new = set(holder[offering == new])
+        in_new = {h: i for i, h in zip(np.flatnonzero(offering == new), holder[offering == new])}
         olds = np.flatnonzero(offering == old)
         left = _left_by(tables, set(grants["grant_id"].iloc[olds]), day)
         for i in olds:
@@ -65,6 +65,6 @@ def link_rollovers(grants: pd.DataFrame, rolled: dict, tables: dict, sources: di
                                  f" row {row}): enroll {h!r} in {new!r} too, or record a withdraw or forfeit of {gid} "
                                  f"on or before {day}"))
                 continue
-            link[np.flatnonzero((offering == new) & (holder == h))] = gid
+            link[in_new[h]] = gid
     grants["replaces_grant_id"] = link
     return grants, p

@@ -166,37 +166,58 @@ def pairs(tranches: pd.DataFrame, gp: np.ndarray) -> tuple[np.ndarray, np.ndarra
     return p_mod, p_tr.astype(np.int64)
 
 
-def _scheduled_dates(grants, tranches, t: Terms, p_mod, p_tr):
-    """Per pair: the vesting date of the tranche's first and last unit under the modification's new schedule."""
+@dataclass
+class NewSchedules:
+    """The new schedules of some modifications, generated like grants' own, with the ledger's units.
+
+    Units are counted in vesting order within each grant: ledger tranche ``i`` holds units
+    ``(lo[i], hi[i]]``; new tranche ``n`` of schedule ``s`` ends at unit ``cum[n]`` and vests on
+    ``date[n]``.  ``key = s * width + cum`` is sorted, for ``searchsorted`` by (schedule, unit).
+    """
+
+    which: np.ndarray   # per modification: its schedule's position (-1: not among them)
+    key: np.ndarray
+    width: np.int64
+    cum: np.ndarray
+    date: np.ndarray
+    lo: np.ndarray
+    hi: np.ndarray
+
+
+def new_schedules(grants, tranches, t: Terms, mods: np.ndarray) -> NewSchedules:
+    """The new schedules of modifications ``mods`` (positions in ``t``), for the grants' quantities granted."""
     from grantval.ledger.schedule import generate_tranches
 
+    g = grants.iloc[t.gp[mods]]
+    granted = np.bincount(tranches["grant_idx"].to_numpy(), weights=tranches["quantity"].to_numpy(float),
+                          minlength=len(grants))[t.gp[mods]]
+    pseudo = pd.DataFrame({"quantity": np.round(granted).astype(np.int64),
+                           "vest_start_date": g["vest_start_date"].to_numpy("datetime64[D]"),
+                           **{c: t.schedule_after[mods, k].astype(np.int64) for k, c in enumerate(SCHEDULE)}})
+    new = generate_tranches(pseudo)
+    n_gi = new["grant_idx"].to_numpy(np.int64)
+    cum = _cum_within(n_gi, new["quantity"].to_numpy(np.int64))
+    q = tranches["quantity"].to_numpy(np.int64)
+    hi = _cum_within(tranches["grant_idx"].to_numpy(), q)
+    which = np.full(len(t.gp), -1, dtype=np.int64)
+    which[mods] = np.arange(len(mods))
+    width = np.int64(max(int(cum.max(initial=0)), int(hi.max(initial=0))) + 2)
+    return NewSchedules(which, n_gi * width + cum, width, cum, new["vest_date"].to_numpy("datetime64[D]"), hi - q, hi)
+
+
+def _scheduled_dates(grants, tranches, t: Terms, p_mod, p_tr):
+    """Per pair: the vesting date of the tranche's first and last unit under the modification's new schedule."""
     first = np.full(len(p_mod), np.datetime64("NaT"), dtype="datetime64[D]")
     last = first.copy()
     mods = np.flatnonzero(t.reschedule) if t.reschedule is not None else np.zeros(0, np.int64)
     if not len(mods):
         return first, last
-    g = grants.iloc[t.gp[mods]]
-    granted = np.bincount(tranches["grant_idx"].to_numpy(), weights=tranches["quantity"].to_numpy(float),
-                          minlength=len(grants))[t.gp[mods]]
-    pseudo = pd.DataFrame({"quantity": granted.astype(np.int64),
-                           "vest_start_date": g["vest_start_date"].to_numpy("datetime64[D]"),
-                           **{c: t.schedule_after[mods, k].astype(np.int64) for k, c in enumerate(SCHEDULE)}})
-    new = generate_tranches(pseudo)
-    n_gi, n_q = new["grant_idx"].to_numpy(), new["quantity"].to_numpy(np.int64)
-    n_cum = _cum_within(n_gi, n_q)
-    # units of each tranche in vesting order within its grant: (lo, hi]
-    q = tranches["quantity"].to_numpy(np.int64)
-    hi_t = _cum_within(tranches["grant_idx"].to_numpy(), q)
-    lo_t = hi_t - q
-    which = np.full(len(t.gp), -1, dtype=np.int64)
-    which[mods] = np.arange(len(mods))
-    m = which[p_mod] >= 0
-    k = which[p_mod][m]
-    width = np.int64(max(int(n_cum.max(initial=0)), int(hi_t.max(initial=0))) + 2)
-    key = n_gi.astype(np.int64) * width + n_cum
-    pos_first = np.searchsorted(key, k * width + lo_t[p_tr][m] + 1, side="left")
-    pos_last = np.searchsorted(key, k * width + hi_t[p_tr][m], side="left")
-    d = new["vest_date"].to_numpy("datetime64[D]")
+    ns = new_schedules(grants, tranches, t, mods)
+    m = ns.which[p_mod] >= 0
+    k = ns.which[p_mod][m]
+    pos_first = np.searchsorted(ns.key, k * ns.width + ns.lo[p_tr][m] + 1, side="left")
+    pos_last = np.searchsorted(ns.key, k * ns.width + ns.hi[p_tr][m], side="left")
+    d = ns.date
     pos_first, pos_last = np.minimum(pos_first, len(d) - 1), np.minimum(pos_last, len(d) - 1)
     first[m], last[m] = d[pos_first], d[pos_last]
     return first, last
@@ -391,26 +412,30 @@ def _ended(parts: LedgerParts, t: Terms, live: np.ndarray, src: str, rows: np.nd
     return p
 
 
+def schedule_fault(months: float, every: float, cliff: float) -> tuple[str, str] | None:
+    """(column, message) where a schedule in force breaks the grants table's rules, else None."""
+    if months < 0:
+        return "vest_months", f"must be zero or more; got {months:g}"
+    if months > 1200:
+        return "vest_months", f"{months:g} months is more than 100 years"
+    if every < 1:
+        return "vest_every_months", f"must be at least 1; got {every:g}"
+    if months % every:
+        return "vest_months", f"{months:g} is not a multiple of vest_every_months ({every:g}, in force)"
+    if cliff < 0 or cliff > months:
+        return "cliff_months", f"{cliff:g} must be from 0 to vest_months ({months:g}, in force)"
+    return None
+
+
 def _schedule_problems(t: Terms, v: Vesting, tranches: pd.DataFrame, src: str, rows: np.ndarray) -> list[Problem]:
     """A new schedule that is not one (as the grants table's checks), or a tranche still split after cutting."""
     p: list[Problem] = []
-    months, every, cliff = (t.schedule_after[:, k] for k in range(3))
     bad = np.zeros(len(t.gp), dtype=bool)
     for i in np.flatnonzero(t.reschedule):
-        r, col, msg = int(rows[i]), None, None
-        if months[i] < 0:
-            col, msg = "vest_months", f"must be zero or more; got {months[i]:g}"
-        elif months[i] > 1200:
-            col, msg = "vest_months", f"{months[i]:g} months is more than 100 years"
-        elif every[i] < 1:
-            col, msg = "vest_every_months", f"must be at least 1; got {every[i]:g}"
-        elif months[i] % every[i]:
-            col, msg = "vest_months", f"{months[i]:g} is not a multiple of vest_every_months ({every[i]:g}, in force)"
-        elif cliff[i] < 0 or cliff[i] > months[i]:
-            col, msg = "cliff_months", f"{cliff[i]:g} must be from 0 to vest_months ({months[i]:g}, in force)"
-        if col is not None:
+        fault = schedule_fault(*t.schedule_after[i])
+        if fault is not None:
             bad[i] = True
-            p.append(Problem(src, r, col, msg))
+            p.append(Problem(src, int(rows[i]), *fault))
     number = tranches["tranche"].to_numpy() if "tranche" in tranches else np.zeros(len(tranches), np.int64)
     qty = tranches["quantity"].to_numpy(np.int64)
     for j in np.flatnonzero(v.split):

@@ -22,7 +22,8 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-from grantval.ledger.ext.modifications import SCHEDULE, Terms, _cum_within, terms, vesting
+from grantval.ledger.ext.modifications import (SCHEDULE, Terms, _cum_within, new_schedules, schedule_fault, terms,
+                                               vesting)
 
 #: schedule changes of one grant can cut a piece again (a second change's boundaries): passes at most
 PASSES = 8
@@ -62,11 +63,9 @@ def split_tranches(grants: pd.DataFrame, tables: dict, tranches: pd.DataFrame) -
 
 
 def _valid(after: np.ndarray) -> np.ndarray:
-    """Per modification: its schedule in force passes the grants table's checks (months, integers)."""
-    months, every, cliff = after[:, 0], after[:, 1], after[:, 2]
-    finite = np.isfinite(after).all(axis=1) & (after == np.round(after)).all(axis=1)
-    ok = finite & (months >= 0) & (months <= 1200) & (every >= 1) & (cliff >= 0) & (cliff <= months)
-    return ok & (np.mod(months, np.where(every >= 1, every, 1)) == 0)
+    """Per modification: its schedule in force is whole numbers passing the grants table's rules."""
+    whole = np.isfinite(after).all(axis=1) & (after == np.round(after)).all(axis=1)
+    return np.array([bool(w) and schedule_fault(*row) is None for w, row in zip(whole, after)], dtype=bool)
 
 
 def _cuts(grants: pd.DataFrame, tranches: pd.DataFrame, t: Terms, v) -> tuple[np.ndarray, np.ndarray]:
@@ -75,36 +74,17 @@ def _cuts(grants: pd.DataFrame, tranches: pd.DataFrame, t: Terms, v) -> tuple[np
     A cut sits at each end of a new-schedule tranche strictly inside the tranche's units whose date
     (the modification date at the earliest) differs from the next new tranche's.
     """
-    from grantval.ledger.schedule import generate_tranches
-
     j = np.flatnonzero(v.split)
-    mods = np.unique(v.p_mod[j])
-    which = np.full(len(t.gp), -1, dtype=np.int64)
-    which[mods] = np.arange(len(mods))
-    granted = np.bincount(tranches["grant_idx"].to_numpy(), weights=tranches["quantity"].to_numpy(float),
-                          minlength=len(grants))[t.gp[mods]]
-    g = grants.iloc[t.gp[mods]]
-    pseudo = pd.DataFrame({"quantity": np.round(granted).astype(np.int64),
-                           "vest_start_date": g["vest_start_date"].to_numpy("datetime64[D]"),
-                           **{c: t.schedule_after[mods, k].astype(np.int64) for k, c in enumerate(SCHEDULE)}})
-    new = generate_tranches(pseudo)
-    n_gi, n_q = new["grant_idx"].to_numpy(np.int64), new["quantity"].to_numpy(np.int64)
-    n_cum = _cum_within(n_gi, n_q)
-    n_date = new["vest_date"].to_numpy("datetime64[D]")
-    q = tranches["quantity"].to_numpy(np.int64)
-    hi = _cum_within(tranches["grant_idx"].to_numpy(), q)
-    lo = hi - q
-    k, tr, day = which[v.p_mod[j]], v.p_tranche[j], t.date[v.p_mod[j]]
-    width = np.int64(max(int(n_cum.max(initial=0)), int(hi.max(initial=0))) + 2)
-    key = n_gi * width + n_cum  # sorted: by new schedule, then units
-    start = np.searchsorted(key, k * width + lo[tr] + 1, side="left")
-    stop = np.searchsorted(key, k * width + hi[tr], side="left")  # new tranches ending inside the tranche
+    ns = new_schedules(grants, tranches, t, np.unique(v.p_mod[j]))
+    k, tr, day = ns.which[v.p_mod[j]], v.p_tranche[j], t.date[v.p_mod[j]]
+    start = np.searchsorted(ns.key, k * ns.width + ns.lo[tr] + 1, side="left")
+    stop = np.searchsorted(ns.key, k * ns.width + ns.hi[tr], side="left")  # new tranches ending inside the tranche
     count = stop - start
     pair = np.repeat(np.arange(len(j)), count)
     at = np.repeat(start, count) + np.arange(count.sum()) - np.repeat(np.cumsum(count) - count, count)
-    nxt = np.minimum(at + 1, len(n_date) - 1)
-    differs = np.maximum(n_date[at], day[pair]) != np.maximum(n_date[nxt], day[pair])
-    return tr[pair][differs].astype(np.int64), n_cum[at][differs].astype(np.int64)
+    nxt = np.minimum(at + 1, len(ns.date) - 1)
+    differs = np.maximum(ns.date[at], day[pair]) != np.maximum(ns.date[nxt], day[pair])
+    return tr[pair][differs].astype(np.int64), ns.cum[at][differs].astype(np.int64)
 
 
 def _cut(tranches: pd.DataFrame, rows: np.ndarray, ends: np.ndarray) -> pd.DataFrame:
