@@ -167,6 +167,15 @@ def _joined(pieces: list, n: int) -> np.ndarray:
     return out
 
 
+def _has_formula(texts: np.ndarray) -> bool:
+    """Whether an object array of text holds a :class:`~grantval.io.xlsx.sheet.Formula` (a str subclass
+    whose text starts with ``=``): only the values starting with ``=`` are looked at one by one."""
+    from grantval.io.xlsx.sheet import Formula
+
+    starts = pd.Series(texts, dtype=object).str.startswith("=", na=False).to_numpy(dtype=bool)
+    return any(type(v) is Formula for v in texts[starts].tolist())
+
+
 def _object_tail(values: np.ndarray) -> list:
     """Tail pieces of an object column: vectorised per kind of value, scattered back in row order."""
     inferred = pd.api.types.infer_dtype(values, skipna=True)  # one C pass; None and NaN are skipped
@@ -177,6 +186,8 @@ def _object_tail(values: np.ndarray) -> list:
                 return _tail_pieces(values, kind)
         except (TypeError, ValueError):  # for example NaT among floats
             pass
+    if inferred == "string" and not _has_formula(values):  # text, perhaps with None or NaN: as _TEXT below
+        return _tail_pieces(values, _TEXT)
     kinds = _object_kinds(values)
     present = np.unique(kinds)
     if len(present) == 1:
@@ -214,26 +225,41 @@ def _column_pieces(values: np.ndarray, letter: bytes, style: bytes, rownum: np.n
     return head + _tail_pieces(np.asarray(values, dtype=object), _TEXT)
 
 
-def rows_xml(frame: pd.DataFrame, first_row: int, styles: dict[str, bytes]) -> bytes:
-    """SpreadsheetML ``<row>`` elements for every row of ``frame``, numbered from ``first_row``."""
-    out = []
+def _block_xml(arrays: list, letters: list, styles: dict[str, bytes], start: int, stop: int,
+               first_row: int) -> bytes:
+    """SpreadsheetML ``<row>`` elements of rows ``start:stop`` of the column arrays, numbered from ``first_row``."""
+    rownum = np.arange(first_row + start, first_row + stop).astype("S10")
+    pieces: list = [b'<row r="', rownum, b'">']
+    for a, L in zip(arrays, letters):
+        pieces += _column_pieces(a[start:stop], L, styles.get(L.decode(), b""), rownum)
+    pieces.append(b"</row>")
+    buf = np.zeros((stop - start, sum(_width(p) for p in pieces)), dtype=np.uint8)
+    at = 0
+    for p in pieces:
+        at = _fill(buf, at, p)
+    flat = buf.ravel()
+    return flat[flat != 0].tobytes()
+
+
+def row_blocks(frame: pd.DataFrame, first_row: int, styles: dict[str, bytes]) -> list:
+    """Functions that each return the ``<row>`` elements of one block of :data:`CHUNK` rows of ``frame``.
+
+    The blocks are independent, so they can be generated in any order or at once
+    (numpy releases the interpreter lock in most of the work); joined in order they are
+    :func:`rows_xml`.
+    """
+    import functools
+
     cols = list(frame.columns)
     letters = [col_letter(j + 1).encode() for j in range(len(cols))]
     arrays = [frame[c].to_numpy() for c in cols]
-    for start in range(0, len(frame), CHUNK):
-        stop = min(start + CHUNK, len(frame))
-        rownum = np.arange(first_row + start, first_row + stop).astype("S10")
-        pieces: list = [b'<row r="', rownum, b'">']
-        for a, L in zip(arrays, letters):
-            pieces += _column_pieces(a[start:stop], L, styles.get(L.decode(), b""), rownum)
-        pieces.append(b"</row>")
-        buf = np.zeros((stop - start, sum(_width(p) for p in pieces)), dtype=np.uint8)
-        at = 0
-        for p in pieces:
-            at = _fill(buf, at, p)
-        flat = buf.ravel()
-        out.append(flat[flat != 0].tobytes())
-    return b"".join(out)
+    return [functools.partial(_block_xml, arrays, letters, styles, start, min(start + CHUNK, len(frame)), first_row)
+            for start in range(0, len(frame), CHUNK)]
+
+
+def rows_xml(frame: pd.DataFrame, first_row: int, styles: dict[str, bytes]) -> bytes:
+    """SpreadsheetML ``<row>`` elements for every row of ``frame``, numbered from ``first_row``."""
+    return b"".join(block() for block in row_blocks(frame, first_row, styles))
 
 
 def _is_total_row(row: pd.Series) -> bool:
@@ -241,19 +267,25 @@ def _is_total_row(row: pd.Series) -> bool:
     return any(isinstance(v, str) and v == "Total" for v in row.tolist())
 
 
-def splice(sheet_xml: bytes, frame: pd.DataFrame) -> bytes:
-    """Insert rows 3.. of ``frame`` (all but its first data row) into a sheet written by openpyxl.
+def splice_parts(sheet_xml: bytes, frame: pd.DataFrame) -> list:
+    """The pieces of a sheet written by openpyxl with rows 3.. of ``frame`` (all but its first data row) inserted.
 
-    A trailing totals row (formulas, the label ``Total``) is written apart
-    from the data rows, so each data column keeps one kind of value and is
-    written vectorised.
+    Each piece is bytes or a function returning bytes (a block of rows, :func:`row_blocks`);
+    joined in order they are the sheet's XML.  A trailing totals row (formulas, the label
+    ``Total``) is written apart from the data rows, so each data column keeps one kind of value
+    and is written vectorised.
     """
     styles = first_row_styles(sheet_xml)
     data = frame.iloc[1:]
-    body = b""
+    total: list = []
     if len(data) > 1 and _is_total_row(data.iloc[-1]):
-        body = rows_xml(data.iloc[-1:], 3 + len(data) - 1, styles)
+        total = row_blocks(data.iloc[-1:], 3 + len(data) - 1, styles)
         data = data.iloc[:-1]
-    body = rows_xml(data, 3, styles) + body
     at = sheet_xml.rindex(b"</sheetData>")
-    return sheet_xml[:at] + body + sheet_xml[at:]
+    return [sheet_xml[:at], *row_blocks(data, 3, styles), *total, sheet_xml[at:]]
+
+
+def splice(sheet_xml: bytes, frame: pd.DataFrame) -> bytes:
+    """Insert rows 3.. of ``frame`` (all but its first data row) into a sheet written by openpyxl
+    (:func:`splice_parts`, joined)."""
+    return b"".join(p if isinstance(p, bytes) else p() for p in splice_parts(sheet_xml, frame))

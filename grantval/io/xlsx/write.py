@@ -353,6 +353,7 @@ def _normalise_zip(path: pathlib.Path, stamp: _dt.datetime, big: dict | None = N
     openpyxl stamps the save time into docProps/core.xml and the zip entries;
     with this, equal content gives equal bytes.  ``big`` (sheet part -> frame) adds the long
     tables' rows; ``cached`` (sheet part -> {cell: result}) the cached results of formula cells.
+    The long tables' rows are generated and compressed block by block (:func:`_write_entries`).
     """
     import re
     import zipfile
@@ -362,19 +363,37 @@ def _normalise_zip(path: pathlib.Path, stamp: _dt.datetime, big: dict | None = N
     when = stamp.strftime("%Y-%m-%dT%H:%M:%SZ").encode()
     entries = [(info, re.sub(rb"(<dcterms:modified[^>]*>)[^<]*(</dcterms:modified>)", rb"\g<1>" + when + rb"\g<2>", data)
                 if info.filename == "docProps/core.xml" else data) for info, data in entries]
-    if big:
-        from grantval.io.xlsx.bigsheet import splice
-
-        entries = [(info, splice(data, big[info.filename]) if info.filename in big else data)
-                   for info, data in entries]
     if cached:
         from grantval.io.xlsx.cached import splice_cached
 
         entries = [(info, splice_cached(data, cached[info.filename]) if info.filename in cached else data)
                    for info, data in entries]
-    with zipfile.ZipFile(path, "w", compression=zipfile.ZIP_DEFLATED) as dst:
-        for info, data in entries:
-            fixed = zipfile.ZipInfo(info.filename, date_time=(1980, 1, 1, 0, 0, 0))
-            fixed.compress_type = zipfile.ZIP_DEFLATED
-            fixed.external_attr = info.external_attr
-            dst.writestr(fixed, data, compresslevel=1 if len(data) > 2**24 else 6)
+    if big:
+        from grantval.io.xlsx.bigsheet import splice_parts
+
+        entries = [(info, splice_parts(data, big[info.filename]) if info.filename in big else [data])
+                   for info, data in entries]
+    else:
+        entries = [(info, [data]) for info, data in entries]
+    _write_entries(path, entries)
+
+
+def _write_entries(path: pathlib.Path, entries: list) -> None:
+    """Write ``entries`` ((zip info, pieces): bytes or functions returning bytes) as the zip ``path``.
+
+    The pieces are made and deflated in order (in worker processes where that pays,
+    :mod:`grantval.io.xlsx.parallel`) and each entry's pieces joined into one
+    (:mod:`grantval.io.xlsx.zipwrite`); no long sheet is held whole in memory.
+    """
+    from grantval.io.xlsx.parallel import deflated
+    from grantval.io.xlsx.zipwrite import ZipWriter
+
+    made = deflated([p for _, pieces in entries for p in pieces])
+    try:
+        with open(path, "wb") as out:
+            writer = ZipWriter(out)
+            for info, pieces in entries:
+                writer.add(info.filename, (next(made) for _ in pieces), info.external_attr)
+            writer.close()
+    finally:
+        made.close()  # stops the worker processes
