@@ -7,7 +7,8 @@ shows it) it records the processor time of this process in each stage
 (``cpu_stages``) and in all (``cpu_seconds``): on a machine shared with other
 work, processor time varies much less than wall-clock time.  ``peak_mib_after``
 is the peak resident memory at the end of each stage, which shows the stage
-that set the peak.
+that set the peak; ``cpu_children_seconds`` the processor time of the worker
+processes (bench/bench_scale.py adds their memory).
 """
 
 from __future__ import annotations
@@ -40,6 +41,12 @@ def _count_cpu(progress) -> list:
     return cpu, peaks
 
 
+def _children_cpu() -> float:
+    """Processor time of the worker processes that have ended (grantval/workers.py), seconds."""
+    usage = resource.getrusage(resource.RUSAGE_CHILDREN)
+    return usage.ru_utime + usage.ru_stime
+
+
 def main() -> None:
     from grantval import progress
     from grantval.cli import app
@@ -56,6 +63,7 @@ def main() -> None:
         total, cpu_total = time.perf_counter() - t0, time.process_time() - c0
         print(json.dumps({"exit": code, "seconds": total, "stages": progress.reporter().timings,
                           "cpu_seconds": cpu_total, "cpu_stages": cpu, "peak_mib_after": peaks,
+                          "cpu_children_seconds": _children_cpu(),
                           "peak_mib": resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024}))
 
 

@@ -7,5 +7,7 @@
 - :mod:`grantval.io.csv` and :mod:`grantval.io.xlsx.write` write CSV files and workbooks
   (:mod:`grantval.io.xlsx.sheet` describes a sheet, :mod:`grantval.io.xlsx.bigsheet` writes
   long tables fast); :mod:`grantval.io.files` writes atomically and guards the inputs;
-- :mod:`grantval.io.convert` turns a CSV ledger into a workbook and back.
+- :mod:`grantval.io.convert` turns a CSV ledger into a workbook and back;
+- :mod:`grantval.io.handoff`: the files through which worker processes hand back large results
+  (:mod:`grantval.workers`).
 """

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import datetime as _dt
+import functools
 import math
 import pathlib
 from typing import Sequence
@@ -12,6 +13,7 @@ import pandas as pd
 
 from grantval.io.files import atomic_path
 from grantval.io.xlsx.sheet import _FORMULA_START
+from grantval.workers import ordered_map
 
 
 def csv_text(value) -> str:
@@ -274,27 +276,41 @@ def _lines(matrices: list[np.ndarray]) -> bytes:
     return flat[flat != _NUL].tobytes()
 
 
-def frame_blocks(frame: pd.DataFrame, rows: int | None = None):
-    """The columns of ``frame`` (numpy arrays, in order) in blocks of ``rows`` rows."""
+def frame_blocks(frame: pd.DataFrame, rows: int | None = None) -> list[list[np.ndarray]]:
+    """The columns of ``frame`` (numpy arrays, in order) in blocks of ``rows`` rows (views, not copies)."""
     rows = rows or BLOCK_ROWS
     arrays = [frame.iloc[:, j].to_numpy() for j in range(frame.shape[1])]
-    for at in range(0, len(frame), rows):
-        yield [a[at : at + rows] for a in arrays]
+    return [[a[at : at + rows] for a in arrays] for at in range(0, len(frame), rows)]
+
+
+def _block_lines(block, is_money: list[bool]) -> bytes:
+    """The CSV lines of one block (a list of column arrays, or a function returning one)."""
+    block = block() if callable(block) else block
+    if not (len(block) and len(block[0])):
+        return b""
+    return _lines([_field_matrix(a, m) for a, m in zip(block, is_money)])
 
 
 def write_csv_blocks(path: pathlib.Path, columns: Sequence[str], blocks, money: Sequence[str] = ()) -> None:
-    """Write a CSV file atomically from ``blocks``: lists of column arrays (in the order of
-    ``columns``), each list one block of rows, so no more than a block is held as text.
+    """Write a CSV file atomically from ``blocks``, so no more than a block is held as text.
 
-    Columns named in ``money`` are written with exactly two decimals (see :func:`write_csv`).
+    Each block is a list of column arrays (in the order of ``columns``) or a function
+    returning one.  When ``blocks`` is a sequence its blocks are encoded in worker
+    processes where that pays (:func:`grantval.workers.ordered_map`; the same bytes);
+    any other iterable is encoded here, a block at a time.  Columns named in ``money``
+    are written with exactly two decimals (see :func:`write_csv`).
     """
     header = ",".join(_csv_field(str(c)) for c in columns).encode("utf-8") + b"\n"
     is_money = [c in money for c in columns]
+    encode = functools.partial(_block_lines, is_money=is_money)
+    lines = ordered_map(encode, blocks) if isinstance(blocks, Sequence) else map(encode, blocks)
     with atomic_path(path) as tmp, open(tmp, "wb") as fh:
         fh.write(header)
-        for block in blocks:
-            if len(block) and len(block[0]):
-                fh.write(_lines([_field_matrix(a, m) for a, m in zip(block, is_money)]))
+        try:
+            for text in lines:
+                fh.write(text)
+        finally:
+            getattr(lines, "close", lambda: None)()  # stops the worker processes
 
 
 def write_csv(path: pathlib.Path, frame: pd.DataFrame, money: Sequence[str] = ()) -> None:

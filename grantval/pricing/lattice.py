@@ -47,6 +47,7 @@ from grantval.pricing._lattice_binomial import optimal_tree
 from grantval.pricing._lattice_layers import NARROW
 from grantval.pricing._lattice_tree import barrier_tree
 from grantval.pricing.bsm import _bsm
+from grantval.workers import ordered_map
 
 #: total time steps used when ``steps`` is None; with Richardson extrapolation
 #: this meets the accuracy documented in DEVELOPERS.md (see tests/pricing/test_lattice*.py).
@@ -112,7 +113,8 @@ def _lattice(s, k, t, r, sigma, q, v, mult, lam, lam_pre, steps):
         # group options of similar lattice size so that a block wastes little work
         rows = rows[np.argsort(n_post + np.sqrt(v[rows] / t[rows]) * steps, kind="stable")]
         n_post = _post_steps(t[rows], v[rows], sigma[rows], steps)
-        for start in range(0, rows.size, _BLOCK):
+
+        def block(start):
             idx = rows[start : start + _BLOCK]
             n = n_post[start : start + _BLOCK]
             args = (s[idx], k[idx], t[idx], r[idx], sigma[idx], q[idx], v[idx],
@@ -121,7 +123,13 @@ def _lattice(s, k, t, r, sigma, q, v, mult, lam, lam_pre, steps):
             # (the trinomial lattice of a barrier keeps linear pieces: its centre is moved onto the barrier)
             narrow = (v[idx] > 0) & (np.sqrt(v[idx]) < NARROW * np.sqrt((t[idx] - v[idx]) / n))
             fine, coarse = _tree(*args, n, narrow), _tree(*args, n // 2, narrow)
-            out[idx] = (2.0 * fine - coarse) * np.exp(-lam_pre[idx] * v[idx])
+            return (2.0 * fine - coarse) * np.exp(-lam_pre[idx] * v[idx])
+
+        # the blocks are independent: valued in worker processes where that pays (the same values),
+        # the largest lattices first so that the workers finish together
+        starts = range(0, rows.size, _BLOCK)[::-1]
+        for start, values in zip(starts, ordered_map(block, starts)):
+            out[rows[start : start + _BLOCK]] = values
     # the extrapolation can step outside the bounds the true value obeys
     low = np.where((v == 0) & (optimal | at_once), np.maximum(s - k, 0.0), 0.0)
     return np.clip(out, low, s)

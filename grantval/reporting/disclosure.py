@@ -310,12 +310,17 @@ def _rounded(item: str, value: float) -> float:
 
 
 def compute_disclosure(ledger: Ledger, fv: FairValues, inp: ExpenseInputs, policy: Policy, start, through,
-                       share_price: float | None = None) -> Disclosure:
-    """Option and RSU activity from ``start`` through ``through`` and the window's grant figures."""
+                       share_price: float | None = None, at_through=None) -> Disclosure:
+    """Option and RSU activity from ``start`` through ``through`` and the window's grant figures.
+
+    ``at_through`` is the measurement of ``inp`` at ``through`` under ``policy`` when one is
+    already made (an expense schedule's, :attr:`ExpenseSchedule.at_through`); otherwise it is made here.
+    """
     start = np.datetime64(start, "D")
     through = np.datetime64(through, "D")
     T = _Tranches(ledger, fv)
-    m = measure(inp, through, attribution=policy.attribution, forfeitures=policy.forfeitures)
+    m = at_through if at_through is not None else measure(inp, through, attribution=policy.attribution,
+                                                            forfeitures=policy.forfeitures)
     options, option_tie, granted, forfeited = _option_activity(T, m, start, through, share_price)
     rsus, rsu_tie, vested_q = _unit_activity(T, granted, forfeited, start, through)
     perf, psu_tie = _performance_activity(ledger, T, granted, forfeited, vested_q, start, through)

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import functools
+
 import numpy as np
 import pandas as pd
 
@@ -53,20 +55,24 @@ def _long(keys: dict[str, np.ndarray], ends, columns: dict[str, np.ndarray]) -> 
     return pd.DataFrame(data)
 
 
-def long_blocks(keys: dict[str, np.ndarray], ends, columns: dict[str, np.ndarray], rows: int):
+def _long_block(keys: dict[str, np.ndarray], ends, columns: dict[str, np.ndarray], at: int, stop: int):
+    """Key rows ``at:stop`` of the long table of :func:`_long`: its column arrays (keys, ``period_end``, columns)."""
+    p = len(ends)
+    return ([np.repeat(v[at:stop], p) for v in keys.values()] + [np.tile(ends, stop - at)]
+            + [money(v[at:stop].ravel()) for v in columns.values()])
+
+
+def long_blocks(keys: dict[str, np.ndarray], ends, columns: dict[str, np.ndarray], rows: int) -> list:
     """The long table of :func:`_long` in blocks of about ``rows`` rows (whole key rows each).
 
-    Yields lists of column arrays in the order keys, ``period_end``, columns,
-    so that a writer holds one block at a time rather than the whole table
-    (key rows x periods).
+    A list of functions, each returning one block's column arrays in the order keys,
+    ``period_end``, columns, so that a writer makes and holds one block at a time
+    rather than the whole table (key rows x periods), in any process.
     """
     n, p = next(iter(columns.values())).shape
     ends = np.asarray(ends, dtype="datetime64[D]")
     step = max(1, rows // max(p, 1))
-    for at in range(0, n, step):
-        stop = min(n, at + step)
-        yield ([np.repeat(v[at:stop], p) for v in keys.values()] + [np.tile(ends, stop - at)]
-               + [money(v[at:stop].ravel()) for v in columns.values()])
+    return [functools.partial(_long_block, keys, ends, columns, at, min(n, at + step)) for at in range(0, n, step)]
 
 
 def long_expense_blocks(inp: ExpenseInputs, sched: ExpenseSchedule, rows: int):

@@ -57,3 +57,17 @@ def test_features_across_the_arrays_take_the_whole_ledger_path(tmp_path, monkeyp
     monkeypatch.setattr(blocks, "MIN_TRANCHES", 0)
     run = api.expense(shortened(tmp_path / "m"), through="2028-12-31")
     assert not blocks.blockable(run.inputs)
+
+
+def test_blocks_in_worker_processes_give_the_same_figures(tmp_path, monkeypatch):
+    # reference: the blocks computed one after another in this process (grantval/workers.py)
+    folder = write_ledger(tmp_path / "l", random_ledger(5, n=30))
+    monkeypatch.setenv("GRANTVAL_PROCESSES", "1")
+    here = _run(folder, monkeypatch, True).schedule
+    monkeypatch.setenv("GRANTVAL_PROCESSES", "2")
+    there = _run(folder, monkeypatch, True).schedule
+    for name in ("opening_cents", "cumulative_cents", "expense_cents", "forecast_cents"):
+        assert np.array_equal(getattr(here, name), getattr(there, name)), name
+    for f in fields(Measurement):
+        x, y = getattr(here.at_through, f.name), getattr(there.at_through, f.name)
+        assert (x is None and y is None) or np.array_equal(x, y), f.name

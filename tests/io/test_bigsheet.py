@@ -98,13 +98,15 @@ def test_long_table_streamed_in_blocks_reads_back_whole(tmp_path, monkeypatch):
 def test_worker_processes_and_this_process_write_the_same_bytes(tmp_path, monkeypatch):
     """The blocks made and deflated in forked workers give the same file as made here one by one
     (two independent computations of the same workbook)."""
-    from grantval.io.xlsx import parallel
+    from grantval import workers
 
-    monkeypatch.setenv("GRANTVAL_WRITER_PROCESSES", "2")
-    assert parallel._workers([b"", lambda: b"", lambda: b""]) == 2
-    forked = _long_workbook(tmp_path / "a", monkeypatch)[0].read_bytes() if (tmp_path / "a").mkdir() is None else b""
-    monkeypatch.setenv("GRANTVAL_WRITER_PROCESSES", "1")
-    assert parallel._workers([b"", lambda: b"", lambda: b""]) == 0
-    here = _long_workbook(tmp_path / "b", monkeypatch)[0].read_bytes() if (tmp_path / "b").mkdir() is None else b""
+    monkeypatch.setenv("GRANTVAL_PROCESSES", "2")
+    assert workers.processes(3) == 2
+    (tmp_path / "a").mkdir()
+    forked = _long_workbook(tmp_path / "a", monkeypatch)[0].read_bytes()
+    monkeypatch.setenv("GRANTVAL_PROCESSES", "1")
+    assert workers.processes(3) == 0
+    (tmp_path / "b").mkdir()
+    here = _long_workbook(tmp_path / "b", monkeypatch)[0].read_bytes()
     assert forked == here and len(here) > 10_000
 

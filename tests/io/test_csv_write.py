@@ -150,6 +150,8 @@ def test_blocks_give_the_same_file(tmp_path, monkeypatch):
     assert whole == _reference(frame, money=("m",))
     monkeypatch.setattr(C, "BLOCK_ROWS", 7)
     assert _written(tmp_path, frame, money=("m",)) == whole
+    monkeypatch.setenv("GRANTVAL_PROCESSES", "2")  # the 143 blocks encoded in worker processes (grantval/workers.py)
+    assert _written(tmp_path, frame, money=("m",)) == whole
 
 
 def test_empty_frame_and_column_field(tmp_path):

@@ -69,3 +69,21 @@ def test_too_much_total_volatility_is_refused_with_the_reason():
 def test_steps_outside_the_allowed_range_are_refused(steps):
     with pytest.raises(InputError, match="steps"):
         lattice_value(50, 50, 10, 0.04, 0.3, steps=steps)
+
+
+def test_blocks_valued_in_worker_processes_give_the_same_values(monkeypatch):
+    # reference: the same lattice in this process; blocks of options are independent, so the
+    # values must agree bit for bit (grantval/workers.py)
+    from grantval.pricing import lattice as L
+
+    monkeypatch.setattr(L, "_BLOCK", 16)
+    rng = np.random.default_rng(11)
+    n = 100  # 7 blocks
+    s, k = rng.uniform(10, 100, n), rng.uniform(10, 100, n)
+    args = (s, k, rng.uniform(3, 10, n), rng.uniform(0.0, 0.05, n), rng.uniform(0.2, 0.6, n), rng.uniform(0, 0.03, n))
+    kw = dict(vesting=rng.uniform(0, 3, n), exercise_multiple=np.where(rng.random(n) < 0.7, rng.uniform(1.5, 3, n), np.nan),
+              exit_rate=rng.uniform(0, 0.1, n), steps=64)
+    monkeypatch.setenv("GRANTVAL_PROCESSES", "1")
+    here = lattice_value(*args, **kw)
+    monkeypatch.setenv("GRANTVAL_PROCESSES", "2")
+    assert np.array_equal(lattice_value(*args, **kw), here)
