@@ -74,7 +74,8 @@ def run(args: list[str]) -> dict:
     """Run one command in a fresh process; its report, with the peak memory of it and its workers.
 
     ``peak_tree_mib`` is the largest proportional set size of the run and its worker
-    processes together (sampled every 0.1 s): the memory the machine needed, with the
+    processes together (sampled every 0.5 s: reading a large process's page tables more
+    often slows it): the memory the machine needed, with the
     pages the workers share with the run counted once.
     """
     # a million grants make a grants.csv of about 70 MB, over the default input limit of 64 MiB
@@ -85,7 +86,7 @@ def run(args: list[str]) -> dict:
         peak = 0.0
         while proc.poll() is None:
             peak = max(peak, _tree_pss_mib(proc.pid))
-            time.sleep(0.1)
+            time.sleep(0.5)
         so.seek(0), se.seek(0)
         stdout, stderr = so.read(), se.read()
     result = json.loads(stdout.strip().splitlines()[-1])

@@ -127,7 +127,9 @@ def tranche_table(inp: ExpenseInputs, sched: ExpenseSchedule, tranche_no) -> pd.
     from grantval.attribution.inception import pre_grant_values
 
     pre, pre_fv = pre_grant_values(inp, sched.period_ends[-1])
-    return pd.DataFrame({
+    # the columns as they are (no copies, no merging into 2-D blocks): 13.7 million tranches take
+    # about a gigabyte less this way (the frame is not changed in place: with_kept_units copies it)
+    return pd.DataFrame(copy=False, data={
         "grant_id": inp.grant_id[inp.t_grant],
         "tranche": tranche_no,
         "vest_date": inp.t_vest,

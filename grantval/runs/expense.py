@@ -200,11 +200,12 @@ def write_expense(run: ExpenseRun, xlsx: pathlib.Path | None, csv_dir: pathlib.P
     refuse_overwriting_inputs(outputs, ledger_inputs(run.ledger))
     with stage("tables"):
         by_group, group_sums = T.wide_by_group(inp, sched.period_ends, sched.expense_cents)
-        tranches = T.with_kept_units(T.tranche_table(inp, sched, run.ledger.tranches["tranche"].to_numpy()), inp, sched)
-        unrec, unrec_total, unrec_wa = T.unrecognised_table(inp, sched)
-        # the schedule's measurement at the through date (the same figures as measuring again)
+        # the schedule's measurement at the through date (the same figures as measuring again); made before
+        # the tranche table, so that the two tables' working arrays are not held at once
         disc = compute_disclosure(run.ledger, run.fair_values, inp, run.policy, run.start, run.through, share_price,
                                   sched.at_through)
+        tranches = T.with_kept_units(T.tranche_table(inp, sched, run.ledger.tranches["tranche"].to_numpy()), inp, sched)
+        unrec, unrec_total, unrec_wa = T.unrecognised_table(inp, sched)
         by_grant, forecast = _wide_tables(run) if xlsx is not None else (None, None)
         cells = T.money(sched.expense_cents)
         figures = C.ExpenseFigures(

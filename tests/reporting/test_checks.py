@@ -188,3 +188,21 @@ def test_second_bsm_implementation_agrees_with_the_pricing_core():
     # the worked Black-Scholes example S=42, K=40, r=0.10, sigma=0.20, T=0.5: call 4.76 (example number
     # differs by edition; figure from memory).
     assert C._bsm_by_erf(np.array([42.0]), 40.0, 0.5, 0.10, 0.20, 0.0)[0] == pytest.approx(4.76, abs=0.005)
+
+
+def test_engine_total_by_blocks_of_grants_is_the_whole_ledgers(tmp_path, monkeypatch):
+    # reference: the two whole-ledger measurements; blocks of grants (a memory device) must give the
+    # same cents, and both the schedule's total (the check's other side)
+    from grantval.attribution import blocks
+    from grantval.reporting.checks import engine_total_cents
+    from tests.attribution.random_ledgers import random_ledger
+    from tests.factory import write_ledger
+
+    folder = write_ledger(tmp_path / "l", random_ledger(6, n=30))
+    run = RE.expense(folder, through="2031-03-15", start="2027-01-01")
+    whole = engine_total_cents(run.inputs, run.policy, run.start, run.through)
+    monkeypatch.setattr(blocks, "MIN_TRANCHES", 0)
+    monkeypatch.setattr(blocks, "BLOCK_TRANCHES", 7)
+    assert blocks.blockable(run.inputs)
+    by_blocks = engine_total_cents(run.inputs, run.policy, run.start, run.through)
+    assert by_blocks == whole == int(run.schedule.expense_cents.sum()) and whole != 0
