@@ -107,43 +107,42 @@ def _wavg(values, weights) -> float:
 
 
 def _option_activity(T: _Tranches, m, start, through, share_price):
-    """Option roll-forward lines, the end-balance tie, and the per-tranche flows the other tables reuse."""
+    """Option roll-forward lines, the end-balance tie, and the per-tranche flows the other tables reuse.
+
+    Each line's figures are taken as soon as its quantities are made, so that no more than a
+    few per-tranche arrays are held at once (a million grants: 13.7 million tranches each).
+    """
     before = start - DAY
     opt = T.option
-    out0, out1 = T.outstanding(before), T.outstanding(through)
-    granted = np.where((T.grant_date >= start) & (T.grant_date <= through), T.qty, 0)
-    exercised = T.moved(("exercise",), start, through)
-    forfeited = T.moved(("forfeit", "cancel"), start, through)
-    expired = T.moved(("expire",), start, through)
-    exercisable = np.where(T.vest <= through, out1, 0)
-    ratio = np.where(m.outstanding > 0, m.n_expensed / np.where(m.outstanding > 0, m.outstanding, 1), 0.0)
-    expected = np.where(T.vest <= through, out1, out1 * np.minimum(ratio, 1.0))
-
-    def term(d, q):
-        years = np.maximum((T.expiry - d).astype(np.int64), 0) / DAYS_PER_YEAR
-        return _wavg(years[opt], q[opt])
-
-    def intrinsic(q):
-        if share_price is None:
-            return float("nan")
-        return float(np.sum(q[opt] * np.maximum(share_price - T.strike[opt], 0.0)))
-
+    strike, expiry = T.strike[opt], T.expiry[opt]
     nan = float("nan")
-    lines = [
-        ("Outstanding at start", out0, term(before, out0), nan), ("Granted", granted, nan, nan),
-        ("Exercised", exercised, nan, nan), ("Forfeited or cancelled", forfeited, nan, nan),
-        ("Expired", expired, nan, nan), ("Outstanding at end", out1, term(through, out1), intrinsic(out1)),
-        ("Exercisable at end", exercisable, term(through, exercisable), intrinsic(exercisable)),
-        ("Vested and expected to vest at end", expected, term(through, expected), intrinsic(expected)),
-    ]
-    frame = pd.DataFrame({
-        "line": [x[0] for x in lines],
-        "number": [float(np.sum(x[1][opt])) for x in lines],
-        "weighted_average_exercise_price": [_wavg(T.strike[opt], x[1][opt]) for x in lines],
-        "weighted_average_remaining_term_years": [x[2] for x in lines],
-        "aggregate_intrinsic_value": [x[3] for x in lines],
-    })
-    tie = (int(np.sum((out0 + granted - exercised - forfeited - expired)[opt])), int(np.sum(out1[opt])))
+    lines, numbers = [], {}
+
+    def line(name, q, at=None, intrinsic=False):
+        qo = q[opt]
+        years = nan if at is None else _wavg(np.maximum((expiry - at).astype(np.int64), 0) / DAYS_PER_YEAR, qo)
+        value = nan if not intrinsic or share_price is None else float(np.sum(qo * np.maximum(share_price - strike, 0.0)))
+        numbers[name] = int(np.sum(qo))
+        lines.append((name, float(np.sum(qo)), _wavg(strike, qo), years, value))
+
+    line("Outstanding at start", T.outstanding(before), before)
+    granted = np.where((T.grant_date >= start) & (T.grant_date <= through), T.qty, 0)
+    line("Granted", granted)
+    line("Exercised", T.moved(("exercise",), start, through))
+    forfeited = T.moved(("forfeit", "cancel"), start, through)
+    line("Forfeited or cancelled", forfeited)
+    line("Expired", T.moved(("expire",), start, through))
+    out1 = T.outstanding(through)
+    line("Outstanding at end", out1, through, True)
+    line("Exercisable at end", np.where(T.vest <= through, out1, 0), through, True)
+    ratio = np.where(m.outstanding > 0, m.n_expensed / np.where(m.outstanding > 0, m.outstanding, 1), 0.0)
+    line("Vested and expected to vest at end", np.where(T.vest <= through, out1, out1 * np.minimum(ratio, 1.0)),
+         through, True)
+    frame = pd.DataFrame(lines, columns=["line", "number", "weighted_average_exercise_price",
+                                         "weighted_average_remaining_term_years", "aggregate_intrinsic_value"])
+    n = numbers
+    tie = (n["Outstanding at start"] + n["Granted"] - n["Exercised"] - n["Forfeited or cancelled"] - n["Expired"],
+           n["Outstanding at end"])
     return frame, tie, granted, forfeited
 
 
