@@ -43,9 +43,9 @@ def _run(index: int):
     func, items, folder = _JOB
     try:
         data = pickle.dumps(func(items[index]), protocol=pickle.HIGHEST_PROTOCOL)
-    except Exception:  # raised again in the parent, where the item is run once more
+        return True, data if len(data) <= BY_FILE else handoff.put(folder, str(index), data)
+    except Exception:  # the parent runs the item once more: its own error, or its result (a full disk here)
         return False, None
-    return True, data if len(data) <= BY_FILE else handoff.put(folder, str(index), data)
 
 
 def _result(payload):
@@ -68,21 +68,28 @@ def processes(pieces: int) -> int:
     """
     import multiprocessing
 
+    wanted = _wanted()
     if pieces < 2 or not sys.platform.startswith("linux") or threading.active_count() > 1 \
             or multiprocessing.current_process().daemon:
         return 0
+    wanted = min(wanted, pieces)
+    return wanted if wanted > 1 else 0
+
+
+def _wanted() -> int:
+    """Worker processes asked for: ``GRANTVAL_PROCESSES``, else the cores this process may use (at most 4)."""
+    if ENV in os.environ:
+        try:
+            return int(os.environ[ENV])
+        except ValueError:
+            from grantval.errors import UsageError
+
+            raise UsageError(f"{ENV} must be a whole number of worker processes; got {os.environ[ENV]!r}") from None
     try:
         cores = len(os.sched_getaffinity(0))
     except (AttributeError, OSError):
         cores = os.cpu_count() or 1
-    try:
-        wanted = int(os.environ.get(ENV, min(cores, DEFAULT_MAX)))
-    except ValueError:
-        from grantval.errors import UsageError
-
-        raise UsageError(f"{ENV} must be a whole number of worker processes; got {os.environ[ENV]!r}") from None
-    wanted = min(wanted, pieces)
-    return wanted if wanted > 1 else 0
+    return min(cores, DEFAULT_MAX)
 
 
 def ordered_map(func: Callable, items: Sequence) -> Iterator:

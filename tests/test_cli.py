@@ -212,3 +212,13 @@ def test_usage_lines_name_arguments_without_braces():
         usage = result.output.splitlines()[0]
         assert "{" not in usage, usage
     assert CliRunner().invoke(app, ["expense", "--help"]).output.startswith("Usage: root expense [OPTIONS] LEDGER")
+
+
+def test_a_bad_worker_count_is_refused_before_any_output(tmp_path, monkeypatch):
+    # GRANTVAL_PROCESSES (grantval/workers.py) is checked when the command starts: exit 2, nothing created
+    monkeypatch.setenv("GRANTVAL_PROCESSES", "two")
+    r = CliRunner().invoke(app, ["expense", str(SAMPLE), "--through", "2026-12-31", "--csv-dir", str(tmp_path / "out"),
+                                 "--no-workbook"])
+    assert r.exit_code == 2
+    assert "GRANTVAL_PROCESSES must be a whole number of worker processes; got 'two'" in r.output
+    assert not (tmp_path / "out").exists()

@@ -82,8 +82,9 @@ def test_an_error_in_a_worker_is_raised_as_in_one_process(monkeypatch):
 
 def test_a_bad_process_count_is_a_usage_error(monkeypatch):
     monkeypatch.setenv(workers.ENV, "two")
-    with pytest.raises(UsageError, match="GRANTVAL_PROCESSES must be a whole number"):
-        workers.processes(4)
+    for pieces in (4, 1):  # refused even where no worker would be used
+        with pytest.raises(UsageError, match="GRANTVAL_PROCESSES must be a whole number"):
+            workers.processes(pieces)
 
 
 def test_the_check_of_the_workers_can_fail(monkeypatch):
@@ -91,3 +92,18 @@ def test_the_check_of_the_workers_can_fail(monkeypatch):
     monkeypatch.setenv(workers.ENV, "1")
     got = list(workers.ordered_map(_pid_and_square, list(range(40))))
     assert not ({pid for pid, _ in got} - {os.getpid()})
+
+
+def test_a_result_that_cannot_be_handed_back_is_made_here(tmp_path, monkeypatch):
+    # the workers cannot write their result files (a full disk, say): the parent makes the items itself
+    from grantval.io import handoff
+
+    def full(*_):
+        raise OSError(28, "No space left on device")
+
+    monkeypatch.setenv(workers.ENV, "2")
+    monkeypatch.setattr(handoff, "put", full)
+    arrays = [np.full(300_000, float(k)) for k in range(4)]  # over BY_FILE: handed back by file
+    got = list(workers.ordered_map(lambda a: (os.getpid(), a * 2), arrays))
+    assert all(np.array_equal(g, a * 2) for (_, g), a in zip(got, arrays))
+    assert {pid for pid, _ in got} == {os.getpid()}  # every one made here
