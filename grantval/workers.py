@@ -68,7 +68,7 @@ def processes(pieces: int) -> int:
     """
     import multiprocessing
 
-    wanted = _wanted()
+    wanted = requested()
     if pieces < 2 or not sys.platform.startswith("linux") or threading.active_count() > 1 \
             or multiprocessing.current_process().daemon:
         return 0
@@ -76,7 +76,7 @@ def processes(pieces: int) -> int:
     return wanted if wanted > 1 else 0
 
 
-def _wanted() -> int:
+def requested() -> int:
     """Worker processes asked for: ``GRANTVAL_PROCESSES``, else the cores this process may use (at most 4)."""
     if ENV in os.environ:
         try:

@@ -70,6 +70,15 @@ def sub_inputs(inp: ExpenseInputs, g0: int, g1: int, t0: int, t1: int) -> Expens
         _prep=None)
 
 
+def map_blocks(inp: ExpenseInputs, func):
+    """``func(sub-inputs)`` of each block of grants of :func:`grant_blocks`, in order: the blocks are
+    independent, so they are made in worker processes where that pays (:func:`grantval.workers.ordered_map`)."""
+    from grantval.workers import ordered_map
+
+    todo = grant_blocks(np.asarray(inp.t_grant), inp.n_grants)
+    return ordered_map(lambda b: func(sub_inputs(inp, *b)), todo)
+
+
 def joined(parts: list[Measurement]) -> Measurement:
     """One measurement of the blocks' measurements, in block order (per-grant and per-tranche arrays)."""
     out = {}

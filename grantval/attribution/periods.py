@@ -135,12 +135,9 @@ def _by_blocks(inp: ExpenseInputs, start, ends, fends, kw: dict):
 
     if not blocks.blockable(inp):
         return _cumulative(inp, start, ends, fends, kw, track_periods=True)
-    from grantval.workers import ordered_map
-
-    todo = blocks.grant_blocks(np.asarray(inp.t_grant), inp.n_grants)
-    block = lambda b: _cumulative(blocks.sub_inputs(inp, *b), start, ends, fends, kw)  # noqa: E731
-    # the blocks are independent: made in worker processes where that pays (the same figures)
-    parts = list(track(ordered_map(block, todo), len(todo), "grants"))
+    n_blocks = len(blocks.grant_blocks(np.asarray(inp.t_grant), inp.n_grants))
+    parts = list(track(blocks.map_blocks(inp, lambda sub: _cumulative(sub, start, ends, fends, kw)), n_blocks,
+                       "grants"))
     opening, cum, fcum, at = zip(*parts)
     return np.concatenate(opening), np.vstack(cum), np.vstack(fcum), blocks.joined(list(at))
 

@@ -74,7 +74,7 @@ class _Commands(TyperGroup):
         try:
             from grantval import workers
 
-            workers.processes(0)  # a bad GRANTVAL_PROCESSES is refused before any work or output
+            workers.requested()  # a bad GRANTVAL_PROCESSES is refused before any work or output
             return super().invoke(ctx)
         except GrantvalError as err:
             typer.echo(f"error: {message(err)}", err=True)

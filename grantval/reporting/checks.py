@@ -154,13 +154,11 @@ def engine_total_cents(inp, policy, start, through) -> int:
     less memory: a million grants' whole-ledger arrays take 2.7 GB more).
     """
     from grantval.attribution import blocks
-    from grantval.workers import ordered_map
 
     kw = dict(attribution=policy.attribution, forfeitures=policy.forfeitures)
     if not blocks.blockable(inp):
         return _window_cents(inp, kw, start, through)
-    todo = blocks.grant_blocks(np.asarray(inp.t_grant), inp.n_grants)
-    return sum(ordered_map(lambda b: _window_cents(blocks.sub_inputs(inp, *b), kw, start, through), todo))
+    return sum(blocks.map_blocks(inp, lambda sub: _window_cents(sub, kw, start, through)))
 
 
 def _schedule_checks(run, fig: ExpenseFigures, n_periods: int) -> list[CheckRow]:

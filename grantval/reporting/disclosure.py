@@ -122,8 +122,8 @@ def _option_activity(T: _Tranches, m, start, through, share_price):
         qo = q[opt]
         years = nan if at is None else _wavg(np.maximum((expiry - at).astype(np.int64), 0) / DAYS_PER_YEAR, qo)
         value = nan if not intrinsic or share_price is None else float(np.sum(qo * np.maximum(share_price - strike, 0.0)))
-        numbers[name] = int(np.sum(qo))
-        lines.append((name, float(np.sum(qo)), _wavg(strike, qo), years, value))
+        numbers[name] = total = np.sum(qo)
+        lines.append((name, float(total), _wavg(strike, qo), years, value))
 
     line("Outstanding at start", T.outstanding(before), before)
     granted = np.where((T.grant_date >= start) & (T.grant_date <= through), T.qty, 0)
@@ -141,8 +141,8 @@ def _option_activity(T: _Tranches, m, start, through, share_price):
     frame = pd.DataFrame(lines, columns=["line", "number", "weighted_average_exercise_price",
                                          "weighted_average_remaining_term_years", "aggregate_intrinsic_value"])
     n = numbers
-    tie = (n["Outstanding at start"] + n["Granted"] - n["Exercised"] - n["Forfeited or cancelled"] - n["Expired"],
-           n["Outstanding at end"])
+    tie = (int(n["Outstanding at start"] + n["Granted"] - n["Exercised"] - n["Forfeited or cancelled"] - n["Expired"]),
+           int(n["Outstanding at end"]))
     return frame, tie, granted, forfeited
 
 

@@ -12,6 +12,7 @@ values as formulas.
 from __future__ import annotations
 
 import datetime as _dt
+import functools
 import re
 
 import numpy as np
@@ -244,12 +245,9 @@ def _block_xml(arrays: list, letters: list, styles: dict[str, bytes], start: int
 def row_blocks(frame: pd.DataFrame, first_row: int, styles: dict[str, bytes]) -> list:
     """Functions that each return the ``<row>`` elements of one block of :data:`CHUNK` rows of ``frame``.
 
-    The blocks are independent, so they can be generated in any order or at once
-    (numpy releases the interpreter lock in most of the work); joined in order they are
-    :func:`rows_xml`.
+    The blocks are independent, so they can be made in any order or in other processes
+    (:mod:`grantval.io.xlsx.parallel`); joined in order they are :func:`rows_xml`.
     """
-    import functools
-
     cols = list(frame.columns)
     letters = [col_letter(j + 1).encode() for j in range(len(cols))]
     arrays = [frame[c].to_numpy() for c in cols]
