@@ -7,10 +7,11 @@ import io
 import pathlib
 
 import numpy as np
+import pandas as pd
 
 from grantval.errors import Problem
 from grantval.io import limits
-from grantval.io.tables import RawTable, _table_from_rows
+from grantval.io.tables import ColumnRows, RawTable, _header_problems, _is_blank, _table_from_rows, normalise_header
 
 
 def _refused(name: str, source: str, row: int | None, message: str) -> RawTable:
@@ -86,6 +87,67 @@ def _stray_quote(spans, table: RawTable, known: frozenset) -> tuple[int, int] | 
     return None
 
 
+def _line_starts(data: bytes) -> tuple[np.ndarray, np.ndarray]:
+    """The bytes of ``data`` as an array, and the offset of the first byte of each line."""
+    arr = np.frombuffer(data, dtype=np.uint8)
+    starts = np.concatenate(([0], np.flatnonzero(arr == 10) + 1))
+    return arr, starts[starts < len(arr)] if len(arr) else starts[:0]
+
+
+def _blank_lines(data: bytes, arr: np.ndarray, starts: np.ndarray) -> np.ndarray:
+    """Which lines are blank (nothing but commas and white space), as the record-by-record reader decides.
+
+    A line holding no printable ASCII byte but the comma is a candidate; each
+    candidate (rare: blank lines, or lines of control or non-ASCII characters)
+    is then decided on its text.
+    """
+    printable = (arr > 32) & (arr < 128) & (arr != 44)
+    candidates = np.flatnonzero(~np.logical_or.reduceat(printable, starts))
+    blank = np.zeros(len(starts), dtype=bool)
+    ends = np.append(starts[1:], len(arr))
+    for i in candidates:
+        blank[i] = not data[starts[i]:ends[i]].decode("utf-8").replace(",", "").strip()
+    return blank
+
+
+def _plain_table(name: str, source: str, data: bytes, known: frozenset) -> RawTable | None:
+    """The table read column by column when the file is plain, else None (read it record by record).
+
+    Plain: UTF-8 (a byte-order mark is passed over), no quote character, no line break
+    but ``\\n`` or ``\\r\\n``, the header (with a known column name, its
+    last cell not blank) on line 1, every non-blank line with as many cells as
+    the header, no line with more, and no more data rows than the limit.  For
+    such a file a record is a line and a cell is the text between commas, so
+    pandas' C parser splits it into the cells, row numbers and problems that
+    :func:`~grantval.io.tables._table_from_rows` makes from the records.  (The
+    caller has decoded the file and checked that no line is longer than the
+    longest cell allowed.)
+    """
+    if data.startswith(b"\xef\xbb\xbf"):
+        data = data[3:]
+    if b'"' in data or data.count(b"\r") != data.count(b"\r\n"):
+        return None
+    arr, starts = _line_starts(data)
+    if not len(starts):
+        return None
+    header = data[: (data.find(b"\n") + 1 or len(data) + 1) - 1].decode("utf-8").rstrip("\r").split(",")
+    names = [normalise_header(h) for h in header]
+    if not "".join(header).strip() or _is_blank(header[-1]) or (known and not known & set(names)):
+        return None
+    blank = _blank_lines(data, arr, starts)
+    commas = np.add.reduceat(arr == 44, starts, dtype=np.int64)
+    keep = np.flatnonzero(~blank)[1:]
+    if (commas[~blank] != len(header) - 1).any() or (commas > len(header) - 1).any() or len(keep) > limits.max_rows():
+        return None
+    frame = pd.read_csv(io.BytesIO(data), header=None, dtype=object, na_filter=False, quoting=csv.QUOTE_NONE,
+                        skip_blank_lines=False, encoding="utf-8", engine="c")
+    if frame.shape != (len(starts), len(header)):  # pragma: no cover - the checks above make one row per line
+        return None
+    columns = [frame[j].to_numpy(dtype=object)[keep] for j in frame.columns]
+    return RawTable(name, source, names, [h.strip() for h in header], ColumnRows(columns), (keep + 1).tolist(),
+                    _header_problems(source, 1, header, names), by_column=columns)
+
+
 def read_csv_table(path: pathlib.Path, name: str, known: frozenset = frozenset()) -> RawTable:
     """Read one CSV file (UTF-8, with or without byte-order mark, comma-delimited).
 
@@ -104,9 +166,13 @@ def read_csv_table(path: pathlib.Path, name: str, known: frozenset = frozenset()
     text = _decode(data, name, source)
     if isinstance(text, RawTable):
         return text
+    long_lines = _longest_line(data) > limits.MAX_CELL_CHARS
+    plain = None if long_lines else _plain_table(name, source, data, known)
+    if plain is not None:
+        return _semicolon_hint(plain)
     csv.field_size_limit(max(csv.field_size_limit(), len(data) + 1))  # no field is longer than its file
     records = _Records(text)
-    table = _table_from_rows(name, source, records, known, check_long=_longest_line(data) > limits.MAX_CELL_CHARS)
+    table = _table_from_rows(name, source, records, known, check_long=long_lines)
     if records.error is not None:
         return _refused(name, source, records.error[0], f"the file cannot be read as CSV ({records.error[1]})")
     stray = _stray_quote(records.spans, table, known) if records.spans else None
@@ -114,8 +180,13 @@ def read_csv_table(path: pathlib.Path, name: str, known: frozenset = frozenset()
         return _refused(name, source, stray[0],
                         f"a quoted field opens on this line and runs to line {stray[1]}: a quote (\") is unbalanced; "
                         "remove the stray quote or close it on the same line (no ledger cell may hold a line break)")
+    return _semicolon_hint(table)
+
+
+def _semicolon_hint(table: RawTable) -> RawTable:
+    """``table``, with a problem added when its one header cell suggests a semicolon-separated file."""
     if table.headers and len(table.headers) == 1 and ";" in table.original_headers[0]:
         table.problems.append(Problem(
-            source, 1, None, "the file seems to use ';' as its delimiter; grantval reads comma-separated files",
+            table.source, 1, None, "the file seems to use ';' as its delimiter; grantval reads comma-separated files",
         ))
     return table

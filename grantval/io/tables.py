@@ -41,13 +41,37 @@ class RawTable:
     #: True when the table could not be read at all (undecodable file, no header, ...): the
     #: ledger reader stops after reading, since nothing checked after it would be meaningful
     fatal: bool = False
+    #: the cells held column by column (one object array per header; the CSV reader's fast
+    #: path), ``cells`` then being a view of them row by row
+    by_column: list | None = None
 
-    def column(self, name: str) -> list:
+    def column(self, name: str):
         """Cells of one column (by normalised name), or an empty-cell list when absent."""
         if name not in self.headers:
             return [None] * len(self.rows)
         i = self.headers.index(name)
+        if self.by_column is not None:
+            return self.by_column[i]
         return [r[i] for r in self.cells]
+
+
+class ColumnRows:
+    """The rows of a table held column by column, as a read-only sequence of lists of cells."""
+
+    def __init__(self, columns: list):
+        self.columns = columns
+
+    def __len__(self) -> int:
+        return len(self.columns[0]) if self.columns else 0
+
+    def __getitem__(self, i: int) -> list:
+        return [c[i] for c in self.columns]
+
+    def __iter__(self):
+        return (list(r) for r in zip(*self.columns))
+
+    def __eq__(self, other) -> bool:
+        return list(self) == list(other)
 
 
 @dataclass

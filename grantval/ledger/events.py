@@ -61,23 +61,26 @@ def apply_events(grants: pd.DataFrame, tranches: pd.DataFrame, events: pd.DataFr
         return _frame(out), problems
     t_grant = tranches["grant_idx"].to_numpy()
     g = _GrantFacts(grants, t_grant)
-    vest = tranches["vest_date"].to_numpy("datetime64[D]")
-    remaining = tranches["quantity"].to_numpy(np.int64).copy()
+    # plain Python numbers: each event touches a handful of tranches, where numpy's per-call cost dominates
+    vest = tranches["vest_date"].to_numpy("datetime64[D]").view(np.int64).tolist()
+    remaining = tranches["quantity"].to_numpy(np.int64).tolist()
     dates = events["event_date"].to_numpy("datetime64[D]")
     kinds = events["event_type"].to_numpy()
     qtys = events["quantity"].to_numpy(float)
     rows = events["_row"].to_numpy()
     # rows added by a ledger extension (a modification's reduction in quantity) name their own table
     sources = events["_source"].to_numpy() if "_source" in events else np.full(len(events), source, dtype=object)
-    for e in np.lexsort((np.arange(len(events)), dates, grant_pos)):
-        gp, kind, d = grant_pos[e], kinds[e], dates[e]
+    for e in np.lexsort((np.arange(len(events)), dates, grant_pos)).tolist():
+        gp, kind, d = int(grant_pos[e]), kinds[e], dates[e]
         if gp < 0 or kind not in KINDS or np.isnat(d):
             continue  # unknown grants are reported elsewhere; extension events are handled by their feature
         problem = _event_problem(g, gp, kind, d)
         if problem is None:
-            idx = np.arange(g.t_start[gp], g.t_end[gp])
-            pool = _pool(kind, idx, vest[idx] <= d, g.exercisable[gp])
-            problem = _allocate(out, remaining, pool, e, d, kind, qtys[e], g.ids[gp], vest[idx] <= d, idx)
+            idx = range(g.t_start[gp], g.t_end[gp])
+            day = int(d.view(np.int64))
+            vested = [vest[t] <= day for t in idx]
+            pool = _pool(kind, idx, vested, g.exercisable[gp])
+            problem = _allocate(out, remaining, pool, e, d, kind, qtys[e], g.ids[gp], vested, idx)
         if problem is not None:
             problems.append(Problem(sources[e], rows[e], *problem))
     return _frame(out), problems
@@ -88,8 +91,8 @@ class _GrantFacts:
 
     def __init__(self, grants: pd.DataFrame, t_grant: np.ndarray):
         n = np.arange(len(grants))
-        self.t_start = np.searchsorted(t_grant, n, side="left")
-        self.t_end = np.searchsorted(t_grant, n, side="right")
+        self.t_start = np.searchsorted(t_grant, n, side="left").tolist()
+        self.t_end = np.searchsorted(t_grant, n, side="right").tolist()
         self.award = grants["award_type"].to_numpy()
         self.exercisable = flag(self.award, "exercisable")
         self.gdate = grants["grant_date"].to_numpy("datetime64[D]")
@@ -111,14 +114,15 @@ def _event_problem(g: _GrantFacts, gp: int, kind: str, d) -> tuple[str, str] | N
     return None
 
 
-def _pool(kind: str, idx: np.ndarray, vested: np.ndarray, exercisable: bool) -> np.ndarray:
+def _pool(kind: str, idx: range, vested: list[bool], exercisable: bool) -> list[int]:
     """Tranches an event draws on, in the order it takes from them."""
+    unvested = [t for t, v in zip(idx, vested) if not v]
     if kind == "forfeit":
-        return idx[~vested][::-1]
+        return unvested[::-1]
     if kind == "cancel":
         # vested units are settled, so only unvested units can be cancelled
-        return idx[~vested][::-1] if not exercisable else idx[::-1]
-    return idx[vested]
+        return unvested[::-1] if not exercisable else list(idx)[::-1]
+    return [t for t, v in zip(idx, vested) if v]
 
 
 def _shortfall(kind: str, qty: int, avail: int, gid, d, vested_left: int) -> str:
@@ -131,9 +135,9 @@ def _shortfall(kind: str, qty: int, avail: int, gid, d, vested_left: int) -> str
     }[kind]
 
 
-def _allocate(out: list, remaining: np.ndarray, pool, e, d, kind, given_qty, gid, vested, idx):
+def _allocate(out: list, remaining: list[int], pool: list[int], e, d, kind, given_qty, gid, vested, idx):
     """Take the event's quantity from ``pool`` (appending allocations to ``out``); (column, message) on a problem."""
-    avail = int(remaining[pool].sum())
+    avail = sum(remaining[t] for t in pool)
     if np.isnan(given_qty):
         if kind == "exercise":
             return "quantity", "is required for an exercise"
@@ -143,12 +147,12 @@ def _allocate(out: list, remaining: np.ndarray, pool, e, d, kind, given_qty, gid
     if qty <= 0 and not (np.isnan(given_qty) and avail == 0):
         return "quantity", f"must be a positive whole number; got {qty}"
     if qty > avail:
-        return "quantity", _shortfall(kind, qty, avail, gid, d, int(remaining[idx][vested].sum()))
+        return "quantity", _shortfall(kind, qty, avail, gid, d, sum(remaining[t] for t, v in zip(idx, vested) if v))
     left = qty
     for t in pool:
         if left == 0:
             break
-        take = min(left, int(remaining[t]))
+        take = min(left, remaining[t])
         if take:
             remaining[t] -= take
             left -= take

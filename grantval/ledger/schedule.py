@@ -5,7 +5,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-from grantval.dates import add_months
+from grantval.dates import from_month_and_day, month_and_day
 
 
 def generate_tranches(grants: pd.DataFrame) -> pd.DataFrame:
@@ -56,8 +56,9 @@ def _block_tranches(q, months, every, cliff, start, first_grant: int) -> tuple:
     qq = q[gidx]
     qty = (qq * k) // nn - (qq * (k - 1)) // nn
     offset = np.where(months[gidx] == 0, 0, every[gidx] * k)
-    vest = add_months(start[gidx], offset)
-    cliff_date = add_months(start, cliff)[gidx]
+    month, day = month_and_day(start)  # once per grant; each tranche's date is then gathered
+    vest = from_month_and_day(month[gidx] + offset, day[gidx])
+    cliff_date = from_month_and_day(month + cliff, day)[gidx]
     vest = np.maximum(vest, cliff_date)
     g, tranche, d, total = _merged_runs(gidx, vest, qty)
     return g + first_grant, tranche, d, total
