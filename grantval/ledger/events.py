@@ -136,7 +136,12 @@ def _shortfall(kind: str, qty: int, avail: int, gid, d, vested_left: int) -> str
 
 
 def _allocate(out: list, remaining: list[int], pool: list[int], e, d, kind, given_qty, gid, vested, idx):
-    """Take the event's quantity from ``pool`` (appending allocations to ``out``); (column, message) on a problem."""
+    """Take the event's quantity from ``pool`` (appending allocations to ``out``); (column, message) on a problem.
+
+    Each allocation is appended as whole numbers: (tranche, event, day number, position of the kind in
+    :data:`KINDS`, quantity).
+    """
+    day = int(d.view(np.int64))
     avail = sum(remaining[t] for t in pool)
     if np.isnan(given_qty):
         if kind == "exercise":
@@ -156,16 +161,17 @@ def _allocate(out: list, remaining: list[int], pool: list[int], e, d, kind, give
         if take:
             remaining[t] -= take
             left -= take
-            out.append((t, e, d, kind, take))
+            out.append((t, e, day, KINDS.index(kind), take))
     return None
 
 
 def _frame(out: list[tuple]) -> pd.DataFrame:
-    t, e, d, k, q = (list(c) for c in zip(*out)) if out else ([], [], [], [], [])
+    """The allocations (tuples of whole numbers, see :func:`_allocate`) as the changes table."""
+    a = np.array(out, dtype=np.int64).reshape(-1, 5)
     return pd.DataFrame({
-        "tranche_idx": np.asarray(t, dtype=np.int64),
-        "event_idx": np.asarray(e, dtype=np.int64),
-        "date": np.asarray(d, dtype="datetime64[D]"),
-        "kind": pd.array(k, dtype="object"),
-        "quantity": np.asarray(q, dtype=np.int64),
-    })
+        "tranche_idx": a[:, 0].copy(),
+        "event_idx": a[:, 1].copy(),
+        "date": a[:, 2].view("datetime64[D]"),
+        "kind": pd.array(np.array(KINDS, dtype=object)[a[:, 3]], dtype="object"),
+        "quantity": a[:, 4].copy(),
+    }, copy=False)

@@ -224,7 +224,7 @@ def parse_table(table: RawTable, columns: tuple[Column, ...]) -> tuple[pd.DataFr
             for r, c in zip(rows[where], codes[where]):
                 problems.append(Problem(src, int(r), col.name, errors[c]))
         data[col.name] = _spread(col, typed, codes, blank, present)
-    frame = pd.DataFrame(data)
+    frame = pd.DataFrame(data, copy=False)  # the columns are made here: no need to copy them into blocks
     frame.attrs["source"] = src
     frame.attrs["present"] = [c.name for c in columns if c.name in table.headers]
     return frame, problems

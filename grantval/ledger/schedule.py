@@ -39,7 +39,8 @@ def generate_tranches(grants: pd.DataFrame) -> pd.DataFrame:
     parts = [_block_tranches(*(c[at : at + GRANTS_PER_BLOCK] for c in cols), at)
              for at in range(0, max(len(grants), 1), GRANTS_PER_BLOCK)]
     g, tranche, vest, qty = (np.concatenate(p) for p in zip(*parts))
-    return pd.DataFrame({"grant_idx": g, "tranche": tranche, "vest_date": vest, "quantity": qty})
+    # copy=False: the arrays are this function's own; without it pandas copies them into one block
+    return pd.DataFrame({"grant_idx": g, "tranche": tranche, "vest_date": vest, "quantity": qty}, copy=False)
 
 
 #: grants whose tranches are generated together (up to 48 tranches each before merging)

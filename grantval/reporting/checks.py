@@ -104,9 +104,15 @@ def _bsm_by_erf(s, k, t, r, v, q) -> np.ndarray:
     return s * np.exp(-q * t) * cdf(d1) - k * np.exp(-r * t) * cdf(d2)
 
 
-def _cents(values) -> int:
-    """Sum of currency amounts as written (floats of whole cents), in cents."""
-    return int(np.round(np.asarray(values, dtype=float) * 100.0).astype(np.int64).sum())
+def _cents(values, chunk: int = 1 << 20) -> int:
+    """Sum of currency amounts as written (floats of whole cents), in cents.
+
+    Each amount is rounded to its cents and the whole cents added, about a million amounts
+    at a time (the same integer; the temporaries of a million grants' 40 periods would
+    otherwise take a gigabyte).
+    """
+    flat = np.asarray(values, dtype=float).reshape(-1)
+    return sum(int(np.round(flat[at:at + chunk] * 100.0).astype(np.int64).sum()) for at in range(0, flat.size, chunk))
 
 
 @dataclass

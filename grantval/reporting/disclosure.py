@@ -49,7 +49,12 @@ def _vest_in_force(ledger: Ledger) -> np.ndarray:
 
 
 class _Tranches:
-    """Per-tranche arrays with event quantities by kind up to a date."""
+    """Per-tranche arrays with event quantities by kind up to a date.
+
+    Facts of the grant (grant date, expiration date, exercise price) are kept per grant and
+    gathered per tranche where a figure needs them (a million grants have 13.7 million
+    tranches: each per-tranche copy would take 110 MB).
+    """
 
     def __init__(self, ledger: Ledger, fv: FairValues):
         g, tr, ch = ledger.grants, ledger.tranches, ledger.changes
@@ -60,9 +65,9 @@ class _Tranches:
         self.units = in_group(g["award_type"].to_numpy(), "units")[gi]  # RSUs (not purchase plans or cash)
         self.qty = tr["quantity"].to_numpy(np.int64)
         self.vest = _vest_in_force(ledger)  # accelerations and new schedules (they only move unvested tranches)
-        self.grant_date = g["grant_date"].to_numpy("datetime64[D]")[gi]
-        self.expiry = g["expiration_date"].to_numpy("datetime64[D]")[gi]
-        self.strike = g["exercise_price"].to_numpy(float)[gi]
+        self.grant_date_g = g["grant_date"].to_numpy("datetime64[D]")
+        self.expiry_g = g["expiration_date"].to_numpy("datetime64[D]")
+        self.strike_g = g["exercise_price"].to_numpy(float)
         self.fv = np.asarray(fv.tranche_value, dtype=float)
         self.c_t = ch["tranche_idx"].to_numpy(np.int64)
         self.c_date = ch["date"].to_numpy("datetime64[D]")
@@ -71,16 +76,32 @@ class _Tranches:
         self.c_event = ch["event_idx"].to_numpy(np.int64)
         n = len(self.qty)
         # implicit expiry: what is left of an option after all its events lapses at expiration
-        used = np.bincount(self.c_t, weights=self.c_qty, minlength=n).astype(np.int64)
-        self.lapse_qty = np.where(self.option, self.qty - used, 0)
+        self.lapse_qty = self.qty - np.bincount(self.c_t, weights=self.c_qty, minlength=n).astype(np.int64)
+        self.lapse_qty[~self.option] = 0
+
+    def granted_by(self, d) -> np.ndarray:
+        """Per tranche: whether its grant date is on or before ``d``."""
+        return (self.grant_date_g <= d)[self.gi]
+
+    def granted_in(self, lo, hi) -> np.ndarray:
+        """Per tranche: whether its grant date is in [lo, hi]."""
+        return ((self.grant_date_g >= lo) & (self.grant_date_g <= hi))[self.gi]
+
+    def strike(self, rows) -> np.ndarray:
+        """Exercise price of the tranches ``rows`` (a mask or positions)."""
+        return self.strike_g[self.gi[rows]]
+
+    def expiry(self, rows) -> np.ndarray:
+        """Expiration date of the tranches ``rows`` (a mask or positions)."""
+        return self.expiry_g[self.gi[rows]]
 
     def moved(self, kinds: tuple[str, ...], lo, hi) -> np.ndarray:
         """Quantity per tranche removed by events of ``kinds`` dated in [lo, hi]."""
         m = np.isin(self.c_kind, kinds) & (self.c_date >= lo) & (self.c_date <= hi)
         out = np.bincount(self.c_t[m], weights=self.c_qty[m], minlength=len(self.qty))
         if "expire" in kinds:
-            lapse = self.option & (self.expiry >= lo) & (self.expiry <= hi)
-            out = out + np.where(lapse, self.lapse_qty, 0)
+            lapse = self.option & ((self.expiry_g >= lo) & (self.expiry_g <= hi))[self.gi]
+            out[lapse] += self.lapse_qty[lapse]
         return out.astype(np.int64)
 
     def removed_before_vest(self) -> np.ndarray:
@@ -91,13 +112,13 @@ class _Tranches:
     def nonvested(self, d) -> np.ndarray:
         """Quantity per tranche granted, not yet vested and not forfeited or cancelled at the end of ``d``."""
         removed = self.moved(("forfeit", "cancel"), np.datetime64("1900-01-01"), d)
-        return np.where((self.grant_date <= d) & (self.vest > d), self.qty - removed, 0)
+        return np.where(self.granted_by(d) & (self.vest > d), self.qty - removed, 0)
 
     def outstanding(self, d) -> np.ndarray:
         """Quantity per tranche outstanding at the end of ``d``."""
         early = np.datetime64("1900-01-01")
         removed = self.moved(("forfeit", "cancel", "exercise", "expire"), early, d)
-        return np.where(self.grant_date <= d, self.qty - removed, 0)
+        return np.where(self.granted_by(d), self.qty - removed, 0)
 
 
 def _wavg(values, weights) -> float:
@@ -114,7 +135,7 @@ def _option_activity(T: _Tranches, m, start, through, share_price):
     """
     before = start - DAY
     opt = T.option
-    strike, expiry = T.strike[opt], T.expiry[opt]
+    strike, expiry = T.strike(opt), T.expiry(opt)
     nan = float("nan")
     lines, numbers = [], {}
 
@@ -126,7 +147,7 @@ def _option_activity(T: _Tranches, m, start, through, share_price):
         lines.append((name, float(total), _wavg(strike, qo), years, value))
 
     line("Outstanding at start", T.outstanding(before), before)
-    granted = np.where((T.grant_date >= start) & (T.grant_date <= through), T.qty, 0)
+    granted = np.where(T.granted_in(start, through), T.qty, 0)
     line("Granted", granted)
     line("Exercised", T.moved(("exercise",), start, through))
     forfeited = T.moved(("forfeit", "cancel"), start, through)
@@ -151,7 +172,7 @@ def _unit_activity(T: _Tranches, granted, forfeited, start, through):
     units = T.units
 
     nv0, nv1 = T.nonvested(start - DAY), T.nonvested(through)
-    vest_in = (T.vest >= start) & (T.vest <= through) & (T.grant_date <= through)
+    vest_in = (T.vest >= start) & (T.vest <= through) & T.granted_by(through)
     vested_q = np.where(vest_in, T.qty - T.removed_before_vest(), 0)
     lines = [("Nonvested at start", nv0), ("Granted", granted), ("Vested", vested_q),
              ("Forfeited", forfeited), ("Nonvested at end", nv1)]
@@ -272,7 +293,7 @@ def _window_figures(ledger: Ledger, T: _Tranches, inp: ExpenseInputs, m, vested_
     ev = ledger.events
     ex = (T.c_kind == "exercise") & (T.c_date >= start) & (T.c_date <= through)
     ev_price = ev["share_price"].to_numpy(float)[T.c_event[ex]] if len(ev) else np.zeros(0)
-    gain = (ev_price - T.strike[T.c_t[ex]]) * T.c_qty[ex]
+    gain = (ev_price - T.strike(T.c_t[ex])) * T.c_qty[ex]
     vest_value = vested_q * T.fv
     from grantval.attribution.periods import to_cents
 
