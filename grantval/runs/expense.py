@@ -214,6 +214,7 @@ def write_expense(run: ExpenseRun, xlsx: pathlib.Path | None, csv_dir: pathlib.P
             engine_total_cents=C.engine_total_cents(inp, run.policy, run.start, run.through),
             table_rows=len(by_grant) if by_grant is not None else cells.shape[0])
         checks = C.expense_checks(run, figures, tranches, unrec, disc, recomputed_column(run.fair_values.table))
+        del cells, figures  # the written cells as currency (a million grants: 320 MB) are not needed for writing
         checks += LT.liability_checks(run, lf) if lf is not None else []
         tax_sheets, tax_checks = TX.tax_sheets(inp, tax) if tax is not None else ([], [])
         espp_sheets, espp_checks = _espp_parts(run)
