@@ -525,13 +525,18 @@ def read_manifest(folder: pathlib.Path) -> dict | None:
     return data
 
 
+#: the signals held back by the commit in progress (the kill tests' pause ends when one arrives)
+_HELD: list[int] = []
+
+
 @contextlib.contextmanager
 def _signals_held() -> Iterator[None]:
     """Hold SIGINT and SIGTERM back during a commit; deliver them (to the usual handler) after it."""
     if threading.current_thread() is not threading.main_thread():
         yield
         return
-    pending: list[int] = []
+    pending = _HELD
+    pending.clear()
     saved = {}
     for sig in (signal.SIGINT, signal.SIGTERM):
         old = signal.getsignal(sig)
@@ -544,7 +549,9 @@ def _signals_held() -> Iterator[None]:
     finally:
         for sig, old in saved.items():
             signal.signal(sig, old)
-        for sig in pending:
+        held = list(pending)
+        pending.clear()
+        for sig in held:
             signal.raise_signal(sig)
 
 
@@ -556,7 +563,11 @@ def _pause(point: str) -> None:
     if note:  # written aside and renamed, so that a watcher never reads it half written
         pathlib.Path(note + ".tmp").write_text(point)
         os.replace(note + ".tmp", note)
-    time.sleep(float(os.environ.get("GRANTVAL_TEST_PAUSE_SECONDS", "30")))
+    # until the time is up, or a signal held back by the commit has arrived: the test then sees the commit
+    # finish after the signal however slowly it was sent (a signal not held back interrupts the sleep)
+    deadline = time.monotonic() + float(os.environ.get("GRANTVAL_TEST_PAUSE_SECONDS", "30"))
+    while time.monotonic() < deadline and not _HELD:
+        time.sleep(0.01)
 
 
 # ---------------------------------------------------------------------------- tidying and checking
