@@ -56,8 +56,9 @@ def from_month_and_day(count, day) -> np.ndarray:
     low, high = int(count.min()), int(count.max())
     if high - low > 4 * count.size + 1200:  # a few dates far apart: convert each one
         month = count.astype("datetime64[M]")
-        first, length = month.astype("datetime64[D]"), (month + 1).astype("datetime64[D]") - month.astype("datetime64[D]")
-        out = first + (np.minimum(day, length.astype(np.int64)) - 1).astype("timedelta64[D]")
+        first = month.astype("datetime64[D]")
+        length = ((month + 1).astype("datetime64[D]") - first).astype(np.int64)
+        out = first + (np.minimum(day, length) - 1).astype("timedelta64[D]")
         return np.where(day == 0, np.datetime64("NaT", "D"), out)
     firsts = np.arange(low, high + 2).astype("datetime64[M]").astype("datetime64[D]").view(np.int64)
     at = count - low

@@ -130,7 +130,8 @@ def _plain_table(name: str, source: str, data: bytes, known: frozenset) -> RawTa
     arr, starts = _line_starts(data)
     if not len(starts):
         return None
-    header = data[: (data.find(b"\n") + 1 or len(data) + 1) - 1].decode("utf-8").rstrip("\r").split(",")
+    first_break = data.find(b"\n")
+    header = data[: first_break if first_break >= 0 else len(data)].decode("utf-8").rstrip("\r").split(",")
     names = [normalise_header(h) for h in header]
     if not "".join(header).strip() or _is_blank(header[-1]) or (known and not known & set(names)):
         return None

@@ -80,7 +80,7 @@ def apply_events(grants: pd.DataFrame, tranches: pd.DataFrame, events: pd.DataFr
             day = int(d.view(np.int64))
             vested = [vest[t] <= day for t in idx]
             pool = _pool(kind, idx, vested, g.exercisable[gp])
-            problem = _allocate(out, remaining, pool, e, d, kind, qtys[e], g.ids[gp], vested, idx)
+            problem = _allocate(out, remaining, pool, e, d, day, kind, qtys[e], g.ids[gp], vested, idx)
         if problem is not None:
             problems.append(Problem(sources[e], rows[e], *problem))
     return _frame(out), problems
@@ -135,13 +135,12 @@ def _shortfall(kind: str, qty: int, avail: int, gid, d, vested_left: int) -> str
     }[kind]
 
 
-def _allocate(out: list, remaining: list[int], pool: list[int], e, d, kind, given_qty, gid, vested, idx):
+def _allocate(out: list, remaining: list[int], pool: list[int], e, d, day: int, kind, given_qty, gid, vested, idx):
     """Take the event's quantity from ``pool`` (appending allocations to ``out``); (column, message) on a problem.
 
-    Each allocation is appended as whole numbers: (tranche, event, day number, position of the kind in
-    :data:`KINDS`, quantity).
+    ``d`` is the event date (for messages), ``day`` its day number.  Each allocation is appended as
+    whole numbers: (tranche, event, day number, position of the kind in :data:`KINDS`, quantity).
     """
-    day = int(d.view(np.int64))
     avail = sum(remaining[t] for t in pool)
     if np.isnan(given_qty):
         if kind == "exercise":

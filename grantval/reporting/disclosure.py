@@ -83,9 +83,13 @@ class _Tranches:
         """Per tranche: whether its grant date is on or before ``d``."""
         return (self.grant_date_g <= d)[self.gi]
 
+    def _within(self, dates_g: np.ndarray, lo, hi) -> np.ndarray:
+        """Per tranche: whether its grant's date among ``dates_g`` (one per grant) is in [lo, hi]."""
+        return ((dates_g >= lo) & (dates_g <= hi))[self.gi]
+
     def granted_in(self, lo, hi) -> np.ndarray:
         """Per tranche: whether its grant date is in [lo, hi]."""
-        return ((self.grant_date_g >= lo) & (self.grant_date_g <= hi))[self.gi]
+        return self._within(self.grant_date_g, lo, hi)
 
     def strike(self, rows) -> np.ndarray:
         """Exercise price of the tranches ``rows`` (a mask or positions)."""
@@ -100,7 +104,7 @@ class _Tranches:
         m = np.isin(self.c_kind, kinds) & (self.c_date >= lo) & (self.c_date <= hi)
         out = np.bincount(self.c_t[m], weights=self.c_qty[m], minlength=len(self.qty))
         if "expire" in kinds:
-            lapse = self.option & ((self.expiry_g >= lo) & (self.expiry_g <= hi))[self.gi]
+            lapse = self.option & self._within(self.expiry_g, lo, hi)
             out[lapse] += self.lapse_qty[lapse]
         return out.astype(np.int64)
 

@@ -48,11 +48,9 @@ def wide_by_group(inp: ExpenseInputs, ends, cents) -> pd.DataFrame:
 
 def _long(keys: dict[str, np.ndarray], ends, columns: dict[str, np.ndarray]) -> pd.DataFrame:
     """Long table: each key row repeated once per period end, with the (rows x periods) cents columns."""
-    n, p = next(iter(columns.values())).shape
-    data = {k: np.repeat(v, p) for k, v in keys.items()}
-    data["period_end"] = np.tile(np.asarray(ends, dtype="datetime64[D]"), n)
-    data.update({k: money(v.ravel()) for k, v in columns.items()})
-    return pd.DataFrame(data)
+    n = next(iter(columns.values())).shape[0]
+    arrays = _long_block(keys, np.asarray(ends, dtype="datetime64[D]"), columns, 0, n)
+    return pd.DataFrame(dict(zip([*keys, "period_end", *columns], arrays)))
 
 
 def _long_block(keys: dict[str, np.ndarray], ends, columns: dict[str, np.ndarray], at: int, stop: int):

@@ -106,3 +106,13 @@ def test_the_comparison_can_fail(tmp_path, monkeypatch):
     with pytest.raises(AssertionError):
         monkeypatch.setattr(csv_read, "_plain_table", lambda *a: None)
         _same(fast, slow)
+
+
+@pytest.mark.parametrize("body", [b"grant_id,holder_id,quantity", b"grant_id,holder_id,quantity\n",
+                                  b"grant_id,holder_id,quantity\r\n\r\n"])
+def test_a_header_alone_reads_as_the_record_reader_reads_it(tmp_path, monkeypatch, body):
+    path = tmp_path / "grants.csv"
+    path.write_bytes(body)
+    fast, slow = _both(path, monkeypatch=monkeypatch)
+    assert fast.by_column is not None and fast.rows == [] and fast.headers == ["grant_id", "holder_id", "quantity"]
+    _same(fast, slow)
