@@ -206,3 +206,13 @@ def test_engine_total_by_blocks_of_grants_is_the_whole_ledgers(tmp_path, monkeyp
     assert blocks.blockable(run.inputs)
     by_blocks = engine_total_cents(run.inputs, run.policy, run.start, run.through)
     assert by_blocks == whole == int(run.schedule.expense_cents.sum()) and whole != 0
+
+
+@pytest.mark.parametrize("chunk", [1, 7, 1 << 20])
+def test_cents_of_the_written_cells_in_chunks_are_the_whole_sum(chunk):
+    # reference: each amount rounded to its cents one at a time with Python's round, then added (common practice)
+    rng = np.random.default_rng(3)
+    cells = np.round(rng.normal(0, 5000, (40, 13)), 2)
+    expected = sum(round(v * 100) for v in cells.ravel().tolist())
+    assert C._cents(cells, chunk=chunk) == expected
+    assert C._cents(cells + 0.01, chunk=chunk) != expected  # one cent more on every cell: a different sum
